@@ -1,0 +1,397 @@
+//! Reading point and polygon layers from a GeoPackage into the working CRS.
+
+use std::collections::HashMap;
+use std::path::Path;
+
+use gdal::spatial_ref::SpatialRef;
+use gdal::vector::LayerAccess;
+use rusqlite::types::ValueRef;
+
+use super::blob::{decode_point, PointBlob};
+use super::{crs, quote_identifier as q};
+use crate::error::{Error, Result};
+
+/// How a requested field is to be read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FieldWant {
+    /// Text (numbers become their decimal text), dictionary-encoded.
+    Text,
+    /// A number; text that is not a number is an error.
+    Real,
+    /// A date-time parsed by [`crate::time::parse_utc_seconds`]; unparseable values are `None`.
+    DateTime,
+}
+
+/// A text column stored as codes into a dictionary of distinct values.
+#[derive(Debug, Clone, Default)]
+pub struct TextColumn {
+    /// Per row: index into `values`, or [`TextColumn::NULL`].
+    pub codes: Vec<u32>,
+    /// Distinct values in order of first appearance.
+    pub values: Vec<String>,
+}
+
+impl TextColumn {
+    /// Code of a NULL value.
+    pub const NULL: u32 = u32::MAX;
+
+    /// The value of row `i`.
+    pub fn get(&self, i: usize) -> Option<&str> {
+        self.values.get(self.codes[i] as usize).map(String::as_str)
+    }
+}
+
+/// One column read from a layer.
+#[derive(Debug, Clone)]
+pub enum Column {
+    /// Text values.
+    Text(TextColumn),
+    /// Numbers (None for NULL).
+    Real(Vec<Option<f64>>),
+    /// UTC seconds (None for NULL or unparseable).
+    DateTime(Vec<Option<i64>>),
+}
+
+/// Points of a layer, in the working CRS.
+#[derive(Debug)]
+pub struct PointLayer {
+    /// Layer name as found.
+    pub layer: String,
+    /// Feature ids.
+    pub fids: Vec<i64>,
+    /// Easting (m).
+    pub x: Vec<f64>,
+    /// Northing (m).
+    pub y: Vec<f64>,
+    /// Requested columns, in the order asked.
+    pub columns: Vec<Column>,
+    /// The working CRS.
+    pub srs: SpatialRef,
+    /// The layer's own CRS.
+    pub source_srs: SpatialRef,
+}
+
+/// The feature layers of a GeoPackage with their geometry type.
+fn feature_layers(connection: &rusqlite::Connection) -> rusqlite::Result<Vec<(String, String)>> {
+    let mut statement = connection.prepare(
+        "SELECT c.table_name, coalesce(g.geometry_type_name, '') FROM gpkg_contents c
+         LEFT JOIN gpkg_geometry_columns g ON g.table_name = c.table_name ORDER BY c.table_name",
+    )?;
+    let rows = statement.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?;
+    rows.collect()
+}
+
+/// Resolves the layer to read: the one named, or the only layer of `geometry` type.
+fn resolve_layer(path: &Path, connection: &rusqlite::Connection, wanted: Option<&str>, geometry: &[&str]) -> Result<(String, String)> {
+    let layers = feature_layers(connection).map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+    let list = |filter: &dyn Fn(&str) -> bool| {
+        let names: Vec<&str> = layers.iter().filter(|(_, g)| filter(g)).map(|(n, _)| n.as_str()).collect();
+        if names.is_empty() {
+            "none".to_owned()
+        } else {
+            names.join(", ")
+        }
+    };
+    match wanted {
+        Some(name) => layers
+            .iter()
+            .find(|(n, _)| n == name)
+            .or_else(|| layers.iter().find(|(n, _)| n.eq_ignore_ascii_case(name)))
+            .cloned()
+            .ok_or_else(|| Error::LayerNotFound { path: path.to_owned(), layer: name.to_owned(), available: list(&|_| true) }),
+        None => {
+            let candidates: Vec<&(String, String)> =
+                layers.iter().filter(|(_, g)| geometry.iter().any(|w| g.eq_ignore_ascii_case(w))).collect();
+            match candidates.as_slice() {
+                [one] => Ok((*one).clone()),
+                [] => Err(Error::argument(
+                    "--layer",
+                    format!("{} has no {} layer (layers: {})", path.display(), geometry[0].to_lowercase(), list(&|_| true)),
+                )),
+                _ => Err(Error::argument(
+                    "--layer",
+                    format!(
+                        "{} has several {} layers; name one with --layer ({})",
+                        path.display(),
+                        geometry[0].to_lowercase(),
+                        list(&|g| geometry.iter().any(|w| g.eq_ignore_ascii_case(w)))
+                    ),
+                )),
+            }
+        }
+    }
+}
+
+/// The CRS of layer `layer` from `gpkg_spatial_ref_sys`, in traditional axis order.
+fn layer_srs(path: &Path, connection: &rusqlite::Connection, layer: &str) -> Result<SpatialRef> {
+    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: layer.to_owned(), message };
+    let (srs_id, organization, code, definition): (i64, String, i64, String) = connection
+        .query_row(
+            "SELECT g.srs_id, s.organization, s.organization_coordsys_id, s.definition FROM gpkg_geometry_columns g
+             JOIN gpkg_spatial_ref_sys s ON s.srs_id = g.srs_id WHERE g.table_name = ?1",
+            [layer],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
+        )
+        .map_err(|e| bad(format!("cannot read its CRS ({e})")))?;
+    if srs_id <= 0 || definition.trim().is_empty() || definition.eq_ignore_ascii_case("undefined") {
+        return Err(bad(format!(
+            "has no CRS (srs_id {srs_id}); assign one first, e.g. ogr2ogr -a_srs EPSG:4326, or import it with stance-import --source-crs"
+        )));
+    }
+    if organization.eq_ignore_ascii_case("epsg") {
+        if let Ok(srs) = crs::parse(&format!("EPSG:{code}")) {
+            return Ok(srs);
+        }
+    }
+    crs::parse(&definition).map_err(|e| bad(format!("its CRS cannot be used: {e}")))
+}
+
+fn table_columns(path: &Path, connection: &rusqlite::Connection, layer: &str) -> Result<Vec<(String, bool)>> {
+    let mut statement = connection
+        .prepare(&format!("PRAGMA table_info({})", q(layer)))
+        .map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+    let rows = statement
+        .query_map([], |r| Ok((r.get::<_, String>(1)?, r.get::<_, i64>(5)? > 0)))
+        .and_then(|rows| rows.collect::<std::result::Result<Vec<_>, _>>())
+        .map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+    Ok(rows)
+}
+
+/// Finds `field` among `columns` (exact, then case-insensitive).
+fn find_field<'c>(path: &Path, layer: &str, columns: &'c [(String, bool)], field: &str, skip: &[&str]) -> Result<&'c str> {
+    columns
+        .iter()
+        .find(|(c, _)| c == field)
+        .or_else(|| columns.iter().find(|(c, _)| c.eq_ignore_ascii_case(field)))
+        .map(|(c, _)| c.as_str())
+        .ok_or_else(|| Error::FieldNotFound {
+            path: path.to_owned(),
+            layer: layer.to_owned(),
+            field: field.to_owned(),
+            available: columns
+                .iter()
+                .filter(|(c, pk)| !pk && !skip.contains(&c.as_str()))
+                .map(|(c, _)| c.as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
+        })
+}
+
+/// Reads a point layer of a GeoPackage with the requested fields, projected to the working CRS
+/// (see [`crs::working`]).
+///
+/// Reads the rows through SQLite and decodes the GeoPackage point blobs directly (the hot path of
+/// every tool). A NULL, empty, non-point or non-finite geometry is an error naming the first
+/// offending feature.
+///
+/// # Errors
+/// Missing file, layer or field; a layer that is not points, has no CRS or no features; a
+/// non-numeric value in a [`FieldWant::Real`] field.
+pub fn read_points(path: &Path, layer: Option<&str>, fields: &[(&str, FieldWant)], user_crs: Option<&str>) -> Result<PointLayer> {
+    let connection = super::open_sqlite_read(path)?;
+    let (layer, geometry_type) = resolve_layer(path, &connection, layer, &["POINT"])?;
+    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: layer.clone(), message };
+    if geometry_type.is_empty() {
+        return Err(bad("has no geometry; expected a point layer".into()));
+    }
+    if !["POINT", "GEOMETRY"].iter().any(|g| geometry_type.eq_ignore_ascii_case(g)) {
+        return Err(bad(format!("has {geometry_type} geometries; expected points")));
+    }
+    let source_srs = layer_srs(path, &connection, &layer)?;
+    let geometry_column: String = connection
+        .query_row("SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?1", [&layer], |r| r.get(0))
+        .map_err(|e| bad(e.to_string()))?;
+    let columns = table_columns(path, &connection, &layer)?;
+    let primary_key = columns.iter().find(|(_, pk)| *pk).map(|(c, _)| c.clone()).unwrap_or_else(|| "rowid".into());
+    let mut selected = Vec::with_capacity(fields.len());
+    for (field, _) in fields {
+        selected.push(find_field(path, &layer, &columns, field, &[geometry_column.as_str()])?.to_owned());
+    }
+    let mut sql = format!("SELECT {}, {}", q(&primary_key), q(&geometry_column));
+    for s in &selected {
+        sql.push_str(", ");
+        sql.push_str(&q(s));
+    }
+    sql.push_str(&format!(" FROM {}", q(&layer)));
+    let mut statement = connection.prepare(&sql).map_err(|e| bad(e.to_string()))?;
+    let mut rows = statement.query([]).map_err(|e| bad(e.to_string()))?;
+
+    let mut fids = Vec::new();
+    let (mut x, mut y) = (Vec::new(), Vec::new());
+    let mut builders: Vec<ColumnBuilder> = fields.iter().map(|(_, want)| ColumnBuilder::new(*want)).collect();
+    while let Some(row) = rows.next().map_err(|e| bad(e.to_string()))? {
+        let fid: i64 = row.get(0).map_err(|e| bad(e.to_string()))?;
+        let geometry = row.get_ref(1).map_err(|e| bad(e.to_string()))?;
+        let point = match geometry {
+            ValueRef::Null => return Err(bad(format!("feature {fid} has no geometry (NULL); every record needs a point"))),
+            ValueRef::Blob(b) => decode_point(b),
+            _ => PointBlob::Invalid,
+        };
+        match point {
+            PointBlob::Point(px, py) if px.is_finite() && py.is_finite() => {
+                x.push(px);
+                y.push(py);
+            }
+            PointBlob::Point(..) => return Err(bad(format!("feature {fid} has a non-finite coordinate (NaN or infinity)"))),
+            PointBlob::Empty => return Err(bad(format!("feature {fid} has an empty geometry; every record needs a point"))),
+            PointBlob::Other(code) => return Err(bad(format!("feature {fid} is not a point (WKB type {code}); expected points"))),
+            PointBlob::Invalid => return Err(bad(format!("feature {fid} has an unreadable geometry blob"))),
+        }
+        fids.push(fid);
+        for (i, builder) in builders.iter_mut().enumerate() {
+            let value = row.get_ref(i + 2).map_err(|e| bad(e.to_string()))?;
+            builder.push(value).map_err(|message| Error::BadField {
+                path: path.to_owned(),
+                layer: layer.clone(),
+                field: selected[i].clone(),
+                message: format!("feature {fid}: {message}"),
+            })?;
+        }
+    }
+    if fids.is_empty() {
+        return Err(bad("has no features".into()));
+    }
+    let srs = crs::working(user_crs, &source_srs, || crs::lonlat_centre(&source_srs, &x, &y))?;
+    if source_srs.to_wkt().ok() != srs.to_wkt().ok() {
+        crs::transform(&source_srs, &srs, &mut x, &mut y)?;
+    }
+    if let Some(i) = x.iter().zip(&y).position(|(a, b)| !a.is_finite() || !b.is_finite()) {
+        return Err(bad(format!("feature {} cannot be projected to the working CRS {}", fids[i], crs::label(&srs))));
+    }
+    Ok(PointLayer { layer, fids, x, y, columns: builders.into_iter().map(ColumnBuilder::finish).collect(), srs, source_srs })
+}
+
+enum ColumnBuilder {
+    Text(TextColumn, HashMap<String, u32>),
+    Real(Vec<Option<f64>>),
+    DateTime(Vec<Option<i64>>),
+}
+
+impl ColumnBuilder {
+    fn new(want: FieldWant) -> Self {
+        match want {
+            FieldWant::Text => ColumnBuilder::Text(TextColumn::default(), HashMap::new()),
+            FieldWant::Real => ColumnBuilder::Real(Vec::new()),
+            FieldWant::DateTime => ColumnBuilder::DateTime(Vec::new()),
+        }
+    }
+
+    fn push(&mut self, value: ValueRef<'_>) -> std::result::Result<(), String> {
+        match self {
+            ColumnBuilder::Text(column, index) => {
+                let text = match value {
+                    ValueRef::Null => None,
+                    ValueRef::Integer(i) => Some(i.to_string()),
+                    ValueRef::Real(r) => Some(r.to_string()),
+                    ValueRef::Text(t) => Some(String::from_utf8_lossy(t).into_owned()),
+                    ValueRef::Blob(_) => return Err("holds a binary value; expected text".into()),
+                };
+                let code = match text {
+                    None => TextColumn::NULL,
+                    Some(text) => match index.get(&text) {
+                        Some(code) => *code,
+                        None => {
+                            let code = column.values.len() as u32;
+                            column.values.push(text.clone());
+                            index.insert(text, code);
+                            code
+                        }
+                    },
+                };
+                column.codes.push(code);
+            }
+            ColumnBuilder::Real(values) => values.push(match value {
+                ValueRef::Null => None,
+                ValueRef::Integer(i) => Some(i as f64),
+                ValueRef::Real(r) => Some(r),
+                ValueRef::Text(t) => {
+                    let text = String::from_utf8_lossy(t);
+                    match text.trim().parse::<f64>() {
+                        Ok(v) => Some(v),
+                        Err(_) => return Err(format!("value '{text}' is not a number")),
+                    }
+                }
+                ValueRef::Blob(_) => return Err("holds a binary value; expected a number".into()),
+            }),
+            ColumnBuilder::DateTime(values) => values.push(match value {
+                ValueRef::Text(t) => crate::time::parse_utc_seconds(&String::from_utf8_lossy(t)),
+                _ => None,
+            }),
+        }
+        Ok(())
+    }
+
+    fn finish(self) -> Column {
+        match self {
+            ColumnBuilder::Text(c, _) => Column::Text(c),
+            ColumnBuilder::Real(v) => Column::Real(v),
+            ColumnBuilder::DateTime(v) => Column::DateTime(v),
+        }
+    }
+}
+
+/// Polygons of a layer with requested fields (as text), in the layer's own CRS.
+#[derive(Debug)]
+pub struct PolygonLayer {
+    /// Layer name.
+    pub layer: String,
+    /// Feature ids.
+    pub fids: Vec<i64>,
+    /// Geometries (polygons are wrapped as one-part multipolygons).
+    pub polygons: Vec<geo_types::MultiPolygon<f64>>,
+    /// Requested fields, as text (None for NULL).
+    pub fields: Vec<Vec<Option<String>>>,
+    /// The layer's CRS.
+    pub srs: SpatialRef,
+}
+
+/// Reads a polygon layer through GDAL into geo-types, in the layer's own CRS.
+///
+/// # Errors
+/// Missing file, layer or field; a layer that is not polygons, has no CRS or no features; a
+/// NULL or empty geometry.
+pub fn read_polygons(path: &Path, layer: Option<&str>, fields: &[&str]) -> Result<PolygonLayer> {
+    let connection = super::open_sqlite_read(path)?;
+    let (layer, geometry_type) = resolve_layer(path, &connection, layer, &["MULTIPOLYGON", "POLYGON"])?;
+    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: layer.clone(), message };
+    if !["POLYGON", "MULTIPOLYGON", "GEOMETRY"].iter().any(|g| geometry_type.eq_ignore_ascii_case(g)) {
+        return Err(bad(format!("has {} geometries; expected polygons", if geometry_type.is_empty() { "no" } else { &geometry_type })));
+    }
+    let srs = layer_srs(path, &connection, &layer)?;
+    let columns = table_columns(path, &connection, &layer)?;
+    let mut names = Vec::new();
+    for field in fields {
+        names.push(find_field(path, &layer, &columns, field, &[])?.to_owned());
+    }
+    drop(connection);
+    let dataset = super::open_geopackage(path)?;
+    let mut gdal_layer = dataset.layer_by_name(&layer).map_err(|e| bad(e.to_string()))?;
+    let indices: Vec<usize> = names
+        .iter()
+        .map(|n| gdal_layer.defn().field_index(n).map_err(|e| bad(e.to_string())))
+        .collect::<Result<_>>()?;
+    let mut out = PolygonLayer { layer: layer.clone(), fids: Vec::new(), polygons: Vec::new(), fields: vec![Vec::new(); names.len()], srs };
+    for feature in gdal_layer.features() {
+        let fid = feature.fid().map(|f| f as i64).unwrap_or(-1);
+        let geometry = feature.geometry().ok_or_else(|| bad(format!("feature {fid} has no geometry (NULL)")))?;
+        if geometry.is_empty() {
+            return Err(bad(format!("feature {fid} has an empty geometry")));
+        }
+        let converted: geo_types::Geometry<f64> =
+            geometry.try_into().map_err(|e: gdal::errors::GdalError| bad(format!("feature {fid}: {e}")))?;
+        let multi = match converted {
+            geo_types::Geometry::Polygon(p) => geo_types::MultiPolygon::new(vec![p]),
+            geo_types::Geometry::MultiPolygon(m) => m,
+            other => return Err(bad(format!("feature {fid} is a {other:?}; expected polygons").chars().take(200).collect())),
+        };
+        out.fids.push(fid);
+        out.polygons.push(multi);
+        for (slot, index) in out.fields.iter_mut().zip(&indices) {
+            slot.push(feature.field_as_string(*index).map_err(|e| bad(e.to_string()))?);
+        }
+    }
+    if out.fids.is_empty() {
+        return Err(bad("has no features".into()));
+    }
+    Ok(out)
+}

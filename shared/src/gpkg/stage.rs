@@ -1,0 +1,810 @@
+//! Atomic outputs: layers are built in a private staging GeoPackage next to the output and
+//! appear in `--output` in one step — a no-clobber hard link when the output is new, one SQLite
+//! transaction that copies the staged tables when it exists.
+
+use std::collections::{BTreeMap, HashSet};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::time::Duration;
+
+use gdal::vector::{Feature, LayerAccess, LayerOptions, ToGdal};
+use gdal::vector::{OGRFieldType, OGRwkbGeometryType};
+use gdal::{Dataset, DriverManager};
+use rusqlite::{Connection, OptionalExtension};
+use serde_json::{json, Value};
+
+use super::{quote_identifier as q, Provenance};
+use crate::error::{Error, Result};
+
+/// How long a publish waits for another writer's lock on the output before giving up.
+const BUSY_TIMEOUT: Duration = Duration::from_secs(60);
+
+/// The `md_standard_uri` of the toolbox's provenance records.
+pub const PROVENANCE_URI: &str = "urn:stance-toolbox:provenance:1";
+
+/// Kind of geometry of a vector layer.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum GeometryKind {
+    /// No geometry: an attribute table.
+    None,
+    /// Points.
+    Point,
+    /// Polygons (written as multipolygons so mixed inputs fit).
+    MultiPolygon,
+}
+
+/// Type of an attribute field.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FieldKind {
+    /// 64-bit integer.
+    Integer,
+    /// Double.
+    Real,
+    /// Text.
+    Text,
+    /// UTC date-time, given as seconds since 1970 and written with the `Z` suffix.
+    DateTime,
+}
+
+/// A field of an output layer.
+#[derive(Debug, Clone)]
+pub struct FieldDef {
+    /// Field name (snake_case, unit suffix).
+    pub name: String,
+    /// Field type.
+    pub kind: FieldKind,
+}
+
+impl FieldDef {
+    /// A field definition.
+    pub fn new(name: &str, kind: FieldKind) -> Self {
+        FieldDef { name: name.to_owned(), kind }
+    }
+}
+
+/// One attribute value to write.
+#[derive(Debug, Clone, Copy)]
+pub enum FieldData<'a> {
+    /// NULL.
+    Null,
+    /// Integer.
+    Integer(i64),
+    /// Real (NaN is written as NULL).
+    Real(f64),
+    /// Text.
+    Text(&'a str),
+    /// UTC seconds since 1970.
+    DateTime(i64),
+}
+
+/// A geometry to write, in the layer's CRS.
+#[derive(Debug, Clone, Copy)]
+pub enum Shape<'a> {
+    /// No geometry.
+    None,
+    /// A point.
+    Point(f64, f64),
+    /// A polygon.
+    Polygon(&'a geo_types::Polygon<f64>),
+    /// A multipolygon.
+    MultiPolygon(&'a geo_types::MultiPolygon<f64>),
+}
+
+/// A layer staged in this run.
+#[derive(Debug, Clone)]
+pub struct StagedLayer {
+    /// Table name.
+    pub name: String,
+    /// `features`, `attributes` or `2d-gridded-coverage`.
+    pub data_type: &'static str,
+    /// Features, rows or cells.
+    pub count: u64,
+}
+
+/// The staging GeoPackage of one run.
+pub struct Staging {
+    target: PathBuf,
+    path: PathBuf,
+    overwrite: bool,
+    existing: HashSet<String>,
+    protected: HashSet<String>,
+    layers: Vec<StagedLayer>,
+    dataset: Option<Dataset>,
+    created: bool,
+}
+
+impl Staging {
+    /// Prepares staging for `target`; checks up front that the output can be written.
+    ///
+    /// # Errors
+    /// [`Error::BadOutput`] if the output exists and is not a GeoPackage, or its directory is
+    /// not writable.
+    pub fn new(target: &Path, overwrite: bool) -> Result<Self> {
+        let bad = |message: String| Error::BadOutput { path: target.to_owned(), message };
+        if target.as_os_str().is_empty() {
+            return Err(bad("empty output path; expected --output FILE.gpkg".into()));
+        }
+        if target.is_dir() {
+            return Err(bad("is a directory; expected a GeoPackage file path".into()));
+        }
+        let existing = if target.exists() {
+            let tables = super::list_tables(target).map_err(|_| {
+                bad("exists and is not a GeoPackage; refusing to write into it (choose another --output)".into())
+            })?;
+            let metadata = std::fs::metadata(target).map_err(|e| bad(e.to_string()))?;
+            if metadata.permissions().readonly() {
+                return Err(bad("is read-only; cannot add layers to it".into()));
+            }
+            tables.into_iter().map(|(name, _)| name.to_lowercase()).collect()
+        } else {
+            HashSet::new()
+        };
+        let directory = match target.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_owned(),
+            _ => PathBuf::from("."),
+        };
+        if !directory.is_dir() {
+            return Err(bad(format!("directory '{}' does not exist", directory.display())));
+        }
+        let file_name = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let nanos = std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map(|d| d.subsec_nanos())
+            .unwrap_or(0);
+        let path = directory.join(format!(".{file_name}.stance-staging-{}-{nanos}.gpkg", std::process::id()));
+        // Probe that the directory takes new files, so an unwritable output fails before the work.
+        std::fs::File::create(&path)
+            .and_then(|_| std::fs::remove_file(&path))
+            .map_err(|e| bad(format!("cannot create files in '{}': {e}", directory.display())))?;
+        Ok(Staging {
+            target: target.to_owned(),
+            path,
+            overwrite,
+            existing,
+            protected: HashSet::new(),
+            layers: Vec::new(),
+            dataset: None,
+            created: false,
+        })
+    }
+
+    /// Marks `layer` as an input layer: it can never be replaced.
+    pub fn protect(&mut self, layer: &str) {
+        self.protected.insert(layer.to_lowercase());
+    }
+
+    /// The layers staged so far.
+    pub fn layers(&self) -> &[StagedLayer] {
+        &self.layers
+    }
+
+    /// Checks that `name` may be written: a valid name, not staged twice, not an input layer,
+    /// and either new in the output or replaceable with `--overwrite`.
+    ///
+    /// # Errors
+    /// [`Error::BadOutput`] or [`Error::BadArgument`] saying which.
+    pub fn check_name(&self, name: &str) -> Result<()> {
+        super::check_layer_name(name, "--name")?;
+        let lower = name.to_lowercase();
+        let bad = |message: String| Error::BadOutput { path: self.target.clone(), message };
+        if self.protected.contains(&lower) {
+            return Err(bad(format!("output layer '{name}' is an input layer of this run; input layers are never replaced (choose another --name)")));
+        }
+        if self.layers.iter().any(|l| l.name.to_lowercase() == lower) {
+            return Err(bad(format!("output layer '{name}' would be written twice in one run")));
+        }
+        if self.existing.contains(&lower) && !self.overwrite {
+            return Err(bad(format!("layer '{name}' already exists; use --overwrite to replace it or choose another --name")));
+        }
+        Ok(())
+    }
+
+    fn open_dataset(&mut self) -> Result<()> {
+        if self.dataset.is_none() {
+            let dataset = if self.created {
+                let options = gdal::DatasetOptions {
+                    open_flags: gdal::GdalOpenFlags::GDAL_OF_UPDATE
+                        | gdal::GdalOpenFlags::GDAL_OF_VECTOR
+                        | gdal::GdalOpenFlags::GDAL_OF_RASTER,
+                    allowed_drivers: Some(&["GPKG"]),
+                    ..Default::default()
+                };
+                Dataset::open_ex(&self.path, options).map_err(Error::gdal("reopening the staging GeoPackage"))?
+            } else {
+                let driver = DriverManager::get_driver_by_name("GPKG").map_err(Error::gdal("finding GDAL's GPKG driver"))?;
+                let dataset =
+                    driver.create_vector_only(&self.path).map_err(Error::gdal("creating the staging GeoPackage"))?;
+                self.created = true;
+                dataset
+            };
+            self.dataset = Some(dataset);
+        }
+        Ok(())
+    }
+
+    /// Closes GDAL's handle (before rasters are appended or SQLite takes over).
+    fn close_dataset(&mut self) -> Result<()> {
+        if let Some(dataset) = self.dataset.take() {
+            dataset.close().map_err(Error::gdal("closing the staging GeoPackage"))?;
+        }
+        Ok(())
+    }
+
+    /// Starts a vector layer `name` with `fields`, in `srs` (required unless `kind` is None).
+    ///
+    /// # Errors
+    /// Name problems (see [`Staging::check_name`]) or GDAL failures.
+    pub fn create_vector(
+        &mut self,
+        name: &str,
+        kind: GeometryKind,
+        srs: Option<&gdal::spatial_ref::SpatialRef>,
+        fields: &[FieldDef],
+    ) -> Result<VectorWriter<'_>> {
+        self.check_name(name)?;
+        let ty = match kind {
+            GeometryKind::None => OGRwkbGeometryType::wkbNone,
+            GeometryKind::Point => OGRwkbGeometryType::wkbPoint,
+            GeometryKind::MultiPolygon => OGRwkbGeometryType::wkbMultiPolygon,
+        };
+        let name_owned = name.to_owned();
+        self.open_dataset()?;
+        let dataset = self.dataset.as_mut().ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
+        let context = format!("creating layer '{name_owned}'");
+        let layer = dataset
+            .create_layer(LayerOptions {
+                name: &name_owned,
+                srs: if kind == GeometryKind::None { None } else { srs },
+                ty,
+                options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
+            })
+            .map_err(Error::gdal(context.clone()))?;
+        for field in fields {
+            let ogr_type = match field.kind {
+                FieldKind::Integer => OGRFieldType::OFTInteger64,
+                FieldKind::Real => OGRFieldType::OFTReal,
+                FieldKind::Text => OGRFieldType::OFTString,
+                FieldKind::DateTime => OGRFieldType::OFTDateTime,
+            };
+            let definition = gdal::vector::FieldDefn::new(&field.name, ogr_type).map_err(Error::gdal(context.clone()))?;
+            definition.add_to_layer(&layer).map_err(Error::gdal(context.clone()))?;
+        }
+        drop(layer);
+        // SAFETY: the handle is valid while `dataset` lives; a failure only costs speed.
+        let c_dataset = dataset.c_dataset();
+        unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };
+        let layer = dataset.layer_by_name(&name_owned).map_err(Error::gdal(context))?;
+        Ok(VectorWriter {
+            layer,
+            c_dataset,
+            kinds: fields.iter().map(|f| f.kind).collect(),
+            name: name_owned,
+            count: 0,
+            staged: &mut self.layers,
+            data_type: if kind == GeometryKind::None { "attributes" } else { "features" },
+        })
+    }
+
+    /// Writes a Float32 surface `name` (gridded coverage, TIFF tiles, nodata −9999).
+    ///
+    /// # Errors
+    /// Name problems or GDAL failures.
+    pub fn write_surface(&mut self, name: &str, surface: &super::raster::Surface<'_>) -> Result<()> {
+        self.check_name(name)?;
+        self.close_dataset()?;
+        super::raster::write(&self.path, self.created, name, surface)?;
+        self.created = true;
+        self.layers.push(StagedLayer {
+            name: name.to_owned(),
+            data_type: "2d-gridded-coverage",
+            count: (surface.grid.cols * surface.grid.rows) as u64,
+        });
+        Ok(())
+    }
+
+    /// Stamps provenance on every staged layer and makes them appear in the output at once.
+    /// Returns one JSON object per layer written.
+    ///
+    /// # Errors
+    /// [`Error::Interrupted`] if a signal arrived (nothing is written), [`Error::BadOutput`] if
+    /// a layer appeared in the output meanwhile, SQLite or I/O failures (the output is unchanged).
+    pub fn publish(mut self, provenance: &Provenance, interrupted: &AtomicBool) -> Result<Vec<Value>> {
+        self.close_dataset()?;
+        if self.layers.is_empty() {
+            return Ok(Vec::new());
+        }
+        {
+            let connection = Connection::open(&self.path).map_err(Error::sqlite("opening the staging GeoPackage"))?;
+            write_provenance(&connection, &self.layers, provenance)?;
+        }
+        if interrupted.load(Ordering::Relaxed) {
+            return Err(Error::Interrupted);
+        }
+        let linked = match std::fs::hard_link(&self.path, &self.target) {
+            Ok(()) => true,
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => false,
+            // Some file systems have no hard links: fall back to copying tables into a new file.
+            Err(_) => false,
+        };
+        if !linked {
+            if !self.target.exists() {
+                let driver = DriverManager::get_driver_by_name("GPKG").map_err(Error::gdal("finding GDAL's GPKG driver"))?;
+                let created = driver
+                    .create_vector_only(&self.target)
+                    .map_err(Error::gdal(format!("creating {}", self.target.display())))?;
+                created.close().map_err(Error::gdal("closing the new output"))?;
+            }
+            merge(&self.target, &self.path, &self.layers, self.overwrite, &self.protected)?;
+        }
+        Ok(self
+            .layers
+            .iter()
+            .map(|l| json!({ "name": l.name, "data_type": l.data_type, "count": l.count }))
+            .collect())
+    }
+}
+
+impl Drop for Staging {
+    fn drop(&mut self) {
+        self.dataset = None;
+        for suffix in ["", "-journal", "-wal", "-shm"] {
+            let mut path = self.path.clone().into_os_string();
+            path.push(suffix);
+            let _ = std::fs::remove_file(PathBuf::from(path));
+        }
+    }
+}
+
+/// Writes the features of one staged layer; [`VectorWriter::finish`] commits it.
+pub struct VectorWriter<'a> {
+    layer: gdal::vector::Layer<'a>,
+    c_dataset: gdal_sys::GDALDatasetH,
+    kinds: Vec<FieldKind>,
+    name: String,
+    count: u64,
+    staged: &'a mut Vec<StagedLayer>,
+    data_type: &'static str,
+}
+
+impl VectorWriter<'_> {
+    /// Adds one feature.
+    ///
+    /// # Errors
+    /// GDAL failures, or a value whose type does not match its field.
+    pub fn add(&mut self, shape: Shape<'_>, values: &[FieldData<'_>]) -> Result<()> {
+        let context = || format!("writing layer '{}'", self.name);
+        let mut feature = Feature::new(self.layer.defn()).map_err(Error::gdal(context()))?;
+        for (index, (value, kind)) in values.iter().zip(&self.kinds).enumerate() {
+            let result = match (*value, kind) {
+                (FieldData::Null, _) => feature.set_field_null(index),
+                (FieldData::Real(v), _) if v.is_nan() => feature.set_field_null(index),
+                (FieldData::Integer(v), _) => feature.set_field_integer64(index, v),
+                (FieldData::Real(v), _) => feature.set_field_double(index, v),
+                (FieldData::Text(v), _) => feature.set_field_string(index, v),
+                (FieldData::DateTime(seconds), _) => match chrono::DateTime::from_timestamp(seconds, 0) {
+                    // OGR parses the `Z` suffix into time-zone flag 100 (UTC).
+                    Some(t) => feature.set_field_string(index, &t.format("%Y-%m-%dT%H:%M:%SZ").to_string()),
+                    None => feature.set_field_null(index),
+                },
+            };
+            result.map_err(Error::gdal(context()))?;
+        }
+        let geometry = match shape {
+            Shape::None => None,
+            Shape::Point(x, y) => {
+                let mut g = gdal::vector::Geometry::empty(OGRwkbGeometryType::wkbPoint).map_err(Error::gdal(context()))?;
+                g.add_point_2d((x, y));
+                Some(g)
+            }
+            Shape::Polygon(p) => {
+                let multi = geo_types::MultiPolygon::new(vec![p.clone()]);
+                Some(multi.to_gdal().map_err(Error::gdal(context()))?)
+            }
+            Shape::MultiPolygon(m) => Some(m.to_gdal().map_err(Error::gdal(context()))?),
+        };
+        if let Some(geometry) = geometry {
+            feature.set_geometry(geometry).map_err(Error::gdal(context()))?;
+        }
+        feature.create(&self.layer).map_err(Error::gdal(context()))?;
+        self.count += 1;
+        Ok(())
+    }
+
+    /// Commits the layer.
+    ///
+    /// # Errors
+    /// GDAL failures.
+    pub fn finish(self) -> Result<u64> {
+        // SAFETY: the layer's dataset handle is valid for the writer's lifetime.
+        let status = unsafe { gdal_sys::GDALDatasetCommitTransaction(self.c_dataset) };
+        if status != gdal_sys::OGRErr::OGRERR_NONE {
+            return Err(Error::Failed(format!("committing layer '{}' failed (OGR error {status})", self.name)));
+        }
+        self.staged.push(StagedLayer { name: self.name, data_type: self.data_type, count: self.count });
+        Ok(self.count)
+    }
+}
+
+
+const METADATA_DDL: &str = "
+CREATE TABLE IF NOT EXISTS gpkg_metadata (
+  id INTEGER CONSTRAINT m_pk PRIMARY KEY ASC NOT NULL,
+  md_scope TEXT NOT NULL DEFAULT 'dataset',
+  md_standard_uri TEXT NOT NULL,
+  mime_type TEXT NOT NULL DEFAULT 'text/xml',
+  metadata TEXT NOT NULL DEFAULT '');
+CREATE TABLE IF NOT EXISTS gpkg_metadata_reference (
+  reference_scope TEXT NOT NULL,
+  table_name TEXT,
+  column_name TEXT,
+  row_id_value INTEGER,
+  timestamp DATETIME NOT NULL DEFAULT (strftime('%Y-%m-%dT%H:%M:%fZ','now')),
+  md_file_id INTEGER NOT NULL,
+  md_parent_id INTEGER,
+  CONSTRAINT crmr_mfi_fk FOREIGN KEY (md_file_id) REFERENCES gpkg_metadata(id),
+  CONSTRAINT crmr_mpi_fk FOREIGN KEY (md_parent_id) REFERENCES gpkg_metadata(id));
+CREATE TABLE IF NOT EXISTS gpkg_extensions (
+  table_name TEXT,
+  column_name TEXT,
+  extension_name TEXT NOT NULL,
+  definition TEXT NOT NULL,
+  scope TEXT NOT NULL,
+  CONSTRAINT ge_tce UNIQUE (table_name, column_name, extension_name));
+";
+
+/// Adds one provenance record per staged layer (GeoPackage metadata extension, scope `table`).
+fn write_provenance(connection: &Connection, layers: &[StagedLayer], provenance: &Provenance) -> Result<()> {
+    let ctx = "writing provenance metadata";
+    connection.execute_batch(METADATA_DDL).map_err(Error::sqlite(ctx))?;
+    for table in ["gpkg_metadata", "gpkg_metadata_reference"] {
+        connection
+            .execute(
+                "INSERT INTO gpkg_extensions (table_name, column_name, extension_name, definition, scope)
+                 SELECT ?1, NULL, 'gpkg_metadata', 'http://www.geopackage.org/spec120/#extension_metadata', 'read-write'
+                 WHERE NOT EXISTS (SELECT 1 FROM gpkg_extensions WHERE table_name = ?1 AND column_name IS NULL AND extension_name = 'gpkg_metadata')",
+                [table],
+            )
+            .map_err(Error::sqlite(ctx))?;
+    }
+    let now = chrono::Utc::now().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
+    for layer in layers {
+        let record = provenance.to_json(&layer.name).to_string();
+        connection
+            .execute(
+                "INSERT INTO gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) VALUES ('dataset', ?1, 'application/json', ?2)",
+                rusqlite::params![PROVENANCE_URI, record],
+            )
+            .map_err(Error::sqlite(ctx))?;
+        let id = connection.last_insert_rowid();
+        connection
+            .execute(
+                "INSERT INTO gpkg_metadata_reference (reference_scope, table_name, column_name, row_id_value, timestamp, md_file_id, md_parent_id)
+                 VALUES ('table', ?1, NULL, NULL, ?2, ?3, NULL)",
+                rusqlite::params![layer.name, now, id],
+            )
+            .map_err(Error::sqlite(ctx))?;
+    }
+    Ok(())
+}
+
+/// Column that ties a row of a GeoPackage system table to a user table.
+fn owner_column(columns: &[String]) -> Option<&'static str> {
+    ["table_name", "tpudt_name", "tile_matrix_set_name"]
+        .into_iter()
+        .find(|c| columns.iter().any(|x| x == c))
+}
+
+/// Column names of `schema.table`.
+fn columns_of(connection: &Connection, schema: &str, table: &str) -> rusqlite::Result<Vec<String>> {
+    let mut statement = connection.prepare(&format!("PRAGMA {schema}.table_info({})", q(table)))?;
+    let columns = statement.query_map([], |r| r.get::<_, String>(1))?.collect();
+    columns
+}
+
+/// Copies the staged layers into `target` in one transaction (replacing same-named layers when
+/// `overwrite` is set). Triggers are created after the rows are copied, so GeoPackage's R-tree
+/// triggers (which call GDAL's `ST_*` SQL functions) never fire in this plain connection.
+fn merge(target: &Path, staged: &Path, layers: &[StagedLayer], overwrite: bool, protected: &HashSet<String>) -> Result<()> {
+    let ctx = format!("adding layers to {}", target.display());
+    let sql = |e| Error::Sqlite { context: ctx.clone(), source: e };
+    let mut connection = Connection::open(target).map_err(sql)?;
+    connection.busy_timeout(BUSY_TIMEOUT).map_err(sql)?;
+    connection
+        .execute("ATTACH DATABASE ?1 AS staged", [staged.to_string_lossy()])
+        .map_err(sql)?;
+    let transaction = connection
+        .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)
+        .map_err(sql)?;
+    let system_tables: Vec<(String, String)> = {
+        let mut statement = transaction
+            .prepare("SELECT name, sql FROM staged.sqlite_master WHERE type = 'table' AND name LIKE 'gpkg%' ORDER BY rowid")
+            .map_err(sql)?;
+        let rows = statement
+            .query_map([], |r| Ok((r.get::<_, String>(0)?, r.get::<_, String>(1)?)))
+            .and_then(|rows| rows.collect::<std::result::Result<Vec<_>, _>>())
+            .map_err(sql)?;
+        rows
+    };
+    // System tables the output lacks are created with the staged definitions and triggers.
+    for (name, create) in &system_tables {
+        let present: Option<String> = transaction
+            .query_row("SELECT name FROM main.sqlite_master WHERE type = 'table' AND name = ?1", [name], |r| r.get(0))
+            .optional()
+            .map_err(sql)?;
+        if present.is_none() {
+            transaction.execute_batch(create).map_err(sql)?;
+            let triggers = statements_on(&transaction, name, "trigger")?;
+            for trigger in triggers {
+                transaction.execute_batch(&trigger).map_err(sql)?;
+            }
+        }
+    }
+    let srs_map = map_spatial_ref_systems(&transaction, layers).map_err(sql)?;
+    for layer in layers {
+        let lower = layer.name.to_lowercase();
+        if protected.contains(&lower) {
+            return Err(Error::BadOutput {
+                path: target.to_owned(),
+                message: format!("output layer '{}' is an input layer of this run; input layers are never replaced", layer.name),
+            });
+        }
+        let exists: i64 = transaction
+            .query_row("SELECT count(*) FROM main.gpkg_contents WHERE lower(table_name) = ?1", [&lower], |r| r.get(0))
+            .map_err(sql)?;
+        let table_exists: i64 = transaction
+            .query_row("SELECT count(*) FROM main.sqlite_master WHERE lower(name) = ?1", [&lower], |r| r.get(0))
+            .map_err(sql)?;
+        if exists > 0 || table_exists > 0 {
+            if !overwrite {
+                return Err(Error::BadOutput {
+                    path: target.to_owned(),
+                    message: format!("layer '{}' already exists; use --overwrite to replace it or choose another --name", layer.name),
+                });
+            }
+            drop_layer(&transaction, &layer.name, &system_tables).map_err(sql)?;
+        }
+        copy_layer(&transaction, &layer.name, &system_tables, &srs_map).map_err(sql)?;
+    }
+    transaction.commit().map_err(sql)?;
+    connection.execute("DETACH DATABASE staged", []).map_err(sql)?;
+    Ok(())
+}
+
+/// SQL of the indexes or triggers of `table` in the staged file.
+fn statements_on(connection: &Connection, table: &str, kind: &str) -> Result<Vec<String>> {
+    let mut statement = connection
+        .prepare("SELECT sql FROM staged.sqlite_master WHERE type = ?1 AND tbl_name = ?2 AND sql IS NOT NULL ORDER BY rowid")
+        .map_err(Error::sqlite("reading staged definitions"))?;
+    let rows = statement
+        .query_map([kind, table], |r| r.get::<_, String>(0))
+        .and_then(|rows| rows.collect::<std::result::Result<Vec<_>, _>>())
+        .map_err(Error::sqlite("reading staged definitions"))?;
+    Ok(rows)
+}
+
+/// Maps each staged `srs_id` used by the layers to an id in the output, adding missing systems.
+fn map_spatial_ref_systems(tx: &Connection, layers: &[StagedLayer]) -> rusqlite::Result<BTreeMap<i64, i64>> {
+    let mut map = BTreeMap::new();
+    let staged_columns = columns_of(tx, "staged", "gpkg_spatial_ref_sys")?;
+    let main_columns = columns_of(tx, "main", "gpkg_spatial_ref_sys")?;
+    let common: Vec<String> = staged_columns.iter().filter(|c| main_columns.contains(c)).cloned().collect();
+    for layer in layers {
+        let ids: Vec<i64> = {
+            let mut s = tx.prepare(
+                "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL
+                 UNION SELECT srs_id FROM staged.gpkg_geometry_columns WHERE table_name = ?1
+                 UNION SELECT srs_id FROM staged.gpkg_tile_matrix_set WHERE table_name = ?1",
+            ).or_else(|_| tx.prepare(
+                "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL",
+            ))?;
+            let v = s.query_map([&layer.name], |r| r.get::<_, i64>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+            v
+        };
+        for id in ids {
+            if map.contains_key(&id) {
+                continue;
+            }
+            let (organization, code, definition): (String, i64, String) = tx.query_row(
+                "SELECT organization, organization_coordsys_id, definition FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?1",
+                [id],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+            )?;
+            let found: Option<i64> = if organization.eq_ignore_ascii_case("epsg") {
+                tx.query_row(
+                    "SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE lower(organization) = 'epsg' AND organization_coordsys_id = ?1",
+                    [code],
+                    |r| r.get(0),
+                )
+                .optional()?
+            } else if id <= 0 {
+                Some(id)
+            } else {
+                tx.query_row("SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE definition = ?1", [&definition], |r| r.get(0))
+                    .optional()?
+            };
+            let new_id = match found {
+                Some(f) => f,
+                None => {
+                    let taken: i64 = tx.query_row("SELECT count(*) FROM main.gpkg_spatial_ref_sys WHERE srs_id = ?1", [id], |r| r.get(0))?;
+                    let new_id = if taken == 0 {
+                        id
+                    } else {
+                        tx.query_row("SELECT max(max(srs_id) + 1, 100000) FROM main.gpkg_spatial_ref_sys", [], |r| r.get(0))?
+                    };
+                    let list = common.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
+                    let select = common
+                        .iter()
+                        .map(|c| if c == "srs_id" { "?1".to_owned() } else { q(c) })
+                        .collect::<Vec<_>>()
+                        .join(", ");
+                    tx.execute(
+                        &format!("INSERT INTO main.gpkg_spatial_ref_sys ({list}) SELECT {select} FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?2"),
+                        [new_id, id],
+                    )?;
+                    new_id
+                }
+            };
+            map.insert(id, new_id);
+        }
+    }
+    Ok(map)
+}
+
+/// Removes layer `name` and every system-table row that refers to it.
+fn drop_layer(tx: &Connection, name: &str, system_tables: &[(String, String)]) -> rusqlite::Result<()> {
+    // Provenance records referenced only by this layer go with it.
+    let has_metadata: i64 = tx.query_row(
+        "SELECT count(*) FROM main.sqlite_master WHERE name = 'gpkg_metadata_reference'",
+        [],
+        |r| r.get(0),
+    )?;
+    if has_metadata > 0 {
+        tx.execute(
+            "DELETE FROM main.gpkg_metadata WHERE id IN (SELECT md_file_id FROM main.gpkg_metadata_reference WHERE lower(table_name) = lower(?1))
+             AND id NOT IN (SELECT md_file_id FROM main.gpkg_metadata_reference WHERE lower(table_name) IS NOT lower(?1))",
+            [name],
+        )?;
+    }
+    let mut main_system: Vec<String> = {
+        let mut s = tx.prepare("SELECT name FROM main.sqlite_master WHERE type = 'table' AND name LIKE 'gpkg%'")?;
+        let v = s.query_map([], |r| r.get::<_, String>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        v
+    };
+    main_system.extend(system_tables.iter().map(|(n, _)| n.clone()));
+    main_system.sort();
+    main_system.dedup();
+    for table in main_system {
+        let present: i64 = tx.query_row("SELECT count(*) FROM main.sqlite_master WHERE name = ?1", [&table], |r| r.get(0))?;
+        if present == 0 || table == "gpkg_spatial_ref_sys" {
+            continue;
+        }
+        let columns = columns_of(tx, "main", &table)?;
+        if let Some(owner) = owner_column(&columns) {
+            tx.execute(&format!("DELETE FROM main.{} WHERE lower({owner}) = lower(?1)", q(&table)), [name])?;
+        }
+    }
+    let rtrees: Vec<String> = {
+        let mut s = tx.prepare(
+            "SELECT name FROM main.sqlite_master WHERE type = 'table' AND sql LIKE 'CREATE VIRTUAL TABLE%' AND lower(name) LIKE 'rtree\\_' || lower(?1) || '\\_%' ESCAPE '\\'",
+        )?;
+        let v = s.query_map([name], |r| r.get::<_, String>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        v
+    };
+    for rtree in rtrees {
+        tx.execute_batch(&format!("DROP TABLE main.{}", q(&rtree)))?;
+    }
+    tx.execute_batch(&format!("DROP TABLE IF EXISTS main.{}", q(name)))?;
+    let has_sequence: i64 = tx.query_row("SELECT count(*) FROM main.sqlite_master WHERE name = 'sqlite_sequence'", [], |r| r.get(0))?;
+    if has_sequence > 0 {
+        tx.execute("DELETE FROM main.sqlite_sequence WHERE lower(name) = lower(?1)", [name])?;
+    }
+    Ok(())
+}
+
+/// Copies layer `name` (table, R-tree, indexes, triggers, system-table rows) from `staged`.
+fn copy_layer(tx: &Connection, name: &str, system_tables: &[(String, String)], srs_map: &BTreeMap<i64, i64>) -> rusqlite::Result<()> {
+    let create: String = tx.query_row(
+        "SELECT sql FROM staged.sqlite_master WHERE type = 'table' AND name = ?1",
+        [name],
+        |r| r.get(0),
+    )?;
+    tx.execute_batch(&create)?;
+    tx.execute(&format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(name)), [])?;
+    let sequence: Option<i64> = tx
+        .query_row("SELECT seq FROM staged.sqlite_sequence WHERE name = ?1", [name], |r| r.get(0))
+        .optional()
+        .unwrap_or(None);
+    if let Some(seq) = sequence {
+        tx.execute("DELETE FROM main.sqlite_sequence WHERE name = ?1", [name])?;
+        tx.execute("INSERT INTO main.sqlite_sequence (name, seq) VALUES (?1, ?2)", rusqlite::params![name, seq])?;
+    }
+    let rtrees: Vec<(String, String)> = {
+        let mut s = tx.prepare(
+            "SELECT name, sql FROM staged.sqlite_master WHERE type = 'table' AND sql LIKE 'CREATE VIRTUAL TABLE%' AND name LIKE 'rtree\\_' || ?1 || '\\_%' ESCAPE '\\'",
+        )?;
+        let v = s.query_map([name], |r| Ok((r.get(0)?, r.get(1)?)))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        v
+    };
+    for (rtree, create) in &rtrees {
+        tx.execute_batch(create)?;
+        tx.execute(&format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(rtree)), [])?;
+    }
+    for kind in ["index", "trigger"] {
+        let mut s = tx.prepare("SELECT sql FROM staged.sqlite_master WHERE type = ?1 AND tbl_name = ?2 AND sql IS NOT NULL ORDER BY rowid")?;
+        let statements = s.query_map([kind, name], |r| r.get::<_, String>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        for statement in statements {
+            tx.execute_batch(&statement)?;
+        }
+    }
+    for (table, _) in system_tables {
+        if table == "gpkg_spatial_ref_sys" || table == "gpkg_metadata" {
+            continue;
+        }
+        let staged_columns = columns_of(tx, "staged", table)?;
+        let main_columns = columns_of(tx, "main", table)?;
+        let has_autoincrement_id = table == "gpkg_2d_gridded_coverage_ancillary" || table == "gpkg_2d_gridded_tile_ancillary";
+        let columns: Vec<&String> = staged_columns
+            .iter()
+            .filter(|c| main_columns.contains(c))
+            .filter(|c| !(has_autoincrement_id && c.as_str() == "id"))
+            .collect();
+        let list = columns.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
+        if table == "gpkg_metadata_reference" {
+            // Each record gets a fresh id in the output.
+            let mut s = tx.prepare(
+                "SELECT r.md_file_id, m.md_scope, m.md_standard_uri, m.mime_type, m.metadata FROM staged.gpkg_metadata_reference r
+                 JOIN staged.gpkg_metadata m ON m.id = r.md_file_id WHERE r.table_name = ?1",
+            )?;
+            let records = s
+                .query_map([name], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, String>(1)?, r.get::<_, String>(2)?, r.get::<_, String>(3)?, r.get::<_, String>(4)?)))?
+                .collect::<rusqlite::Result<Vec<_>>>()?;
+            for (old_id, scope, uri, mime, metadata) in records {
+                tx.execute(
+                    "INSERT INTO main.gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) VALUES (?1, ?2, ?3, ?4)",
+                    rusqlite::params![scope, uri, mime, metadata],
+                )?;
+                let new_id = tx.last_insert_rowid();
+                tx.execute(
+                    "INSERT INTO main.gpkg_metadata_reference (reference_scope, table_name, column_name, row_id_value, timestamp, md_file_id, md_parent_id)
+                     SELECT reference_scope, table_name, column_name, row_id_value, timestamp, ?1, NULL FROM staged.gpkg_metadata_reference
+                     WHERE table_name = ?2 AND md_file_id = ?3",
+                    rusqlite::params![new_id, name, old_id],
+                )?;
+            }
+            continue;
+        }
+        let Some(owner) = owner_column(&staged_columns) else { continue };
+        if table == "gpkg_extensions" {
+            // Rows of this layer, plus extension rows of system tables the output may lack.
+            tx.execute(
+                &format!("INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions WHERE table_name = ?1"),
+                [name],
+            )?;
+            tx.execute(
+                &format!(
+                    "INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions s
+                     WHERE (s.table_name IS NULL OR s.table_name LIKE 'gpkg%') AND NOT EXISTS (
+                       SELECT 1 FROM main.gpkg_extensions m WHERE m.table_name IS s.table_name
+                       AND m.column_name IS s.column_name AND m.extension_name = s.extension_name)"
+                ),
+                [],
+            )?;
+            continue;
+        }
+        tx.execute(
+            &format!("INSERT INTO main.{0} ({list}) SELECT {list} FROM staged.{0} WHERE {owner} = ?1", q(table)),
+            [name],
+        )?;
+        if columns.iter().any(|c| c.as_str() == "srs_id") {
+            for (old, new) in srs_map {
+                if old != new {
+                    tx.execute(
+                        &format!("UPDATE main.{} SET srs_id = ?1 WHERE {owner} = ?2 AND srs_id = ?3", q(table)),
+                        rusqlite::params![new, name, old],
+                    )?;
+                }
+            }
+        }
+    }
+    Ok(())
+}

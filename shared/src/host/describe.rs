@@ -1,0 +1,151 @@
+//! The tool's process description in the structure of OGC API – Processes – Part 1: Core
+//! (OGC 18-062r2, "process description"), generated from the same definitions as the CLI.
+
+use serde_json::{json, Map, Value};
+
+use super::{CommonArgs, OutputDecl, Tool};
+
+/// JSON Schema of `T` (draft 2020-12, subschemas inlined so each input stands alone).
+fn schema_of<T: schemars::JsonSchema>() -> Value {
+    let generator = schemars::generate::SchemaSettings::draft2020_12()
+        .with(|s| s.inline_subschemas = true)
+        .into_generator();
+    generator.into_root_schema_for::<T>().to_value()
+}
+
+/// Builds the process description of tool `T`.
+///
+/// Types, descriptions and allowed values come from the schemars derive on the parameter
+/// structs; defaults and whether an input is required come from the clap definitions, so the
+/// CLI stays the one source of both.
+pub fn describe<T: Tool>() -> Value {
+    let command = super::command::<T>();
+    let mut inputs = Map::new();
+    for schema in [schema_of::<CommonArgs>(), schema_of::<T::Params>()] {
+        let Some(properties) = schema.get("properties").and_then(Value::as_object) else {
+            continue;
+        };
+        for (name, property) in properties {
+            if name == "describe" {
+                continue;
+            }
+            if name == "input" || name == "layer" {
+                if T::INPUT == super::InputUse::None {
+                    continue;
+                }
+            }
+            let arg = command.get_arguments().find(|a| a.get_long() == Some(name.as_str()));
+            let mut property = property.clone();
+            let description = property
+                .as_object_mut()
+                .and_then(|p| p.remove("description"))
+                .and_then(|d| d.as_str().map(str::to_owned))
+                .or_else(|| arg.and_then(|a| a.get_help().map(|h| h.to_string())))
+                .unwrap_or_default();
+            let mut required = arg.is_some_and(|a| a.is_required_set());
+            if name == "input" && T::INPUT == super::InputUse::Required {
+                required = true;
+            }
+            if let (Some(arg), Some(object)) = (arg, property.as_object_mut()) {
+                let defaults: Vec<String> =
+                    arg.get_default_values().iter().map(|v| v.to_string_lossy().into_owned()).collect();
+                if let Some(first) = defaults.first() {
+                    object.insert("default".into(), typed_default(object, first));
+                }
+                // An Option<T> input shows as ["T", "null"]; an absent input is expressed by
+                // minOccurs = 0 instead.
+                if let Some(Value::Array(types)) = object.get("type") {
+                    let non_null: Vec<Value> =
+                        types.iter().filter(|t| t.as_str() != Some("null")).cloned().collect();
+                    if non_null.len() == 1 {
+                        object.insert("type".into(), non_null[0].clone());
+                    }
+                }
+                if let Some(Value::Array(options)) = object.get("anyOf") {
+                    let non_null: Vec<Value> =
+                        options.iter().filter(|o| o.get("type").and_then(Value::as_str) != Some("null")).cloned().collect();
+                    if non_null.len() == 1 {
+                        object.remove("anyOf");
+                        if let Some(inner) = non_null[0].as_object() {
+                            for (k, v) in inner {
+                                object.insert(k.clone(), v.clone());
+                            }
+                        }
+                    }
+                }
+            }
+            let title = description.split(['.', '\n']).next().unwrap_or("").trim().to_owned();
+            inputs.insert(
+                name.clone(),
+                json!({
+                    "title": title,
+                    "description": description,
+                    "schema": property,
+                    "minOccurs": u32::from(required),
+                    "maxOccurs": 1,
+                }),
+            );
+        }
+    }
+    let mut outputs = Map::new();
+    for OutputDecl { id, title, description, media_type } in T::outputs() {
+        outputs.insert(
+            id.to_owned(),
+            json!({
+                "title": title,
+                "description": description,
+                "schema": { "type": "string", "contentMediaType": media_type },
+            }),
+        );
+    }
+    outputs.insert(
+        "summary".into(),
+        json!({
+            "title": "Run summary",
+            "description": "The JSON object printed on stdout: layers written and key results.",
+            "schema": { "type": "object", "contentMediaType": "application/json" },
+        }),
+    );
+    json!({
+        "id": T::ID,
+        "title": T::TITLE,
+        "description": T::DESCRIPTION,
+        "version": crate::VERSION,
+        "keywords": ["stance", "geopackage", T::ID],
+        "jobControlOptions": ["sync-execute"],
+        "outputTransmission": ["reference"],
+        "inputs": inputs,
+        "outputs": outputs,
+        "additionalParameters": {
+            "parameters": [
+                { "name": "executable", "value": [format!("stance-{}", T::ID)] },
+                { "name": "exitCodes", "value": [{"0": "done", "1": "failure while working", "2": "bad arguments or unusable input"}] }
+            ]
+        }
+    })
+}
+
+/// Turns clap's textual default into a JSON value of the schema's type.
+fn typed_default(schema: &Map<String, Value>, text: &str) -> Value {
+    let types: Vec<&str> = match schema.get("type") {
+        Some(Value::String(t)) => vec![t.as_str()],
+        Some(Value::Array(ts)) => ts.iter().filter_map(Value::as_str).collect(),
+        _ => vec![],
+    };
+    if types.contains(&"integer") {
+        if let Ok(i) = text.parse::<i64>() {
+            return json!(i);
+        }
+    }
+    if types.contains(&"number") {
+        if let Ok(f) = text.parse::<f64>() {
+            return json!(f);
+        }
+    }
+    if types.contains(&"boolean") {
+        if let Ok(b) = text.parse::<bool>() {
+            return json!(b);
+        }
+    }
+    json!(text)
+}

@@ -1,0 +1,360 @@
+//! The tool host: from one parameter definition, every tool gets its CLI, `--describe`,
+//! JSON summary, provenance, progress, exit codes and atomic output.
+
+mod common;
+pub mod describe;
+mod progress;
+
+use std::ffi::OsString;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::Instant;
+
+use clap::{Args, FromArgMatches};
+use serde_json::{json, Value};
+
+pub use common::CommonArgs;
+pub use progress::Progress;
+
+use crate::error::{Error, Result};
+use crate::gpkg::stage::Staging;
+use crate::gpkg::{self, Provenance};
+
+/// Whether a tool reads `--input`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum InputUse {
+    /// `--input` must be given.
+    Required,
+    /// The tool generates its data (`--input` and `--layer` are not offered in its description).
+    None,
+}
+
+/// One declared output, for `--describe`.
+#[derive(Debug, Clone)]
+pub struct OutputDecl {
+    /// Output id, e.g. `points`.
+    pub id: &'static str,
+    /// Short title.
+    pub title: &'static str,
+    /// What the output layer holds, including its name pattern.
+    pub description: &'static str,
+    /// Media type of the container.
+    pub media_type: &'static str,
+}
+
+/// Media type of a GeoPackage (OGC 12-128r18, Annex: media type registration).
+pub const GEOPACKAGE_MEDIA_TYPE: &str = "application/geopackage+sqlite3";
+
+/// What every tool implements: its parameters, its description and its `run`.
+pub trait Tool {
+    /// The tool's own parameters (clap derive for the CLI, schemars for `--describe`,
+    /// serde for provenance). Use `#[serde(rename_all = "kebab-case")]` so names match the CLI.
+    type Params: Args + FromArgMatches + schemars::JsonSchema + serde::Serialize;
+    /// Short id: the executable is `stance-<ID>`.
+    const ID: &'static str;
+    /// One-line title.
+    const TITLE: &'static str;
+    /// A paragraph on what the tool does.
+    const DESCRIPTION: &'static str;
+    /// Default base name of the output layers.
+    const DEFAULT_NAME: &'static str;
+    /// Whether the tool reads `--input`.
+    const INPUT: InputUse;
+    /// The outputs, for `--describe`.
+    fn outputs() -> Vec<OutputDecl>;
+    /// Reads, checks, computes and stages its outputs through `run`; returns the key results.
+    ///
+    /// # Errors
+    /// Any [`Error`]; its variant decides the exit code.
+    fn run(params: &Self::Params, run: &mut Run) -> Result<Value>;
+}
+
+/// The clap command of tool `T`: common options plus the tool's parameters.
+pub fn command<T: Tool>() -> clap::Command {
+    let command = clap::Command::new(format!("stance-{}", T::ID))
+        .about(T::TITLE)
+        .long_about(format!("{}\n\n{}", T::TITLE, T::DESCRIPTION))
+        .version(crate::VERSION)
+        .after_help("Exit codes: 0 done, 2 bad arguments or unusable input, 1 failure while working.");
+    T::Params::augment_args(CommonArgs::augment_args(command))
+}
+
+/// Entry point of a tool executable: `fn main() -> ExitCode { host::main::<MyTool>() }`.
+pub fn main<T: Tool>() -> ExitCode {
+    main_with_args::<T>(std::env::args_os().collect())
+}
+
+/// Runs tool `T` with explicit arguments (`args[0]` is the program name).
+pub fn main_with_args<T: Tool>(args: Vec<OsString>) -> ExitCode {
+    // --describe must work without the tool's required arguments.
+    if args.iter().skip(1).any(|a| a == "--describe") {
+        return print_json(&describe::describe::<T>());
+    }
+    let matches = match command::<T>().try_get_matches_from(args) {
+        Ok(m) => m,
+        Err(e) => return clap_exit(T::ID, e),
+    };
+    let parsed = CommonArgs::from_arg_matches(&matches)
+        .and_then(|c| T::Params::from_arg_matches(&matches).map(|p| (c, p)));
+    let (common, params) = match parsed {
+        Ok(p) => p,
+        Err(e) => return clap_exit(T::ID, e),
+    };
+    match execute::<T>(common, &params) {
+        Ok(summary) => print_json(&summary),
+        Err(error) => {
+            eprintln!("stance-{}: error: {error}", T::ID);
+            ExitCode::from(error.exit_code())
+        }
+    }
+}
+
+fn print_json(value: &Value) -> ExitCode {
+    let mut out = std::io::stdout().lock();
+    let written = serde_json::to_writer_pretty(&mut out, value).map_err(std::io::Error::from).and_then(|()| writeln!(out));
+    match written {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(_) => ExitCode::from(1),
+    }
+}
+
+/// Help and version go to stdout with exit 0; usage errors become one line with exit 2.
+fn clap_exit(id: &str, error: clap::Error) -> ExitCode {
+    use clap::error::ErrorKind;
+    match error.kind() {
+        ErrorKind::DisplayHelp | ErrorKind::DisplayVersion | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => {
+            let _ = error.print();
+            ExitCode::SUCCESS
+        }
+        _ => {
+            let rendered = error.render().to_string();
+            let first = rendered.lines().next().unwrap_or("bad arguments").trim();
+            let first = first.strip_prefix("error: ").unwrap_or(first);
+            eprintln!("stance-{id}: error: {first} (see --help)");
+            ExitCode::from(2)
+        }
+    }
+}
+
+/// Validates the common options, runs the tool, stamps provenance and publishes its outputs.
+fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
+    let started = chrono::Utc::now();
+    let clock = Instant::now();
+    let interrupted = Arc::new(AtomicBool::new(false));
+    for signal in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
+        // A second signal ends the process at once; the first lets the run roll back.
+        let _ = signal_hook::flag::register_conditional_shutdown(signal, 130, Arc::clone(&interrupted));
+        let _ = signal_hook::flag::register(signal, Arc::clone(&interrupted));
+    }
+    if common.threads > 0 {
+        // Fails only if a pool already exists (the umbrella runs one tool per process).
+        let _ = rayon::ThreadPoolBuilder::new().num_threads(common.threads).build_global();
+    }
+    let name = common.name.clone().unwrap_or_else(|| T::DEFAULT_NAME.to_owned());
+    gpkg::check_layer_name(&name, "--name")?;
+    let input = match (T::INPUT, &common.input) {
+        (InputUse::Required, None) => {
+            return Err(Error::argument("--input", "missing; give the input file with --input FILE"));
+        }
+        (InputUse::Required, Some(path)) => Some(InputFile::open(path)?),
+        (InputUse::None, _) => None,
+    };
+    let staging = Staging::new(&common.output, common.overwrite)?;
+    let mut run = Run {
+        name,
+        progress: Progress::new(common.quiet),
+        common,
+        input,
+        staging,
+        interrupted: Interrupt(interrupted),
+        extra_inputs: Vec::new(),
+    };
+    let results = T::run(params, &mut run)?;
+    run.progress.finish();
+    run.check_interrupted()?;
+
+    let parameters = {
+        let mut all = serde_json::to_value(&run.common).unwrap_or(Value::Null);
+        if let (Some(all), Ok(Value::Object(own))) = (all.as_object_mut(), serde_json::to_value(params)) {
+            all.remove("describe");
+            all.extend(own);
+        }
+        all
+    };
+    let mut inputs: Vec<Value> = run.input.iter().map(InputFile::to_json).collect();
+    inputs.extend(run.extra_inputs.iter().map(InputFile::to_json));
+    let provenance = Provenance {
+        tool: format!("stance-{}", T::ID),
+        version: crate::VERSION.to_owned(),
+        parameters,
+        inputs,
+        seed: run.common.seed,
+        started_at: started.to_rfc3339_opts(chrono::SecondsFormat::Millis, true),
+        run_time_s: clock.elapsed().as_secs_f64(),
+        results: results.clone(),
+    };
+    let Run { staging, interrupted, .. } = run;
+    let written = staging.publish(&provenance, interrupted.flag())?;
+    Ok(json!({
+        "tool": provenance.tool,
+        "version": provenance.version,
+        "output": provenance.parameters.get("output"),
+        "layers": written,
+        "results": results,
+        "run_time_s": (clock.elapsed().as_secs_f64() * 1000.0).round() / 1000.0,
+    }))
+}
+
+/// An input file with its checksum, taken before it is read.
+#[derive(Debug, Clone)]
+pub struct InputFile {
+    /// Path as given.
+    pub path: PathBuf,
+    /// Layers read from it (filled as the tool reads them).
+    pub layers: Vec<String>,
+    /// SHA-256 of the file's bytes, hex.
+    pub sha256: String,
+}
+
+impl InputFile {
+    /// Checks that `path` is a readable file and hashes it.
+    ///
+    /// # Errors
+    /// [`Error::InputFile`] when it is missing or unreadable.
+    pub fn open(path: &Path) -> Result<Self> {
+        let sha256 = gpkg::sha256_file(path)?;
+        Ok(InputFile { path: path.to_owned(), layers: Vec::new(), sha256 })
+    }
+
+    fn to_json(&self) -> Value {
+        json!({ "path": self.path, "layers": self.layers, "sha256": self.sha256 })
+    }
+}
+
+/// What a running tool sees: its options, its input, its output staging, progress and logs.
+pub struct Run {
+    /// The common options.
+    pub common: CommonArgs,
+    /// Base name of the output layers.
+    pub name: String,
+    /// Progress reporter.
+    pub progress: Progress,
+    input: Option<InputFile>,
+    extra_inputs: Vec<InputFile>,
+    staging: Staging,
+    interrupted: Interrupt,
+}
+
+/// Set once SIGINT or SIGTERM arrives; long loops check it and roll back.
+#[derive(Debug, Clone)]
+pub struct Interrupt(Arc<AtomicBool>);
+
+impl Interrupt {
+    /// Fails with [`Error::Interrupted`] once a signal has arrived.
+    ///
+    /// # Errors
+    /// [`Error::Interrupted`].
+    pub fn check(&self) -> Result<()> {
+        if self.0.load(Ordering::Relaxed) {
+            Err(Error::Interrupted)
+        } else {
+            Ok(())
+        }
+    }
+
+    /// The raw flag, for maths modules that poll an `AtomicBool`.
+    pub fn flag(&self) -> &AtomicBool {
+        &self.0
+    }
+}
+
+impl Run {
+    /// The input file (tools with [`InputUse::Required`] always have one).
+    ///
+    /// # Errors
+    /// [`Error::BadArgument`] if the tool was run without `--input`.
+    pub fn input(&self) -> Result<&Path> {
+        self.input
+            .as_ref()
+            .map(|i| i.path.as_path())
+            .ok_or_else(|| Error::argument("--input", "missing; give the input file with --input FILE"))
+    }
+
+    /// Records that `layer` of the input was read (for provenance, and so that it is never
+    /// replaced when the output is the same file).
+    pub fn note_input_layer(&mut self, layer: &str) {
+        if let Some(input) = &mut self.input {
+            if !input.layers.iter().any(|l| l == layer) {
+                input.layers.push(layer.to_owned());
+            }
+            if gpkg::same_file(&input.path, &self.common.output) {
+                self.staging.protect(layer);
+            }
+        }
+    }
+
+    /// Records another input file (a mask, a weights table in another file…) for provenance.
+    ///
+    /// # Errors
+    /// [`Error::InputFile`] when it cannot be read.
+    pub fn note_extra_input(&mut self, path: &Path, layer: &str) -> Result<()> {
+        let mut file = InputFile::open(path)?;
+        file.layers.push(layer.to_owned());
+        if gpkg::same_file(path, &self.common.output) {
+            self.staging.protect(layer);
+        }
+        self.extra_inputs.push(file);
+        Ok(())
+    }
+
+    /// The output staging area: layers written here appear in `--output` only when the run
+    /// completes.
+    pub fn output(&mut self) -> &mut Staging {
+        &mut self.staging
+    }
+
+    /// The output layer name for `suffix` (`<name>_<suffix>`, or `<name>` for an empty suffix).
+    pub fn layer_name(&self, suffix: &str) -> String {
+        if suffix.is_empty() {
+            self.name.clone()
+        } else {
+            format!("{}_{}", self.name, suffix)
+        }
+    }
+
+    /// A log line on stderr (unless `--quiet`).
+    pub fn log(&self, message: impl AsRef<str>) {
+        if !self.common.quiet {
+            eprintln!("{}", message.as_ref());
+        }
+    }
+
+    /// A log line shown only with `-v`.
+    pub fn debug(&self, message: impl AsRef<str>) {
+        if self.common.verbose && !self.common.quiet {
+            eprintln!("{}", message.as_ref());
+        }
+    }
+
+    /// Fails with [`Error::Interrupted`] once SIGINT or SIGTERM has arrived.
+    ///
+    /// # Errors
+    /// [`Error::Interrupted`].
+    pub fn check_interrupted(&self) -> Result<()> {
+        self.interrupted.check()
+    }
+
+    /// The interrupt flag, for long loops.
+    pub fn interrupt(&self) -> &Interrupt {
+        &self.interrupted
+    }
+
+    /// The output staging with progress and the interrupt flag, for loops that write while
+    /// they report.
+    pub fn writing(&mut self) -> (&mut Staging, &Progress, &Interrupt) {
+        (&mut self.staging, &self.progress, &self.interrupted)
+    }
+}

@@ -1,0 +1,13 @@
+//! stance-core: the tool host, GeoPackage and CRS I/O, and the maths every stance tool shares.
+
+pub mod error;
+pub mod gpkg;
+pub mod grid;
+pub mod host;
+pub mod stance;
+pub mod time;
+
+pub use error::{Error, Result};
+
+/// Version of the toolbox (all crates share it).
+pub const VERSION: &str = env!("CARGO_PKG_VERSION");

@@ -1,0 +1,2 @@
+//! Invented scenario generator.
+pub mod generate;
