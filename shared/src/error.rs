@@ -22,23 +22,45 @@ pub enum Error {
 
     /// A named layer is missing.
     #[error("{}: no layer named '{layer}' (layers present: {available})", path.display())]
-    LayerNotFound { path: PathBuf, layer: String, available: String },
+    LayerNotFound {
+        path: PathBuf,
+        layer: String,
+        available: String,
+    },
 
     /// A layer exists but cannot serve this purpose (wrong geometry type, empty, no CRS…).
     #[error("{}: layer '{layer}': {message}", path.display())]
-    BadLayer { path: PathBuf, layer: String, message: String },
+    BadLayer {
+        path: PathBuf,
+        layer: String,
+        message: String,
+    },
 
     /// A named field is missing from a layer.
     #[error("{}: layer '{layer}' has no field '{field}' (fields present: {available})", path.display())]
-    FieldNotFound { path: PathBuf, layer: String, field: String, available: String },
+    FieldNotFound {
+        path: PathBuf,
+        layer: String,
+        field: String,
+        available: String,
+    },
 
     /// A named column is missing from a CSV file.
     #[error("{}: no column '{field}' (columns present: {available})", path.display())]
-    ColumnNotFound { path: PathBuf, field: String, available: String },
+    ColumnNotFound {
+        path: PathBuf,
+        field: String,
+        available: String,
+    },
 
     /// A field's values cannot be used.
     #[error("{}: layer '{layer}', field '{field}': {message}", path.display())]
-    BadField { path: PathBuf, layer: String, field: String, message: String },
+    BadField {
+        path: PathBuf,
+        layer: String,
+        field: String,
+        message: String,
+    },
 
     /// An output cannot be written where the user asked.
     #[error("{}: {message}", path.display())]
@@ -50,15 +72,24 @@ pub enum Error {
 
     /// GDAL failed while working.
     #[error("{context}: {source}")]
-    Gdal { context: String, source: gdal::errors::GdalError },
+    Gdal {
+        context: String,
+        source: gdal::errors::GdalError,
+    },
 
     /// SQLite failed while working.
     #[error("{context}: {source}")]
-    Sqlite { context: String, source: rusqlite::Error },
+    Sqlite {
+        context: String,
+        source: rusqlite::Error,
+    },
 
     /// An operating-system I/O failure while working.
     #[error("{context}: {source}")]
-    Io { context: String, source: std::io::Error },
+    Io {
+        context: String,
+        source: std::io::Error,
+    },
 
     /// The run was interrupted by a signal; nothing was written.
     #[error("interrupted by a signal; no output was written")]
@@ -93,7 +124,10 @@ impl Error {
 
     /// Shorthand for [`Error::BadArgument`].
     pub fn argument(option: impl Into<String>, message: impl Into<String>) -> Self {
-        Error::BadArgument { option: option.into(), message: message.into() }
+        Error::BadArgument {
+            option: option.into(),
+            message: message.into(),
+        }
     }
 
     /// Wraps a GDAL error with what was being done.

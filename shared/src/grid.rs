@@ -47,7 +47,14 @@ impl Grid {
 
     /// GDAL geotransform: [x_min, cell, 0, y_max, 0, −cell].
     pub fn geo_transform(&self) -> [f64; 6] {
-        [self.x_min, self.cell_m, 0.0, self.y_max(), 0.0, -self.cell_m]
+        [
+            self.x_min,
+            self.cell_m,
+            0.0,
+            self.y_max(),
+            0.0,
+            -self.cell_m,
+        ]
     }
 
     /// The grid described by a north-up GDAL geotransform and a size; `None` if the transform
@@ -58,7 +65,13 @@ impl Grid {
         if rotation_x != 0.0 || rotation_y != 0.0 || !square {
             return None;
         }
-        Some(Grid { x_min, y_min: y_max - rows as f64 * width, cell_m: width, cols, rows })
+        Some(Grid {
+            x_min,
+            y_min: y_max - rows as f64 * width,
+            cell_m: width,
+            cols,
+            rows,
+        })
     }
 }
 
@@ -68,12 +81,27 @@ mod tests {
 
     #[test]
     fn geo_transform_round_trips_and_centres_are_inside() {
-        let grid = Grid { x_min: 1000.0, y_min: -500.0, cell_m: 250.0, cols: 4, rows: 3 };
+        let grid = Grid {
+            x_min: 1000.0,
+            y_min: -500.0,
+            cell_m: 250.0,
+            cols: 4,
+            rows: 3,
+        };
         assert_eq!(grid.y_max(), 250.0);
         assert_eq!(grid.centre(0, 0), (1125.0, 125.0));
         assert_eq!(grid.centre(3, 2), (1875.0, -375.0));
-        assert_eq!(Grid::from_geo_transform(&grid.geo_transform(), 4, 3), Some(grid));
-        assert_eq!(Grid::from_geo_transform(&[0.0, 1.0, 0.1, 0.0, 0.0, -1.0], 1, 1), None);
-        assert_eq!(Grid::from_geo_transform(&[0.0, 1.0, 0.0, 0.0, 0.0, -2.0], 1, 1), None);
+        assert_eq!(
+            Grid::from_geo_transform(&grid.geo_transform(), 4, 3),
+            Some(grid)
+        );
+        assert_eq!(
+            Grid::from_geo_transform(&[0.0, 1.0, 0.1, 0.0, 0.0, -1.0], 1, 1),
+            None
+        );
+        assert_eq!(
+            Grid::from_geo_transform(&[0.0, 1.0, 0.0, 0.0, 0.0, -2.0], 1, 1),
+            None
+        );
     }
 }

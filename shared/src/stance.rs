@@ -81,8 +81,12 @@ impl ClassMap {
             if label.is_empty() {
                 return Err(format!("entry '{entry}' has an empty label"));
             }
-            let class = Stance::from_canonical(class)
-                .ok_or_else(|| format!("entry '{entry}': class '{}' is not oppose, neutral, support, -1, 0 or 1", class.trim()))?;
+            let class = Stance::from_canonical(class).ok_or_else(|| {
+                format!(
+                    "entry '{entry}': class '{}' is not oppose, neutral, support, -1, 0 or 1",
+                    class.trim()
+                )
+            })?;
             if entries.iter().any(|(l, _)| *l == label) {
                 return Err(format!("label '{label}' is given twice"));
             }
@@ -91,7 +95,9 @@ impl ClassMap {
         if entries.is_empty() {
             return Err("no label=class entries".into());
         }
-        Ok(ClassMap { custom: Some(entries) })
+        Ok(ClassMap {
+            custom: Some(entries),
+        })
     }
 
     /// The class of `label`, or `None` for an unknown label.
@@ -109,7 +115,11 @@ impl ClassMap {
     pub fn describe(&self) -> String {
         match &self.custom {
             None => "oppose/neutral/support or -1/0/1 (case-insensitive)".into(),
-            Some(entries) => entries.iter().map(|(l, c)| format!("{l}={c}")).collect::<Vec<_>>().join(", "),
+            Some(entries) => entries
+                .iter()
+                .map(|(l, c)| format!("{l}={c}"))
+                .collect::<Vec<_>>()
+                .join(", "),
         }
     }
 }

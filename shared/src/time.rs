@@ -16,12 +16,21 @@ pub fn parse_utc_seconds(text: &str) -> Option<i64> {
         return Some(t.with_timezone(&Utc).timestamp());
     }
     let normalised = text.replacen(' ', "T", 1);
-    for format in ["%Y-%m-%dT%H:%M:%S%.f%:z", "%Y-%m-%dT%H:%M:%S%.f%z", "%Y-%m-%dT%H:%M%:z", "%Y-%m-%dT%H:%M%z", "%Y%m%dT%H%M%S%z"] {
+    for format in [
+        "%Y-%m-%dT%H:%M:%S%.f%:z",
+        "%Y-%m-%dT%H:%M:%S%.f%z",
+        "%Y-%m-%dT%H:%M%:z",
+        "%Y-%m-%dT%H:%M%z",
+        "%Y%m%dT%H%M%S%z",
+    ] {
         if let Ok(t) = DateTime::parse_from_str(&normalised, format) {
             return Some(t.with_timezone(&Utc).timestamp());
         }
     }
-    let zulu = normalised.strip_suffix('Z').or_else(|| normalised.strip_suffix('z')).unwrap_or(&normalised);
+    let zulu = normalised
+        .strip_suffix('Z')
+        .or_else(|| normalised.strip_suffix('z'))
+        .unwrap_or(&normalised);
     for format in ["%Y-%m-%dT%H:%M:%S%.f", "%Y-%m-%dT%H:%M", "%Y%m%dT%H%M%S"] {
         if let Ok(t) = NaiveDateTime::parse_from_str(zulu, format) {
             return Some(t.and_utc().timestamp());
@@ -58,9 +67,18 @@ mod tests {
         assert_eq!(parse_utc_seconds("2026-03-04T05:06:07Z"), Some(with_time));
         assert_eq!(parse_utc_seconds("2026-03-04t05:06:07z"), Some(with_time));
         assert_eq!(parse_utc_seconds("2026-03-04 05:06:07"), Some(with_time));
-        assert_eq!(parse_utc_seconds("2026-03-04T05:06:07.250Z"), Some(with_time));
-        assert_eq!(parse_utc_seconds("2026-03-04T07:06:07+02:00"), Some(with_time));
-        assert_eq!(parse_utc_seconds("2026-03-04T07:06:07+0200"), Some(with_time));
+        assert_eq!(
+            parse_utc_seconds("2026-03-04T05:06:07.250Z"),
+            Some(with_time)
+        );
+        assert_eq!(
+            parse_utc_seconds("2026-03-04T07:06:07+02:00"),
+            Some(with_time)
+        );
+        assert_eq!(
+            parse_utc_seconds("2026-03-04T07:06:07+0200"),
+            Some(with_time)
+        );
         assert_eq!(parse_utc_seconds("2026-03-04T05:06Z"), Some(with_time - 7));
         assert_eq!(parse_utc_seconds("20260304T050607Z"), Some(with_time));
         assert_eq!(format_utc(with_time), "2026-03-04T05:06:07Z");
@@ -68,7 +86,15 @@ mod tests {
 
     #[test]
     fn rejects_the_rest() {
-        for bad in ["", "yesterday", "2026-13-01", "2026-02-30", "04/03/2026", "2026-03-04T25:00:00Z", "1772582400"] {
+        for bad in [
+            "",
+            "yesterday",
+            "2026-13-01",
+            "2026-02-30",
+            "04/03/2026",
+            "2026-03-04T25:00:00Z",
+            "1772582400",
+        ] {
             assert_eq!(parse_utc_seconds(bad), None, "{bad}");
         }
     }

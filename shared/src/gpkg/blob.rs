@@ -15,12 +15,20 @@ pub enum PointBlob {
 
 fn read_u32(bytes: &[u8], little: bool) -> Option<u32> {
     let array: [u8; 4] = bytes.get(..4)?.try_into().ok()?;
-    Some(if little { u32::from_le_bytes(array) } else { u32::from_be_bytes(array) })
+    Some(if little {
+        u32::from_le_bytes(array)
+    } else {
+        u32::from_be_bytes(array)
+    })
 }
 
 fn read_f64(bytes: &[u8], little: bool) -> Option<f64> {
     let array: [u8; 8] = bytes.get(..8)?.try_into().ok()?;
-    Some(if little { f64::from_le_bytes(array) } else { f64::from_be_bytes(array) })
+    Some(if little {
+        f64::from_le_bytes(array)
+    } else {
+        f64::from_be_bytes(array)
+    })
 }
 
 /// Decodes a point from a GeoPackage geometry blob.
@@ -40,12 +48,20 @@ pub fn decode_point(blob: &[u8]) -> PointBlob {
         _ => return PointBlob::Invalid,
     };
     let empty = flags & 0b1_0000 != 0;
-    let Some(wkb) = blob.get(8 + envelope_len..) else { return PointBlob::Invalid };
+    let Some(wkb) = blob.get(8 + envelope_len..) else {
+        return PointBlob::Invalid;
+    };
     let Some(&order) = wkb.first() else {
-        return if empty { PointBlob::Empty } else { PointBlob::Invalid };
+        return if empty {
+            PointBlob::Empty
+        } else {
+            PointBlob::Invalid
+        };
     };
     let little = order == 1;
-    let Some(code) = read_u32(&wkb[1..], little) else { return PointBlob::Invalid };
+    let Some(code) = read_u32(&wkb[1..], little) else {
+        return PointBlob::Invalid;
+    };
     // ISO codes add 1000/2000/3000 for Z/M/ZM; extended WKB sets high bits.
     let base = (code & 0x0fff_ffff) % 1000;
     if base != 1 {
@@ -85,8 +101,14 @@ mod tests {
 
     #[test]
     fn decodes_points_with_and_without_envelope() {
-        assert_eq!(decode_point(&blob(1, &[], &wkb_point(1, 2.5, -3.0))), PointBlob::Point(2.5, -3.0));
-        assert_eq!(decode_point(&blob(3, &[2.5, 2.5, -3.0, -3.0], &wkb_point(1, 2.5, -3.0))), PointBlob::Point(2.5, -3.0));
+        assert_eq!(
+            decode_point(&blob(1, &[], &wkb_point(1, 2.5, -3.0))),
+            PointBlob::Point(2.5, -3.0)
+        );
+        assert_eq!(
+            decode_point(&blob(3, &[2.5, 2.5, -3.0, -3.0], &wkb_point(1, 2.5, -3.0))),
+            PointBlob::Point(2.5, -3.0)
+        );
         // Point Z (ISO 1001): x and y are still the first two ordinates.
         let mut z = wkb_point(1001, 7.0, 8.0);
         z.extend_from_slice(&9.0f64.to_le_bytes());
@@ -104,9 +126,18 @@ mod tests {
 
     #[test]
     fn empty_other_and_invalid() {
-        assert_eq!(decode_point(&blob(0b1_0001, &[], &wkb_point(1, f64::NAN, f64::NAN))), PointBlob::Empty);
-        assert_eq!(decode_point(&blob(1, &[], &wkb_point(1, f64::NAN, f64::NAN))), PointBlob::Empty);
-        assert_eq!(decode_point(&blob(1, &[], &wkb_point(3, 0.0, 0.0))), PointBlob::Other(3));
+        assert_eq!(
+            decode_point(&blob(0b1_0001, &[], &wkb_point(1, f64::NAN, f64::NAN))),
+            PointBlob::Empty
+        );
+        assert_eq!(
+            decode_point(&blob(1, &[], &wkb_point(1, f64::NAN, f64::NAN))),
+            PointBlob::Empty
+        );
+        assert_eq!(
+            decode_point(&blob(1, &[], &wkb_point(3, 0.0, 0.0))),
+            PointBlob::Other(3)
+        );
         assert_eq!(decode_point(b"XX\0\x01\0\0\0\0"), PointBlob::Invalid);
         assert_eq!(decode_point(&blob(1, &[], &[1, 1, 0])), PointBlob::Invalid);
     }

@@ -35,8 +35,15 @@ pub fn wgs84() -> Result<SpatialRef> {
 /// # Errors
 /// [`Error::Crs`] for a centre outside the valid range.
 pub fn laea_centred(lon: f64, lat: f64) -> Result<SpatialRef> {
-    if !(lon.is_finite() && lat.is_finite() && (-180.0..=180.0).contains(&lon) && (-90.0..=90.0).contains(&lat)) {
-        return Err(Error::Crs { definition: format!("LAEA centre {lon}, {lat}"), message: "centre out of range".into() });
+    if !(lon.is_finite()
+        && lat.is_finite()
+        && (-180.0..=180.0).contains(&lon)
+        && (-90.0..=90.0).contains(&lat))
+    {
+        return Err(Error::Crs {
+            definition: format!("LAEA centre {lon}, {lat}"),
+            message: "centre out of range".into(),
+        });
     }
     let round = |v: f64| (v * 1e4).round() / 1e4;
     let proj = format!(
@@ -69,7 +76,11 @@ pub fn label(srs: &SpatialRef) -> String {
 ///
 /// # Errors
 /// [`Error::Crs`] for an unusable `--crs`.
-pub fn working(user: Option<&str>, source: &SpatialRef, centre: impl FnOnce() -> Result<(f64, f64)>) -> Result<SpatialRef> {
+pub fn working(
+    user: Option<&str>,
+    source: &SpatialRef,
+    centre: impl FnOnce() -> Result<(f64, f64)>,
+) -> Result<SpatialRef> {
     if let Some(definition) = user {
         let srs = parse(definition)?;
         if !srs.is_projected() {
@@ -116,10 +127,12 @@ pub fn transform(from: &SpatialRef, to: &SpatialRef, xs: &mut [f64], ys: &mut [f
     let mut zs = vec![0.0; CHUNK.min(xs.len())];
     for (x, y) in xs.chunks_mut(CHUNK).zip(ys.chunks_mut(CHUNK)) {
         let z = &mut zs[..x.len()];
-        transform.transform_coords(x, y, z).map_err(|e| Error::Crs {
-            definition: label(to),
-            message: format!("transforming from {} failed ({e})", label(from)),
-        })?;
+        transform
+            .transform_coords(x, y, z)
+            .map_err(|e| Error::Crs {
+                definition: label(to),
+                message: format!("transforming from {} failed ({e})", label(from)),
+            })?;
     }
     Ok(())
 }
@@ -129,8 +142,16 @@ pub fn transform(from: &SpatialRef, to: &SpatialRef, xs: &mut [f64], ys: &mut [f
 /// # Errors
 /// [`Error::Crs`] when the points cannot be taken to WGS 84.
 pub fn lonlat_centre(source: &SpatialRef, xs: &[f64], ys: &[f64]) -> Result<(f64, f64)> {
-    let finite = xs.iter().zip(ys).filter(|(x, y)| x.is_finite() && y.is_finite());
-    let (mut x0, mut x1, mut y0, mut y1) = (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY);
+    let finite = xs
+        .iter()
+        .zip(ys)
+        .filter(|(x, y)| x.is_finite() && y.is_finite());
+    let (mut x0, mut x1, mut y0, mut y1) = (
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    );
     for (x, y) in finite {
         x0 = x0.min(*x);
         x1 = x1.max(*x);
@@ -138,7 +159,10 @@ pub fn lonlat_centre(source: &SpatialRef, xs: &[f64], ys: &[f64]) -> Result<(f64
         y1 = y1.max(*y);
     }
     if !x0.is_finite() {
-        return Err(Error::Crs { definition: label(source), message: "no finite coordinates to centre a projection on".into() });
+        return Err(Error::Crs {
+            definition: label(source),
+            message: "no finite coordinates to centre a projection on".into(),
+        });
     }
     let mut cx = [(x0 + x1) / 2.0];
     let mut cy = [(y0 + y1) / 2.0];

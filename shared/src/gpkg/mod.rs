@@ -58,9 +58,15 @@ impl Provenance {
 /// # Errors
 /// [`Error::InputFile`] when the file cannot be read.
 pub fn sha256_file(path: &Path) -> Result<String> {
-    let open_error = |e: std::io::Error| Error::InputFile { path: path.to_owned(), reason: e.to_string() };
+    let open_error = |e: std::io::Error| Error::InputFile {
+        path: path.to_owned(),
+        reason: e.to_string(),
+    };
     if path.is_dir() {
-        return Err(Error::InputFile { path: path.to_owned(), reason: "is a directory, expected a file".into() });
+        return Err(Error::InputFile {
+            path: path.to_owned(),
+            reason: "is a directory, expected a file".into(),
+        });
     }
     let mut file = std::fs::File::open(path).map_err(open_error)?;
     let mut hasher = Sha256::new();
@@ -89,7 +95,10 @@ pub fn check_layer_name(name: &str, option: &str) -> Result<()> {
         Some("is longer than 200 characters")
     } else if name.chars().any(char::is_control) {
         Some("contains control characters")
-    } else if ["gpkg_", "rtree_", "sqlite_", "gpkgext_"].iter().any(|p| lower.starts_with(p)) {
+    } else if ["gpkg_", "rtree_", "sqlite_", "gpkgext_"]
+        .iter()
+        .any(|p| lower.starts_with(p))
+    {
         Some("is reserved for GeoPackage/SQLite system tables (gpkg_*, gpkgext_*, rtree_*, sqlite_*)")
     } else {
         None
@@ -111,7 +120,10 @@ pub fn quote_identifier(name: &str) -> String {
 /// [`Error::InputFile`] if missing, [`Error::NotGeoPackage`] if GDAL cannot open it as one.
 pub fn open_geopackage(path: &Path) -> Result<gdal::Dataset> {
     if !path.exists() {
-        return Err(Error::InputFile { path: path.to_owned(), reason: "no such file".into() });
+        return Err(Error::InputFile {
+            path: path.to_owned(),
+            reason: "no such file".into(),
+        });
     }
     let options = gdal::DatasetOptions {
         open_flags: gdal::GdalOpenFlags::GDAL_OF_READONLY
@@ -134,11 +146,17 @@ pub fn list_tables(path: &Path) -> Result<Vec<(String, String)>> {
     let connection = open_sqlite_read(path)?;
     let mut statement = connection
         .prepare("SELECT table_name, data_type FROM gpkg_contents ORDER BY table_name")
-        .map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+        .map_err(|e| Error::NotGeoPackage {
+            path: path.to_owned(),
+            reason: e.to_string(),
+        })?;
     let rows = statement
         .query_map([], |r| Ok((r.get::<_, String>(0)?, r.get::<_, String>(1)?)))
         .and_then(|rows| rows.collect::<std::result::Result<Vec<_>, _>>())
-        .map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+        .map_err(|e| Error::NotGeoPackage {
+            path: path.to_owned(),
+            reason: e.to_string(),
+        })?;
     Ok(rows)
 }
 
@@ -148,9 +166,15 @@ pub fn list_tables(path: &Path) -> Result<Vec<(String, String)>> {
 /// [`Error::InputFile`] if missing, [`Error::NotGeoPackage`] if it is not a GeoPackage.
 pub fn open_sqlite_read(path: &Path) -> Result<rusqlite::Connection> {
     if !path.exists() {
-        return Err(Error::InputFile { path: path.to_owned(), reason: "no such file".into() });
+        return Err(Error::InputFile {
+            path: path.to_owned(),
+            reason: "no such file".into(),
+        });
     }
-    let not_gpkg = |reason: String| Error::NotGeoPackage { path: path.to_owned(), reason };
+    let not_gpkg = |reason: String| Error::NotGeoPackage {
+        path: path.to_owned(),
+        reason,
+    };
     let connection = rusqlite::Connection::open_with_flags(
         path,
         rusqlite::OpenFlags::SQLITE_OPEN_READ_ONLY | rusqlite::OpenFlags::SQLITE_OPEN_NO_MUTEX,
@@ -163,7 +187,9 @@ pub fn open_sqlite_read(path: &Path) -> Result<rusqlite::Connection> {
     );
     match has_contents {
         Ok(1) => Ok(connection),
-        Ok(_) => Err(not_gpkg("it has no gpkg_contents table; expected an OGC GeoPackage".into())),
+        Ok(_) => Err(not_gpkg(
+            "it has no gpkg_contents table; expected an OGC GeoPackage".into(),
+        )),
         Err(e) => Err(not_gpkg(format!("{e}; expected an OGC GeoPackage"))),
     }
 }

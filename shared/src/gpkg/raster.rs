@@ -34,9 +34,14 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
     let ctx = || format!("writing surface '{name}'");
     let grid = surface.grid;
     if surface.values.len() != grid.len() {
-        return Err(Error::Failed(format!("surface '{name}': {} values for a grid of {} cells", surface.values.len(), grid.len())));
+        return Err(Error::Failed(format!(
+            "surface '{name}': {} values for a grid of {} cells",
+            surface.values.len(),
+            grid.len()
+        )));
     }
-    let driver = DriverManager::get_driver_by_name("GPKG").map_err(Error::gdal("finding GDAL's GPKG driver"))?;
+    let driver = DriverManager::get_driver_by_name("GPKG")
+        .map_err(Error::gdal("finding GDAL's GPKG driver"))?;
     let mut options = vec![
         format!("RASTER_TABLE={name}"),
         "TILE_FORMAT=TIFF".to_owned(),
@@ -54,18 +59,29 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
     let mut dataset = driver
         .create_with_band_type_with_options::<f32, _>(path, grid.cols, grid.rows, 1, &options)
         .map_err(Error::gdal(ctx()))?;
-    dataset.set_geo_transform(&grid.geo_transform()).map_err(Error::gdal(ctx()))?;
-    dataset.set_spatial_ref(surface.srs).map_err(Error::gdal(ctx()))?;
+    dataset
+        .set_geo_transform(&grid.geo_transform())
+        .map_err(Error::gdal(ctx()))?;
+    dataset
+        .set_spatial_ref(surface.srs)
+        .map_err(Error::gdal(ctx()))?;
     let mut band = dataset.rasterband(1).map_err(Error::gdal(ctx()))?;
     // GDAL's GeoPackage driver stores the value but may report an error with an empty message
     // (DESIGN.md); what counts is that the value reads back.
     let _ = band.set_no_data_value(Some(f64::from(NODATA)));
     if band.no_data_value() != Some(f64::from(NODATA)) {
-        return Err(Error::Failed(format!("surface '{name}': nodata value was not stored")));
+        return Err(Error::Failed(format!(
+            "surface '{name}': nodata value was not stored"
+        )));
     }
-    let data: Vec<f32> = surface.values.iter().map(|v| if v.is_finite() { *v } else { NODATA }).collect();
+    let data: Vec<f32> = surface
+        .values
+        .iter()
+        .map(|v| if v.is_finite() { *v } else { NODATA })
+        .collect();
     let mut buffer = Buffer::new((grid.cols, grid.rows), data);
-    band.write((0, 0), (grid.cols, grid.rows), &mut buffer).map_err(Error::gdal(ctx()))?;
+    band.write((0, 0), (grid.cols, grid.rows), &mut buffer)
+        .map_err(Error::gdal(ctx()))?;
     drop(band);
     dataset.close().map_err(Error::gdal(ctx()))?;
     Ok(())
@@ -89,15 +105,30 @@ pub struct SurfaceData {
 /// single-band north-up grid.
 pub fn read(path: &Path, name: &str) -> Result<SurfaceData> {
     let tables = super::list_tables(path)?;
-    if !tables.iter().any(|(t, kind)| t == name && kind.contains("gridded")) {
-        let available: Vec<&str> = tables.iter().filter(|(_, k)| k.contains("gridded")).map(|(t, _)| t.as_str()).collect();
+    if !tables
+        .iter()
+        .any(|(t, kind)| t == name && kind.contains("gridded"))
+    {
+        let available: Vec<&str> = tables
+            .iter()
+            .filter(|(_, k)| k.contains("gridded"))
+            .map(|(t, _)| t.as_str())
+            .collect();
         return Err(Error::LayerNotFound {
             path: path.to_owned(),
             layer: name.to_owned(),
-            available: if available.is_empty() { "no surfaces".into() } else { available.join(", ") },
+            available: if available.is_empty() {
+                "no surfaces".into()
+            } else {
+                available.join(", ")
+            },
         });
     }
-    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: name.to_owned(), message };
+    let bad = |message: String| Error::BadLayer {
+        path: path.to_owned(),
+        layer: name.to_owned(),
+        message,
+    };
     let dataset = Dataset::open_ex(
         format!("GPKG:{}:{}", path.display(), name),
         gdal::DatasetOptions {
@@ -108,10 +139,13 @@ pub fn read(path: &Path, name: &str) -> Result<SurfaceData> {
     .map_err(|e| bad(e.to_string()))?;
     let (cols, rows) = dataset.raster_size();
     let transform = dataset.geo_transform().map_err(|e| bad(e.to_string()))?;
-    let grid = Grid::from_geo_transform(&transform, cols, rows).ok_or_else(|| bad("not a north-up grid of square cells".into()))?;
+    let grid = Grid::from_geo_transform(&transform, cols, rows)
+        .ok_or_else(|| bad("not a north-up grid of square cells".into()))?;
     let band = dataset.rasterband(1).map_err(|e| bad(e.to_string()))?;
     let nodata = band.no_data_value();
-    let buffer = band.read_as::<f32>((0, 0), (cols, rows), (cols, rows), None).map_err(|e| bad(e.to_string()))?;
+    let buffer = band
+        .read_as::<f32>((0, 0), (cols, rows), (cols, rows), None)
+        .map_err(|e| bad(e.to_string()))?;
     let (_, mut values) = buffer.into_shape_and_vec();
     if let Some(nodata) = nodata {
         for v in &mut values {
@@ -120,5 +154,9 @@ pub fn read(path: &Path, name: &str) -> Result<SurfaceData> {
             }
         }
     }
-    Ok(SurfaceData { grid, values, crs_wkt: dataset.projection() })
+    Ok(SurfaceData {
+        grid,
+        values,
+        crs_wkt: dataset.projection(),
+    })
 }

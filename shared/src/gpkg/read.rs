@@ -82,10 +82,22 @@ fn feature_layers(connection: &rusqlite::Connection) -> rusqlite::Result<Vec<(St
 }
 
 /// Resolves the layer to read: the one named, or the only layer of `geometry` type.
-fn resolve_layer(path: &Path, connection: &rusqlite::Connection, wanted: Option<&str>, geometry: &[&str]) -> Result<(String, String)> {
-    let layers = feature_layers(connection).map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+fn resolve_layer(
+    path: &Path,
+    connection: &rusqlite::Connection,
+    wanted: Option<&str>,
+    geometry: &[&str],
+) -> Result<(String, String)> {
+    let layers = feature_layers(connection).map_err(|e| Error::NotGeoPackage {
+        path: path.to_owned(),
+        reason: e.to_string(),
+    })?;
     let list = |filter: &dyn Fn(&str) -> bool| {
-        let names: Vec<&str> = layers.iter().filter(|(_, g)| filter(g)).map(|(n, _)| n.as_str()).collect();
+        let names: Vec<&str> = layers
+            .iter()
+            .filter(|(_, g)| filter(g))
+            .map(|(n, _)| n.as_str())
+            .collect();
         if names.is_empty() {
             "none".to_owned()
         } else {
@@ -98,15 +110,26 @@ fn resolve_layer(path: &Path, connection: &rusqlite::Connection, wanted: Option<
             .find(|(n, _)| n == name)
             .or_else(|| layers.iter().find(|(n, _)| n.eq_ignore_ascii_case(name)))
             .cloned()
-            .ok_or_else(|| Error::LayerNotFound { path: path.to_owned(), layer: name.to_owned(), available: list(&|_| true) }),
+            .ok_or_else(|| Error::LayerNotFound {
+                path: path.to_owned(),
+                layer: name.to_owned(),
+                available: list(&|_| true),
+            }),
         None => {
-            let candidates: Vec<&(String, String)> =
-                layers.iter().filter(|(_, g)| geometry.iter().any(|w| g.eq_ignore_ascii_case(w))).collect();
+            let candidates: Vec<&(String, String)> = layers
+                .iter()
+                .filter(|(_, g)| geometry.iter().any(|w| g.eq_ignore_ascii_case(w)))
+                .collect();
             match candidates.as_slice() {
                 [one] => Ok((*one).clone()),
                 [] => Err(Error::argument(
                     "--layer",
-                    format!("{} has no {} layer (layers: {})", path.display(), geometry[0].to_lowercase(), list(&|_| true)),
+                    format!(
+                        "{} has no {} layer (layers: {})",
+                        path.display(),
+                        geometry[0].to_lowercase(),
+                        list(&|_| true)
+                    ),
                 )),
                 _ => Err(Error::argument(
                     "--layer",
@@ -124,7 +147,11 @@ fn resolve_layer(path: &Path, connection: &rusqlite::Connection, wanted: Option<
 
 /// The CRS of layer `layer` from `gpkg_spatial_ref_sys`, in traditional axis order.
 fn layer_srs(path: &Path, connection: &rusqlite::Connection, layer: &str) -> Result<SpatialRef> {
-    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: layer.to_owned(), message };
+    let bad = |message: String| Error::BadLayer {
+        path: path.to_owned(),
+        layer: layer.to_owned(),
+        message,
+    };
     let (srs_id, organization, code, definition): (i64, String, i64, String) = connection
         .query_row(
             "SELECT g.srs_id, s.organization, s.organization_coordsys_id, s.definition FROM gpkg_geometry_columns g
@@ -146,19 +173,37 @@ fn layer_srs(path: &Path, connection: &rusqlite::Connection, layer: &str) -> Res
     crs::parse(&definition).map_err(|e| bad(format!("its CRS cannot be used: {e}")))
 }
 
-fn table_columns(path: &Path, connection: &rusqlite::Connection, layer: &str) -> Result<Vec<(String, bool)>> {
+fn table_columns(
+    path: &Path,
+    connection: &rusqlite::Connection,
+    layer: &str,
+) -> Result<Vec<(String, bool)>> {
     let mut statement = connection
         .prepare(&format!("PRAGMA table_info({})", q(layer)))
-        .map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+        .map_err(|e| Error::NotGeoPackage {
+            path: path.to_owned(),
+            reason: e.to_string(),
+        })?;
     let rows = statement
-        .query_map([], |r| Ok((r.get::<_, String>(1)?, r.get::<_, i64>(5)? > 0)))
+        .query_map([], |r| {
+            Ok((r.get::<_, String>(1)?, r.get::<_, i64>(5)? > 0))
+        })
         .and_then(|rows| rows.collect::<std::result::Result<Vec<_>, _>>())
-        .map_err(|e| Error::NotGeoPackage { path: path.to_owned(), reason: e.to_string() })?;
+        .map_err(|e| Error::NotGeoPackage {
+            path: path.to_owned(),
+            reason: e.to_string(),
+        })?;
     Ok(rows)
 }
 
 /// Finds `field` among `columns` (exact, then case-insensitive).
-fn find_field<'c>(path: &Path, layer: &str, columns: &'c [(String, bool)], field: &str, skip: &[&str]) -> Result<&'c str> {
+fn find_field<'c>(
+    path: &Path,
+    layer: &str,
+    columns: &'c [(String, bool)],
+    field: &str,
+    skip: &[&str],
+) -> Result<&'c str> {
     columns
         .iter()
         .find(|(c, _)| c == field)
@@ -187,25 +232,49 @@ fn find_field<'c>(path: &Path, layer: &str, columns: &'c [(String, bool)], field
 /// # Errors
 /// Missing file, layer or field; a layer that is not points, has no CRS or no features; a
 /// non-numeric value in a [`FieldWant::Real`] field.
-pub fn read_points(path: &Path, layer: Option<&str>, fields: &[(&str, FieldWant)], user_crs: Option<&str>) -> Result<PointLayer> {
+pub fn read_points(
+    path: &Path,
+    layer: Option<&str>,
+    fields: &[(&str, FieldWant)],
+    user_crs: Option<&str>,
+) -> Result<PointLayer> {
     let connection = super::open_sqlite_read(path)?;
     let (layer, geometry_type) = resolve_layer(path, &connection, layer, &["POINT"])?;
-    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: layer.clone(), message };
+    let bad = |message: String| Error::BadLayer {
+        path: path.to_owned(),
+        layer: layer.clone(),
+        message,
+    };
     if geometry_type.is_empty() {
         return Err(bad("has no geometry; expected a point layer".into()));
     }
-    if !["POINT", "GEOMETRY"].iter().any(|g| geometry_type.eq_ignore_ascii_case(g)) {
-        return Err(bad(format!("has {geometry_type} geometries; expected points")));
+    if !["POINT", "GEOMETRY"]
+        .iter()
+        .any(|g| geometry_type.eq_ignore_ascii_case(g))
+    {
+        return Err(bad(format!(
+            "has {geometry_type} geometries; expected points"
+        )));
     }
     let source_srs = layer_srs(path, &connection, &layer)?;
     let geometry_column: String = connection
-        .query_row("SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?1", [&layer], |r| r.get(0))
+        .query_row(
+            "SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?1",
+            [&layer],
+            |r| r.get(0),
+        )
         .map_err(|e| bad(e.to_string()))?;
     let columns = table_columns(path, &connection, &layer)?;
-    let primary_key = columns.iter().find(|(_, pk)| *pk).map(|(c, _)| c.clone()).unwrap_or_else(|| "rowid".into());
+    let primary_key = columns
+        .iter()
+        .find(|(_, pk)| *pk)
+        .map(|(c, _)| c.clone())
+        .unwrap_or_else(|| "rowid".into());
     let mut selected = Vec::with_capacity(fields.len());
     for (field, _) in fields {
-        selected.push(find_field(path, &layer, &columns, field, &[geometry_column.as_str()])?.to_owned());
+        selected.push(
+            find_field(path, &layer, &columns, field, &[geometry_column.as_str()])?.to_owned(),
+        );
     }
     let mut sql = format!("SELECT {}, {}", q(&primary_key), q(&geometry_column));
     for s in &selected {
@@ -218,12 +287,19 @@ pub fn read_points(path: &Path, layer: Option<&str>, fields: &[(&str, FieldWant)
 
     let mut fids = Vec::new();
     let (mut x, mut y) = (Vec::new(), Vec::new());
-    let mut builders: Vec<ColumnBuilder> = fields.iter().map(|(_, want)| ColumnBuilder::new(*want)).collect();
+    let mut builders: Vec<ColumnBuilder> = fields
+        .iter()
+        .map(|(_, want)| ColumnBuilder::new(*want))
+        .collect();
     while let Some(row) = rows.next().map_err(|e| bad(e.to_string()))? {
         let fid: i64 = row.get(0).map_err(|e| bad(e.to_string()))?;
         let geometry = row.get_ref(1).map_err(|e| bad(e.to_string()))?;
         let point = match geometry {
-            ValueRef::Null => return Err(bad(format!("feature {fid} has no geometry (NULL); every record needs a point"))),
+            ValueRef::Null => {
+                return Err(bad(format!(
+                    "feature {fid} has no geometry (NULL); every record needs a point"
+                )))
+            }
             ValueRef::Blob(b) => decode_point(b),
             _ => PointBlob::Invalid,
         };
@@ -232,10 +308,26 @@ pub fn read_points(path: &Path, layer: Option<&str>, fields: &[(&str, FieldWant)
                 x.push(px);
                 y.push(py);
             }
-            PointBlob::Point(..) => return Err(bad(format!("feature {fid} has a non-finite coordinate (NaN or infinity)"))),
-            PointBlob::Empty => return Err(bad(format!("feature {fid} has an empty geometry; every record needs a point"))),
-            PointBlob::Other(code) => return Err(bad(format!("feature {fid} is not a point (WKB type {code}); expected points"))),
-            PointBlob::Invalid => return Err(bad(format!("feature {fid} has an unreadable geometry blob"))),
+            PointBlob::Point(..) => {
+                return Err(bad(format!(
+                    "feature {fid} has a non-finite coordinate (NaN or infinity)"
+                )))
+            }
+            PointBlob::Empty => {
+                return Err(bad(format!(
+                    "feature {fid} has an empty geometry; every record needs a point"
+                )))
+            }
+            PointBlob::Other(code) => {
+                return Err(bad(format!(
+                    "feature {fid} is not a point (WKB type {code}); expected points"
+                )))
+            }
+            PointBlob::Invalid => {
+                return Err(bad(format!(
+                    "feature {fid} has an unreadable geometry blob"
+                )))
+            }
         }
         fids.push(fid);
         for (i, builder) in builders.iter_mut().enumerate() {
@@ -251,14 +343,32 @@ pub fn read_points(path: &Path, layer: Option<&str>, fields: &[(&str, FieldWant)
     if fids.is_empty() {
         return Err(bad("has no features".into()));
     }
-    let srs = crs::working(user_crs, &source_srs, || crs::lonlat_centre(&source_srs, &x, &y))?;
+    let srs = crs::working(user_crs, &source_srs, || {
+        crs::lonlat_centre(&source_srs, &x, &y)
+    })?;
     if source_srs.to_wkt().ok() != srs.to_wkt().ok() {
         crs::transform(&source_srs, &srs, &mut x, &mut y)?;
     }
-    if let Some(i) = x.iter().zip(&y).position(|(a, b)| !a.is_finite() || !b.is_finite()) {
-        return Err(bad(format!("feature {} cannot be projected to the working CRS {}", fids[i], crs::label(&srs))));
+    if let Some(i) = x
+        .iter()
+        .zip(&y)
+        .position(|(a, b)| !a.is_finite() || !b.is_finite())
+    {
+        return Err(bad(format!(
+            "feature {} cannot be projected to the working CRS {}",
+            fids[i],
+            crs::label(&srs)
+        )));
     }
-    Ok(PointLayer { layer, fids, x, y, columns: builders.into_iter().map(ColumnBuilder::finish).collect(), srs, source_srs })
+    Ok(PointLayer {
+        layer,
+        fids,
+        x,
+        y,
+        columns: builders.into_iter().map(ColumnBuilder::finish).collect(),
+        srs,
+        source_srs,
+    })
 }
 
 enum ColumnBuilder {
@@ -352,10 +462,25 @@ pub struct PolygonLayer {
 /// NULL or empty geometry.
 pub fn read_polygons(path: &Path, layer: Option<&str>, fields: &[&str]) -> Result<PolygonLayer> {
     let connection = super::open_sqlite_read(path)?;
-    let (layer, geometry_type) = resolve_layer(path, &connection, layer, &["MULTIPOLYGON", "POLYGON"])?;
-    let bad = |message: String| Error::BadLayer { path: path.to_owned(), layer: layer.clone(), message };
-    if !["POLYGON", "MULTIPOLYGON", "GEOMETRY"].iter().any(|g| geometry_type.eq_ignore_ascii_case(g)) {
-        return Err(bad(format!("has {} geometries; expected polygons", if geometry_type.is_empty() { "no" } else { &geometry_type })));
+    let (layer, geometry_type) =
+        resolve_layer(path, &connection, layer, &["MULTIPOLYGON", "POLYGON"])?;
+    let bad = |message: String| Error::BadLayer {
+        path: path.to_owned(),
+        layer: layer.clone(),
+        message,
+    };
+    if !["POLYGON", "MULTIPOLYGON", "GEOMETRY"]
+        .iter()
+        .any(|g| geometry_type.eq_ignore_ascii_case(g))
+    {
+        return Err(bad(format!(
+            "has {} geometries; expected polygons",
+            if geometry_type.is_empty() {
+                "no"
+            } else {
+                &geometry_type
+            }
+        )));
     }
     let srs = layer_srs(path, &connection, &layer)?;
     let columns = table_columns(path, &connection, &layer)?;
@@ -365,29 +490,56 @@ pub fn read_polygons(path: &Path, layer: Option<&str>, fields: &[&str]) -> Resul
     }
     drop(connection);
     let dataset = super::open_geopackage(path)?;
-    let mut gdal_layer = dataset.layer_by_name(&layer).map_err(|e| bad(e.to_string()))?;
+    let mut gdal_layer = dataset
+        .layer_by_name(&layer)
+        .map_err(|e| bad(e.to_string()))?;
     let indices: Vec<usize> = names
         .iter()
-        .map(|n| gdal_layer.defn().field_index(n).map_err(|e| bad(e.to_string())))
+        .map(|n| {
+            gdal_layer
+                .defn()
+                .field_index(n)
+                .map_err(|e| bad(e.to_string()))
+        })
         .collect::<Result<_>>()?;
-    let mut out = PolygonLayer { layer: layer.clone(), fids: Vec::new(), polygons: Vec::new(), fields: vec![Vec::new(); names.len()], srs };
+    let mut out = PolygonLayer {
+        layer: layer.clone(),
+        fids: Vec::new(),
+        polygons: Vec::new(),
+        fields: vec![Vec::new(); names.len()],
+        srs,
+    };
     for feature in gdal_layer.features() {
         let fid = feature.fid().map(|f| f as i64).unwrap_or(-1);
-        let geometry = feature.geometry().ok_or_else(|| bad(format!("feature {fid} has no geometry (NULL)")))?;
+        let geometry = feature
+            .geometry()
+            .ok_or_else(|| bad(format!("feature {fid} has no geometry (NULL)")))?;
         if geometry.is_empty() {
             return Err(bad(format!("feature {fid} has an empty geometry")));
         }
-        let converted: geo_types::Geometry<f64> =
-            geometry.try_into().map_err(|e: gdal::errors::GdalError| bad(format!("feature {fid}: {e}")))?;
+        let converted: geo_types::Geometry<f64> = geometry
+            .try_into()
+            .map_err(|e: gdal::errors::GdalError| bad(format!("feature {fid}: {e}")))?;
         let multi = match converted {
             geo_types::Geometry::Polygon(p) => geo_types::MultiPolygon::new(vec![p]),
             geo_types::Geometry::MultiPolygon(m) => m,
-            other => return Err(bad(format!("feature {fid} is a {other:?}; expected polygons").chars().take(200).collect())),
+            other => {
+                return Err(bad(format!(
+                    "feature {fid} is a {other:?}; expected polygons"
+                )
+                .chars()
+                .take(200)
+                .collect()))
+            }
         };
         out.fids.push(fid);
         out.polygons.push(multi);
         for (slot, index) in out.fields.iter_mut().zip(&indices) {
-            slot.push(feature.field_as_string(*index).map_err(|e| bad(e.to_string()))?);
+            slot.push(
+                feature
+                    .field_as_string(*index)
+                    .map_err(|e| bad(e.to_string()))?,
+            );
         }
     }
     if out.fids.is_empty() {

@@ -58,7 +58,10 @@ pub struct FieldDef {
 impl FieldDef {
     /// A field definition.
     pub fn new(name: &str, kind: FieldKind) -> Self {
-        FieldDef { name: name.to_owned(), kind }
+        FieldDef {
+            name: name.to_owned(),
+            kind,
+        }
     }
 }
 
@@ -111,6 +114,7 @@ pub struct Staging {
     layers: Vec<StagedLayer>,
     dataset: Option<Dataset>,
     created: bool,
+    side_files: Vec<(PathBuf, PathBuf)>,
 }
 
 impl Staging {
@@ -120,7 +124,10 @@ impl Staging {
     /// [`Error::BadOutput`] if the output exists and is not a GeoPackage, or its directory is
     /// not writable.
     pub fn new(target: &Path, overwrite: bool) -> Result<Self> {
-        let bad = |message: String| Error::BadOutput { path: target.to_owned(), message };
+        let bad = |message: String| Error::BadOutput {
+            path: target.to_owned(),
+            message,
+        };
         if target.as_os_str().is_empty() {
             return Err(bad("empty output path; expected --output FILE.gpkg".into()));
         }
@@ -135,7 +142,10 @@ impl Staging {
             if metadata.permissions().readonly() {
                 return Err(bad("is read-only; cannot add layers to it".into()));
             }
-            tables.into_iter().map(|(name, _)| name.to_lowercase()).collect()
+            tables
+                .into_iter()
+                .map(|(name, _)| name.to_lowercase())
+                .collect()
         } else {
             HashSet::new()
         };
@@ -144,18 +154,32 @@ impl Staging {
             _ => PathBuf::from("."),
         };
         if !directory.is_dir() {
-            return Err(bad(format!("directory '{}' does not exist", directory.display())));
+            return Err(bad(format!(
+                "directory '{}' does not exist",
+                directory.display()
+            )));
         }
-        let file_name = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let file_name = target
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
         let nanos = std::time::SystemTime::now()
             .duration_since(std::time::UNIX_EPOCH)
             .map(|d| d.subsec_nanos())
             .unwrap_or(0);
-        let path = directory.join(format!(".{file_name}.stance-staging-{}-{nanos}.gpkg", std::process::id()));
+        let path = directory.join(format!(
+            ".{file_name}.stance-staging-{}-{nanos}.gpkg",
+            std::process::id()
+        ));
         // Probe that the directory takes new files, so an unwritable output fails before the work.
         std::fs::File::create(&path)
             .and_then(|_| std::fs::remove_file(&path))
-            .map_err(|e| bad(format!("cannot create files in '{}': {e}", directory.display())))?;
+            .map_err(|e| {
+                bad(format!(
+                    "cannot create files in '{}': {e}",
+                    directory.display()
+                ))
+            })?;
         Ok(Staging {
             target: target.to_owned(),
             path,
@@ -165,6 +189,7 @@ impl Staging {
             layers: Vec::new(),
             dataset: None,
             created: false,
+            side_files: Vec::new(),
         })
     }
 
@@ -186,12 +211,17 @@ impl Staging {
     pub fn check_name(&self, name: &str) -> Result<()> {
         super::check_layer_name(name, "--name")?;
         let lower = name.to_lowercase();
-        let bad = |message: String| Error::BadOutput { path: self.target.clone(), message };
+        let bad = |message: String| Error::BadOutput {
+            path: self.target.clone(),
+            message,
+        };
         if self.protected.contains(&lower) {
             return Err(bad(format!("output layer '{name}' is an input layer of this run; input layers are never replaced (choose another --name)")));
         }
         if self.layers.iter().any(|l| l.name.to_lowercase() == lower) {
-            return Err(bad(format!("output layer '{name}' would be written twice in one run")));
+            return Err(bad(format!(
+                "output layer '{name}' would be written twice in one run"
+            )));
         }
         if self.existing.contains(&lower) && !self.overwrite {
             return Err(bad(format!("layer '{name}' already exists; use --overwrite to replace it or choose another --name")));
@@ -209,11 +239,14 @@ impl Staging {
                     allowed_drivers: Some(&["GPKG"]),
                     ..Default::default()
                 };
-                Dataset::open_ex(&self.path, options).map_err(Error::gdal("reopening the staging GeoPackage"))?
+                Dataset::open_ex(&self.path, options)
+                    .map_err(Error::gdal("reopening the staging GeoPackage"))?
             } else {
-                let driver = DriverManager::get_driver_by_name("GPKG").map_err(Error::gdal("finding GDAL's GPKG driver"))?;
-                let dataset =
-                    driver.create_vector_only(&self.path).map_err(Error::gdal("creating the staging GeoPackage"))?;
+                let driver = DriverManager::get_driver_by_name("GPKG")
+                    .map_err(Error::gdal("finding GDAL's GPKG driver"))?;
+                let dataset = driver
+                    .create_vector_only(&self.path)
+                    .map_err(Error::gdal("creating the staging GeoPackage"))?;
                 self.created = true;
                 dataset
             };
@@ -225,7 +258,9 @@ impl Staging {
     /// Closes GDAL's handle (before rasters are appended or SQLite takes over).
     fn close_dataset(&mut self) -> Result<()> {
         if let Some(dataset) = self.dataset.take() {
-            dataset.close().map_err(Error::gdal("closing the staging GeoPackage"))?;
+            dataset
+                .close()
+                .map_err(Error::gdal("closing the staging GeoPackage"))?;
         }
         Ok(())
     }
@@ -249,12 +284,19 @@ impl Staging {
         };
         let name_owned = name.to_owned();
         self.open_dataset()?;
-        let dataset = self.dataset.as_mut().ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
+        let dataset = self
+            .dataset
+            .as_mut()
+            .ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
         let context = format!("creating layer '{name_owned}'");
         let layer = dataset
             .create_layer(LayerOptions {
                 name: &name_owned,
-                srs: if kind == GeometryKind::None { None } else { srs },
+                srs: if kind == GeometryKind::None {
+                    None
+                } else {
+                    srs
+                },
                 ty,
                 options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
             })
@@ -266,14 +308,19 @@ impl Staging {
                 FieldKind::Text => OGRFieldType::OFTString,
                 FieldKind::DateTime => OGRFieldType::OFTDateTime,
             };
-            let definition = gdal::vector::FieldDefn::new(&field.name, ogr_type).map_err(Error::gdal(context.clone()))?;
-            definition.add_to_layer(&layer).map_err(Error::gdal(context.clone()))?;
+            let definition = gdal::vector::FieldDefn::new(&field.name, ogr_type)
+                .map_err(Error::gdal(context.clone()))?;
+            definition
+                .add_to_layer(&layer)
+                .map_err(Error::gdal(context.clone()))?;
         }
         drop(layer);
         // SAFETY: the handle is valid while `dataset` lives; a failure only costs speed.
         let c_dataset = dataset.c_dataset();
         unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };
-        let layer = dataset.layer_by_name(&name_owned).map_err(Error::gdal(context))?;
+        let layer = dataset
+            .layer_by_name(&name_owned)
+            .map_err(Error::gdal(context))?;
         Ok(VectorWriter {
             layer,
             c_dataset,
@@ -281,7 +328,11 @@ impl Staging {
             name: name_owned,
             count: 0,
             staged: &mut self.layers,
-            data_type: if kind == GeometryKind::None { "attributes" } else { "features" },
+            data_type: if kind == GeometryKind::None {
+                "attributes"
+            } else {
+                "features"
+            },
         })
     }
 
@@ -289,7 +340,11 @@ impl Staging {
     ///
     /// # Errors
     /// Name problems or GDAL failures.
-    pub fn write_surface(&mut self, name: &str, surface: &super::raster::Surface<'_>) -> Result<()> {
+    pub fn write_surface(
+        &mut self,
+        name: &str,
+        surface: &super::raster::Surface<'_>,
+    ) -> Result<()> {
         self.check_name(name)?;
         self.close_dataset()?;
         super::raster::write(&self.path, self.created, name, surface)?;
@@ -302,19 +357,58 @@ impl Staging {
         Ok(())
     }
 
+    /// A temporary path for a file output beside the GeoPackage (a CSV export…); it is renamed
+    /// to `path` only when the run publishes, and removed otherwise.
+    ///
+    /// # Errors
+    /// [`Error::BadOutput`] when `path` is a directory, its directory is missing, or it is the
+    /// output GeoPackage itself.
+    pub fn side_file(&mut self, path: &Path) -> Result<PathBuf> {
+        let bad = |message: &str| Error::BadOutput {
+            path: path.to_owned(),
+            message: message.to_owned(),
+        };
+        if path.is_dir() {
+            return Err(bad("is a directory; expected a file path"));
+        }
+        if path == self.target || super::same_file(path, &self.target) {
+            return Err(bad("is the output GeoPackage; choose another file"));
+        }
+        let directory = match path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_owned(),
+            _ => PathBuf::from("."),
+        };
+        if !directory.is_dir() {
+            return Err(bad("its directory does not exist"));
+        }
+        let name = path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        let temporary = directory.join(format!(".{name}.stance-staging-{}", std::process::id()));
+        self.side_files.push((temporary.clone(), path.to_owned()));
+        Ok(temporary)
+    }
+
     /// Stamps provenance on every staged layer and makes them appear in the output at once.
     /// Returns one JSON object per layer written.
     ///
     /// # Errors
     /// [`Error::Interrupted`] if a signal arrived (nothing is written), [`Error::BadOutput`] if
     /// a layer appeared in the output meanwhile, SQLite or I/O failures (the output is unchanged).
-    pub fn publish(mut self, provenance: &Provenance, interrupted: &AtomicBool) -> Result<Vec<Value>> {
+    pub fn publish(
+        mut self,
+        provenance: &Provenance,
+        interrupted: &AtomicBool,
+    ) -> Result<Vec<Value>> {
         self.close_dataset()?;
         if self.layers.is_empty() {
+            self.publish_side_files()?;
             return Ok(Vec::new());
         }
         {
-            let connection = Connection::open(&self.path).map_err(Error::sqlite("opening the staging GeoPackage"))?;
+            let connection = Connection::open(&self.path)
+                .map_err(Error::sqlite("opening the staging GeoPackage"))?;
             write_provenance(&connection, &self.layers, provenance)?;
         }
         if interrupted.load(Ordering::Relaxed) {
@@ -328,14 +422,24 @@ impl Staging {
         };
         if !linked {
             if !self.target.exists() {
-                let driver = DriverManager::get_driver_by_name("GPKG").map_err(Error::gdal("finding GDAL's GPKG driver"))?;
+                let driver = DriverManager::get_driver_by_name("GPKG")
+                    .map_err(Error::gdal("finding GDAL's GPKG driver"))?;
                 let created = driver
                     .create_vector_only(&self.target)
                     .map_err(Error::gdal(format!("creating {}", self.target.display())))?;
-                created.close().map_err(Error::gdal("closing the new output"))?;
+                created
+                    .close()
+                    .map_err(Error::gdal("closing the new output"))?;
             }
-            merge(&self.target, &self.path, &self.layers, self.overwrite, &self.protected)?;
+            merge(
+                &self.target,
+                &self.path,
+                &self.layers,
+                self.overwrite,
+                &self.protected,
+            )?;
         }
+        self.publish_side_files()?;
         Ok(self
             .layers
             .iter()
@@ -344,9 +448,26 @@ impl Staging {
     }
 }
 
+impl Staging {
+    fn publish_side_files(&mut self) -> Result<()> {
+        for (temporary, path) in std::mem::take(&mut self.side_files) {
+            if temporary.exists() {
+                std::fs::rename(&temporary, &path).map_err(Error::io(format!(
+                    "moving the new file into {}",
+                    path.display()
+                )))?;
+            }
+        }
+        Ok(())
+    }
+}
+
 impl Drop for Staging {
     fn drop(&mut self) {
         self.dataset = None;
+        for (temporary, _) in &self.side_files {
+            let _ = std::fs::remove_file(temporary);
+        }
         for suffix in ["", "-journal", "-wal", "-shm"] {
             let mut path = self.path.clone().into_os_string();
             path.push(suffix);
@@ -381,18 +502,22 @@ impl VectorWriter<'_> {
                 (FieldData::Integer(v), _) => feature.set_field_integer64(index, v),
                 (FieldData::Real(v), _) => feature.set_field_double(index, v),
                 (FieldData::Text(v), _) => feature.set_field_string(index, v),
-                (FieldData::DateTime(seconds), _) => match chrono::DateTime::from_timestamp(seconds, 0) {
-                    // OGR parses the `Z` suffix into time-zone flag 100 (UTC).
-                    Some(t) => feature.set_field_string(index, &t.format("%Y-%m-%dT%H:%M:%SZ").to_string()),
-                    None => feature.set_field_null(index),
-                },
+                (FieldData::DateTime(seconds), _) => {
+                    match chrono::DateTime::from_timestamp(seconds, 0) {
+                        // OGR parses the `Z` suffix into time-zone flag 100 (UTC).
+                        Some(t) => feature
+                            .set_field_string(index, &t.format("%Y-%m-%dT%H:%M:%SZ").to_string()),
+                        None => feature.set_field_null(index),
+                    }
+                }
             };
             result.map_err(Error::gdal(context()))?;
         }
         let geometry = match shape {
             Shape::None => None,
             Shape::Point(x, y) => {
-                let mut g = gdal::vector::Geometry::empty(OGRwkbGeometryType::wkbPoint).map_err(Error::gdal(context()))?;
+                let mut g = gdal::vector::Geometry::empty(OGRwkbGeometryType::wkbPoint)
+                    .map_err(Error::gdal(context()))?;
                 g.add_point_2d((x, y));
                 Some(g)
             }
@@ -403,9 +528,13 @@ impl VectorWriter<'_> {
             Shape::MultiPolygon(m) => Some(m.to_gdal().map_err(Error::gdal(context()))?),
         };
         if let Some(geometry) = geometry {
-            feature.set_geometry(geometry).map_err(Error::gdal(context()))?;
+            feature
+                .set_geometry(geometry)
+                .map_err(Error::gdal(context()))?;
         }
-        feature.create(&self.layer).map_err(Error::gdal(context()))?;
+        feature
+            .create(&self.layer)
+            .map_err(Error::gdal(context()))?;
         self.count += 1;
         Ok(())
     }
@@ -418,13 +547,19 @@ impl VectorWriter<'_> {
         // SAFETY: the layer's dataset handle is valid for the writer's lifetime.
         let status = unsafe { gdal_sys::GDALDatasetCommitTransaction(self.c_dataset) };
         if status != gdal_sys::OGRErr::OGRERR_NONE {
-            return Err(Error::Failed(format!("committing layer '{}' failed (OGR error {status})", self.name)));
+            return Err(Error::Failed(format!(
+                "committing layer '{}' failed (OGR error {status})",
+                self.name
+            )));
         }
-        self.staged.push(StagedLayer { name: self.name, data_type: self.data_type, count: self.count });
+        self.staged.push(StagedLayer {
+            name: self.name,
+            data_type: self.data_type,
+            count: self.count,
+        });
         Ok(self.count)
     }
 }
-
 
 const METADATA_DDL: &str = "
 CREATE TABLE IF NOT EXISTS gpkg_metadata (
@@ -453,9 +588,15 @@ CREATE TABLE IF NOT EXISTS gpkg_extensions (
 ";
 
 /// Adds one provenance record per staged layer (GeoPackage metadata extension, scope `table`).
-fn write_provenance(connection: &Connection, layers: &[StagedLayer], provenance: &Provenance) -> Result<()> {
+fn write_provenance(
+    connection: &Connection,
+    layers: &[StagedLayer],
+    provenance: &Provenance,
+) -> Result<()> {
     let ctx = "writing provenance metadata";
-    connection.execute_batch(METADATA_DDL).map_err(Error::sqlite(ctx))?;
+    connection
+        .execute_batch(METADATA_DDL)
+        .map_err(Error::sqlite(ctx))?;
     for table in ["gpkg_metadata", "gpkg_metadata_reference"] {
         connection
             .execute(
@@ -466,7 +607,9 @@ fn write_provenance(connection: &Connection, layers: &[StagedLayer], provenance:
             )
             .map_err(Error::sqlite(ctx))?;
     }
-    let now = chrono::Utc::now().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
+    let now = chrono::Utc::now()
+        .format("%Y-%m-%dT%H:%M:%S%.3fZ")
+        .to_string();
     for layer in layers {
         let record = provenance.to_json(&layer.name).to_string();
         connection
@@ -497,16 +640,27 @@ fn owner_column(columns: &[String]) -> Option<&'static str> {
 /// Column names of `schema.table`.
 fn columns_of(connection: &Connection, schema: &str, table: &str) -> rusqlite::Result<Vec<String>> {
     let mut statement = connection.prepare(&format!("PRAGMA {schema}.table_info({})", q(table)))?;
-    let columns = statement.query_map([], |r| r.get::<_, String>(1))?.collect();
+    let columns = statement
+        .query_map([], |r| r.get::<_, String>(1))?
+        .collect();
     columns
 }
 
 /// Copies the staged layers into `target` in one transaction (replacing same-named layers when
 /// `overwrite` is set). Triggers are created after the rows are copied, so GeoPackage's R-tree
 /// triggers (which call GDAL's `ST_*` SQL functions) never fire in this plain connection.
-fn merge(target: &Path, staged: &Path, layers: &[StagedLayer], overwrite: bool, protected: &HashSet<String>) -> Result<()> {
+fn merge(
+    target: &Path,
+    staged: &Path,
+    layers: &[StagedLayer],
+    overwrite: bool,
+    protected: &HashSet<String>,
+) -> Result<()> {
     let ctx = format!("adding layers to {}", target.display());
-    let sql = |e| Error::Sqlite { context: ctx.clone(), source: e };
+    let sql = |e| Error::Sqlite {
+        context: ctx.clone(),
+        source: e,
+    };
     let mut connection = Connection::open(target).map_err(sql)?;
     connection.busy_timeout(BUSY_TIMEOUT).map_err(sql)?;
     connection
@@ -528,7 +682,11 @@ fn merge(target: &Path, staged: &Path, layers: &[StagedLayer], overwrite: bool, 
     // System tables the output lacks are created with the staged definitions and triggers.
     for (name, create) in &system_tables {
         let present: Option<String> = transaction
-            .query_row("SELECT name FROM main.sqlite_master WHERE type = 'table' AND name = ?1", [name], |r| r.get(0))
+            .query_row(
+                "SELECT name FROM main.sqlite_master WHERE type = 'table' AND name = ?1",
+                [name],
+                |r| r.get(0),
+            )
             .optional()
             .map_err(sql)?;
         if present.is_none() {
@@ -549,10 +707,18 @@ fn merge(target: &Path, staged: &Path, layers: &[StagedLayer], overwrite: bool, 
             });
         }
         let exists: i64 = transaction
-            .query_row("SELECT count(*) FROM main.gpkg_contents WHERE lower(table_name) = ?1", [&lower], |r| r.get(0))
+            .query_row(
+                "SELECT count(*) FROM main.gpkg_contents WHERE lower(table_name) = ?1",
+                [&lower],
+                |r| r.get(0),
+            )
             .map_err(sql)?;
         let table_exists: i64 = transaction
-            .query_row("SELECT count(*) FROM main.sqlite_master WHERE lower(name) = ?1", [&lower], |r| r.get(0))
+            .query_row(
+                "SELECT count(*) FROM main.sqlite_master WHERE lower(name) = ?1",
+                [&lower],
+                |r| r.get(0),
+            )
             .map_err(sql)?;
         if exists > 0 || table_exists > 0 {
             if !overwrite {
@@ -566,7 +732,9 @@ fn merge(target: &Path, staged: &Path, layers: &[StagedLayer], overwrite: bool, 
         copy_layer(&transaction, &layer.name, &system_tables, &srs_map).map_err(sql)?;
     }
     transaction.commit().map_err(sql)?;
-    connection.execute("DETACH DATABASE staged", []).map_err(sql)?;
+    connection
+        .execute("DETACH DATABASE staged", [])
+        .map_err(sql)?;
     Ok(())
 }
 
@@ -583,11 +751,18 @@ fn statements_on(connection: &Connection, table: &str, kind: &str) -> Result<Vec
 }
 
 /// Maps each staged `srs_id` used by the layers to an id in the output, adding missing systems.
-fn map_spatial_ref_systems(tx: &Connection, layers: &[StagedLayer]) -> rusqlite::Result<BTreeMap<i64, i64>> {
+fn map_spatial_ref_systems(
+    tx: &Connection,
+    layers: &[StagedLayer],
+) -> rusqlite::Result<BTreeMap<i64, i64>> {
     let mut map = BTreeMap::new();
     let staged_columns = columns_of(tx, "staged", "gpkg_spatial_ref_sys")?;
     let main_columns = columns_of(tx, "main", "gpkg_spatial_ref_sys")?;
-    let common: Vec<String> = staged_columns.iter().filter(|c| main_columns.contains(c)).cloned().collect();
+    let common: Vec<String> = staged_columns
+        .iter()
+        .filter(|c| main_columns.contains(c))
+        .cloned()
+        .collect();
     for layer in layers {
         let ids: Vec<i64> = {
             let mut s = tx.prepare(
@@ -597,7 +772,9 @@ fn map_spatial_ref_systems(tx: &Connection, layers: &[StagedLayer]) -> rusqlite:
             ).or_else(|_| tx.prepare(
                 "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL",
             ))?;
-            let v = s.query_map([&layer.name], |r| r.get::<_, i64>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+            let v = s
+                .query_map([&layer.name], |r| r.get::<_, i64>(0))?
+                .collect::<rusqlite::Result<Vec<_>>>()?;
             v
         };
         for id in ids {
@@ -619,17 +796,29 @@ fn map_spatial_ref_systems(tx: &Connection, layers: &[StagedLayer]) -> rusqlite:
             } else if id <= 0 {
                 Some(id)
             } else {
-                tx.query_row("SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE definition = ?1", [&definition], |r| r.get(0))
-                    .optional()?
+                tx.query_row(
+                    "SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE definition = ?1",
+                    [&definition],
+                    |r| r.get(0),
+                )
+                .optional()?
             };
             let new_id = match found {
                 Some(f) => f,
                 None => {
-                    let taken: i64 = tx.query_row("SELECT count(*) FROM main.gpkg_spatial_ref_sys WHERE srs_id = ?1", [id], |r| r.get(0))?;
+                    let taken: i64 = tx.query_row(
+                        "SELECT count(*) FROM main.gpkg_spatial_ref_sys WHERE srs_id = ?1",
+                        [id],
+                        |r| r.get(0),
+                    )?;
                     let new_id = if taken == 0 {
                         id
                     } else {
-                        tx.query_row("SELECT max(max(srs_id) + 1, 100000) FROM main.gpkg_spatial_ref_sys", [], |r| r.get(0))?
+                        tx.query_row(
+                            "SELECT max(max(srs_id) + 1, 100000) FROM main.gpkg_spatial_ref_sys",
+                            [],
+                            |r| r.get(0),
+                        )?
                     };
                     let list = common.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
                     let select = common
@@ -651,7 +840,11 @@ fn map_spatial_ref_systems(tx: &Connection, layers: &[StagedLayer]) -> rusqlite:
 }
 
 /// Removes layer `name` and every system-table row that refers to it.
-fn drop_layer(tx: &Connection, name: &str, system_tables: &[(String, String)]) -> rusqlite::Result<()> {
+fn drop_layer(
+    tx: &Connection,
+    name: &str,
+    system_tables: &[(String, String)],
+) -> rusqlite::Result<()> {
     // Provenance records referenced only by this layer go with it.
     let has_metadata: i64 = tx.query_row(
         "SELECT count(*) FROM main.sqlite_master WHERE name = 'gpkg_metadata_reference'",
@@ -666,72 +859,117 @@ fn drop_layer(tx: &Connection, name: &str, system_tables: &[(String, String)]) -
         )?;
     }
     let mut main_system: Vec<String> = {
-        let mut s = tx.prepare("SELECT name FROM main.sqlite_master WHERE type = 'table' AND name LIKE 'gpkg%'")?;
-        let v = s.query_map([], |r| r.get::<_, String>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        let mut s = tx.prepare(
+            "SELECT name FROM main.sqlite_master WHERE type = 'table' AND name LIKE 'gpkg%'",
+        )?;
+        let v = s
+            .query_map([], |r| r.get::<_, String>(0))?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
         v
     };
     main_system.extend(system_tables.iter().map(|(n, _)| n.clone()));
     main_system.sort();
     main_system.dedup();
     for table in main_system {
-        let present: i64 = tx.query_row("SELECT count(*) FROM main.sqlite_master WHERE name = ?1", [&table], |r| r.get(0))?;
+        let present: i64 = tx.query_row(
+            "SELECT count(*) FROM main.sqlite_master WHERE name = ?1",
+            [&table],
+            |r| r.get(0),
+        )?;
         if present == 0 || table == "gpkg_spatial_ref_sys" {
             continue;
         }
         let columns = columns_of(tx, "main", &table)?;
         if let Some(owner) = owner_column(&columns) {
-            tx.execute(&format!("DELETE FROM main.{} WHERE lower({owner}) = lower(?1)", q(&table)), [name])?;
+            tx.execute(
+                &format!(
+                    "DELETE FROM main.{} WHERE lower({owner}) = lower(?1)",
+                    q(&table)
+                ),
+                [name],
+            )?;
         }
     }
     let rtrees: Vec<String> = {
         let mut s = tx.prepare(
             "SELECT name FROM main.sqlite_master WHERE type = 'table' AND sql LIKE 'CREATE VIRTUAL TABLE%' AND lower(name) LIKE 'rtree\\_' || lower(?1) || '\\_%' ESCAPE '\\'",
         )?;
-        let v = s.query_map([name], |r| r.get::<_, String>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        let v = s
+            .query_map([name], |r| r.get::<_, String>(0))?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
         v
     };
     for rtree in rtrees {
         tx.execute_batch(&format!("DROP TABLE main.{}", q(&rtree)))?;
     }
     tx.execute_batch(&format!("DROP TABLE IF EXISTS main.{}", q(name)))?;
-    let has_sequence: i64 = tx.query_row("SELECT count(*) FROM main.sqlite_master WHERE name = 'sqlite_sequence'", [], |r| r.get(0))?;
+    let has_sequence: i64 = tx.query_row(
+        "SELECT count(*) FROM main.sqlite_master WHERE name = 'sqlite_sequence'",
+        [],
+        |r| r.get(0),
+    )?;
     if has_sequence > 0 {
-        tx.execute("DELETE FROM main.sqlite_sequence WHERE lower(name) = lower(?1)", [name])?;
+        tx.execute(
+            "DELETE FROM main.sqlite_sequence WHERE lower(name) = lower(?1)",
+            [name],
+        )?;
     }
     Ok(())
 }
 
 /// Copies layer `name` (table, R-tree, indexes, triggers, system-table rows) from `staged`.
-fn copy_layer(tx: &Connection, name: &str, system_tables: &[(String, String)], srs_map: &BTreeMap<i64, i64>) -> rusqlite::Result<()> {
+fn copy_layer(
+    tx: &Connection,
+    name: &str,
+    system_tables: &[(String, String)],
+    srs_map: &BTreeMap<i64, i64>,
+) -> rusqlite::Result<()> {
     let create: String = tx.query_row(
         "SELECT sql FROM staged.sqlite_master WHERE type = 'table' AND name = ?1",
         [name],
         |r| r.get(0),
     )?;
     tx.execute_batch(&create)?;
-    tx.execute(&format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(name)), [])?;
+    tx.execute(
+        &format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(name)),
+        [],
+    )?;
     let sequence: Option<i64> = tx
-        .query_row("SELECT seq FROM staged.sqlite_sequence WHERE name = ?1", [name], |r| r.get(0))
+        .query_row(
+            "SELECT seq FROM staged.sqlite_sequence WHERE name = ?1",
+            [name],
+            |r| r.get(0),
+        )
         .optional()
         .unwrap_or(None);
     if let Some(seq) = sequence {
         tx.execute("DELETE FROM main.sqlite_sequence WHERE name = ?1", [name])?;
-        tx.execute("INSERT INTO main.sqlite_sequence (name, seq) VALUES (?1, ?2)", rusqlite::params![name, seq])?;
+        tx.execute(
+            "INSERT INTO main.sqlite_sequence (name, seq) VALUES (?1, ?2)",
+            rusqlite::params![name, seq],
+        )?;
     }
     let rtrees: Vec<(String, String)> = {
         let mut s = tx.prepare(
             "SELECT name, sql FROM staged.sqlite_master WHERE type = 'table' AND sql LIKE 'CREATE VIRTUAL TABLE%' AND name LIKE 'rtree\\_' || ?1 || '\\_%' ESCAPE '\\'",
         )?;
-        let v = s.query_map([name], |r| Ok((r.get(0)?, r.get(1)?)))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        let v = s
+            .query_map([name], |r| Ok((r.get(0)?, r.get(1)?)))?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
         v
     };
     for (rtree, create) in &rtrees {
         tx.execute_batch(create)?;
-        tx.execute(&format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(rtree)), [])?;
+        tx.execute(
+            &format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(rtree)),
+            [],
+        )?;
     }
     for kind in ["index", "trigger"] {
         let mut s = tx.prepare("SELECT sql FROM staged.sqlite_master WHERE type = ?1 AND tbl_name = ?2 AND sql IS NOT NULL ORDER BY rowid")?;
-        let statements = s.query_map([kind, name], |r| r.get::<_, String>(0))?.collect::<rusqlite::Result<Vec<_>>>()?;
+        let statements = s
+            .query_map([kind, name], |r| r.get::<_, String>(0))?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
         for statement in statements {
             tx.execute_batch(&statement)?;
         }
@@ -742,7 +980,8 @@ fn copy_layer(tx: &Connection, name: &str, system_tables: &[(String, String)], s
         }
         let staged_columns = columns_of(tx, "staged", table)?;
         let main_columns = columns_of(tx, "main", table)?;
-        let has_autoincrement_id = table == "gpkg_2d_gridded_coverage_ancillary" || table == "gpkg_2d_gridded_tile_ancillary";
+        let has_autoincrement_id = table == "gpkg_2d_gridded_coverage_ancillary"
+            || table == "gpkg_2d_gridded_tile_ancillary";
         let columns: Vec<&String> = staged_columns
             .iter()
             .filter(|c| main_columns.contains(c))
@@ -756,7 +995,15 @@ fn copy_layer(tx: &Connection, name: &str, system_tables: &[(String, String)], s
                  JOIN staged.gpkg_metadata m ON m.id = r.md_file_id WHERE r.table_name = ?1",
             )?;
             let records = s
-                .query_map([name], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, String>(1)?, r.get::<_, String>(2)?, r.get::<_, String>(3)?, r.get::<_, String>(4)?)))?
+                .query_map([name], |r| {
+                    Ok((
+                        r.get::<_, i64>(0)?,
+                        r.get::<_, String>(1)?,
+                        r.get::<_, String>(2)?,
+                        r.get::<_, String>(3)?,
+                        r.get::<_, String>(4)?,
+                    ))
+                })?
                 .collect::<rusqlite::Result<Vec<_>>>()?;
             for (old_id, scope, uri, mime, metadata) in records {
                 tx.execute(
@@ -773,7 +1020,9 @@ fn copy_layer(tx: &Connection, name: &str, system_tables: &[(String, String)], s
             }
             continue;
         }
-        let Some(owner) = owner_column(&staged_columns) else { continue };
+        let Some(owner) = owner_column(&staged_columns) else {
+            continue;
+        };
         if table == "gpkg_extensions" {
             // Rows of this layer, plus extension rows of system tables the output may lack.
             tx.execute(
@@ -792,14 +1041,20 @@ fn copy_layer(tx: &Connection, name: &str, system_tables: &[(String, String)], s
             continue;
         }
         tx.execute(
-            &format!("INSERT INTO main.{0} ({list}) SELECT {list} FROM staged.{0} WHERE {owner} = ?1", q(table)),
+            &format!(
+                "INSERT INTO main.{0} ({list}) SELECT {list} FROM staged.{0} WHERE {owner} = ?1",
+                q(table)
+            ),
             [name],
         )?;
         if columns.iter().any(|c| c.as_str() == "srs_id") {
             for (old, new) in srs_map {
                 if old != new {
                     tx.execute(
-                        &format!("UPDATE main.{} SET srs_id = ?1 WHERE {owner} = ?2 AND srs_id = ?3", q(table)),
+                        &format!(
+                            "UPDATE main.{} SET srs_id = ?1 WHERE {owner} = ?2 AND srs_id = ?3",
+                            q(table)
+                        ),
                         rusqlite::params![new, name, old],
                     )?;
                 }

@@ -34,7 +34,9 @@ pub fn describe<T: Tool>() -> Value {
                     continue;
                 }
             }
-            let arg = command.get_arguments().find(|a| a.get_long() == Some(name.as_str()));
+            let arg = command
+                .get_arguments()
+                .find(|a| a.get_long() == Some(name.as_str()));
             let mut property = property.clone();
             let description = property
                 .as_object_mut()
@@ -47,23 +49,32 @@ pub fn describe<T: Tool>() -> Value {
                 required = true;
             }
             if let (Some(arg), Some(object)) = (arg, property.as_object_mut()) {
-                let defaults: Vec<String> =
-                    arg.get_default_values().iter().map(|v| v.to_string_lossy().into_owned()).collect();
+                let defaults: Vec<String> = arg
+                    .get_default_values()
+                    .iter()
+                    .map(|v| v.to_string_lossy().into_owned())
+                    .collect();
                 if let Some(first) = defaults.first() {
                     object.insert("default".into(), typed_default(object, first));
                 }
                 // An Option<T> input shows as ["T", "null"]; an absent input is expressed by
                 // minOccurs = 0 instead.
                 if let Some(Value::Array(types)) = object.get("type") {
-                    let non_null: Vec<Value> =
-                        types.iter().filter(|t| t.as_str() != Some("null")).cloned().collect();
+                    let non_null: Vec<Value> = types
+                        .iter()
+                        .filter(|t| t.as_str() != Some("null"))
+                        .cloned()
+                        .collect();
                     if non_null.len() == 1 {
                         object.insert("type".into(), non_null[0].clone());
                     }
                 }
                 if let Some(Value::Array(options)) = object.get("anyOf") {
-                    let non_null: Vec<Value> =
-                        options.iter().filter(|o| o.get("type").and_then(Value::as_str) != Some("null")).cloned().collect();
+                    let non_null: Vec<Value> = options
+                        .iter()
+                        .filter(|o| o.get("type").and_then(Value::as_str) != Some("null"))
+                        .cloned()
+                        .collect();
                     if non_null.len() == 1 {
                         object.remove("anyOf");
                         if let Some(inner) = non_null[0].as_object() {
@@ -74,7 +85,12 @@ pub fn describe<T: Tool>() -> Value {
                     }
                 }
             }
-            let title = description.split(['.', '\n']).next().unwrap_or("").trim().to_owned();
+            let title = description
+                .split(['.', '\n'])
+                .next()
+                .unwrap_or("")
+                .trim()
+                .to_owned();
             inputs.insert(
                 name.clone(),
                 json!({
@@ -88,7 +104,13 @@ pub fn describe<T: Tool>() -> Value {
         }
     }
     let mut outputs = Map::new();
-    for OutputDecl { id, title, description, media_type } in T::outputs() {
+    for OutputDecl {
+        id,
+        title,
+        description,
+        media_type,
+    } in T::outputs()
+    {
         outputs.insert(
             id.to_owned(),
             json!({

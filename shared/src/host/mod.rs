@@ -78,7 +78,9 @@ pub fn command<T: Tool>() -> clap::Command {
         .about(T::TITLE)
         .long_about(format!("{}\n\n{}", T::TITLE, T::DESCRIPTION))
         .version(crate::VERSION)
-        .after_help("Exit codes: 0 done, 2 bad arguments or unusable input, 1 failure while working.");
+        .after_help(
+            "Exit codes: 0 done, 2 bad arguments or unusable input, 1 failure while working.",
+        );
     T::Params::augment_args(CommonArgs::augment_args(command))
 }
 
@@ -114,7 +116,9 @@ pub fn main_with_args<T: Tool>(args: Vec<OsString>) -> ExitCode {
 
 fn print_json(value: &Value) -> ExitCode {
     let mut out = std::io::stdout().lock();
-    let written = serde_json::to_writer_pretty(&mut out, value).map_err(std::io::Error::from).and_then(|()| writeln!(out));
+    let written = serde_json::to_writer_pretty(&mut out, value)
+        .map_err(std::io::Error::from)
+        .and_then(|()| writeln!(out));
     match written {
         Ok(()) => ExitCode::SUCCESS,
         Err(_) => ExitCode::from(1),
@@ -125,7 +129,9 @@ fn print_json(value: &Value) -> ExitCode {
 fn clap_exit(id: &str, error: clap::Error) -> ExitCode {
     use clap::error::ErrorKind;
     match error.kind() {
-        ErrorKind::DisplayHelp | ErrorKind::DisplayVersion | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => {
+        ErrorKind::DisplayHelp
+        | ErrorKind::DisplayVersion
+        | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => {
             let _ = error.print();
             ExitCode::SUCCESS
         }
@@ -146,18 +152,27 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
     let interrupted = Arc::new(AtomicBool::new(false));
     for signal in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
         // A second signal ends the process at once; the first lets the run roll back.
-        let _ = signal_hook::flag::register_conditional_shutdown(signal, 130, Arc::clone(&interrupted));
+        let _ =
+            signal_hook::flag::register_conditional_shutdown(signal, 130, Arc::clone(&interrupted));
         let _ = signal_hook::flag::register(signal, Arc::clone(&interrupted));
     }
     if common.threads > 0 {
         // Fails only if a pool already exists (the umbrella runs one tool per process).
-        let _ = rayon::ThreadPoolBuilder::new().num_threads(common.threads).build_global();
+        let _ = rayon::ThreadPoolBuilder::new()
+            .num_threads(common.threads)
+            .build_global();
     }
-    let name = common.name.clone().unwrap_or_else(|| T::DEFAULT_NAME.to_owned());
+    let name = common
+        .name
+        .clone()
+        .unwrap_or_else(|| T::DEFAULT_NAME.to_owned());
     gpkg::check_layer_name(&name, "--name")?;
     let input = match (T::INPUT, &common.input) {
         (InputUse::Required, None) => {
-            return Err(Error::argument("--input", "missing; give the input file with --input FILE"));
+            return Err(Error::argument(
+                "--input",
+                "missing; give the input file with --input FILE",
+            ));
         }
         (InputUse::Required, Some(path)) => Some(InputFile::open(path)?),
         (InputUse::None, _) => None,
@@ -178,7 +193,9 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
 
     let parameters = {
         let mut all = serde_json::to_value(&run.common).unwrap_or(Value::Null);
-        if let (Some(all), Ok(Value::Object(own))) = (all.as_object_mut(), serde_json::to_value(params)) {
+        if let (Some(all), Ok(Value::Object(own))) =
+            (all.as_object_mut(), serde_json::to_value(params))
+        {
             all.remove("describe");
             all.extend(own);
         }
@@ -196,7 +213,11 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
         run_time_s: clock.elapsed().as_secs_f64(),
         results: results.clone(),
     };
-    let Run { staging, interrupted, .. } = run;
+    let Run {
+        staging,
+        interrupted,
+        ..
+    } = run;
     let written = staging.publish(&provenance, interrupted.flag())?;
     Ok(json!({
         "tool": provenance.tool,
@@ -226,7 +247,11 @@ impl InputFile {
     /// [`Error::InputFile`] when it is missing or unreadable.
     pub fn open(path: &Path) -> Result<Self> {
         let sha256 = gpkg::sha256_file(path)?;
-        Ok(InputFile { path: path.to_owned(), layers: Vec::new(), sha256 })
+        Ok(InputFile {
+            path: path.to_owned(),
+            layers: Vec::new(),
+            sha256,
+        })
     }
 
     fn to_json(&self) -> Value {
@@ -280,7 +305,9 @@ impl Run {
         self.input
             .as_ref()
             .map(|i| i.path.as_path())
-            .ok_or_else(|| Error::argument("--input", "missing; give the input file with --input FILE"))
+            .ok_or_else(|| {
+                Error::argument("--input", "missing; give the input file with --input FILE")
+            })
     }
 
     /// Records that `layer` of the input was read (for provenance, and so that it is never

@@ -35,7 +35,13 @@ impl Progress {
         } else {
             Mode::Lines
         };
-        Progress { mode, state: Mutex::new(State { last_line: None, last_percent: 0 }) }
+        Progress {
+            mode,
+            state: Mutex::new(State {
+                last_line: None,
+                last_percent: 0,
+            }),
+        }
     }
 
     /// A reporter that prints nothing (for tests and library use).
@@ -46,7 +52,9 @@ impl Progress {
     /// Records that `fraction` (0..=1) of the work is done.
     pub fn set(&self, fraction: f64) {
         let percent = (fraction.clamp(0.0, 1.0) * 100.0).floor() as u32;
-        let Ok(mut state) = self.state.lock() else { return };
+        let Ok(mut state) = self.state.lock() else {
+            return;
+        };
         if percent <= state.last_percent && percent != 0 {
             return;
         }
@@ -55,7 +63,9 @@ impl Progress {
             Mode::Silent => {}
             Mode::Bar(bar) => bar.set_position(u64::from(percent)),
             Mode::Lines => {
-                let due = state.last_line.is_none_or(|t| t.elapsed() >= Duration::from_secs(1));
+                let due = state
+                    .last_line
+                    .is_none_or(|t| t.elapsed() >= Duration::from_secs(1));
                 if due || percent == 100 {
                     eprintln!("progress: {percent}%");
                     state.last_line = Some(Instant::now());

@@ -169,7 +169,15 @@ fn duplicate_key(author: &str, text: &str) -> u128 {
 pub fn text_form(text: &str) -> String {
     text.chars()
         .take(40)
-        .map(|c| if c.is_ascii_digit() { '9' } else if c.is_alphabetic() { 'a' } else { c })
+        .map(|c| {
+            if c.is_ascii_digit() {
+                '9'
+            } else if c.is_alphabetic() {
+                'a'
+            } else {
+                c
+            }
+        })
         .collect()
 }
 
@@ -217,7 +225,9 @@ impl Checker {
                     None => {
                         let form = text_form(t);
                         if self.time_examples.len() < 20 || self.time_examples.contains_key(&form) {
-                            self.time_examples.entry(form).or_insert_with(|| t.chars().take(60).collect());
+                            self.time_examples
+                                .entry(form)
+                                .or_insert_with(|| t.chars().take(60).collect());
                         }
                         Err(Reason::UnparseableTime)
                     }
@@ -233,12 +243,22 @@ impl Checker {
             Location::NotPoint(_) => return Err(Reason::NotAPoint),
             Location::Point(x, y) => (*x, *y),
         };
-        if !x.is_finite() || !y.is_finite() || (self.rules.geographic && (x.abs() > 180.0 || y.abs() > 90.0)) {
+        if !x.is_finite()
+            || !y.is_finite()
+            || (self.rules.geographic && (x.abs() > 180.0 || y.abs() > 90.0))
+        {
             return Err(Reason::CoordinatesOutOfRange);
         }
         let Some(stance) = stance else {
-            let label = raw.stance.map(|s| s.trim().chars().take(60).collect::<String>()).unwrap_or_else(|| "(null)".into());
-            let label = if label.is_empty() { "(empty)".to_owned() } else { label };
+            let label = raw
+                .stance
+                .map(|s| s.trim().chars().take(60).collect::<String>())
+                .unwrap_or_else(|| "(null)".into());
+            let label = if label.is_empty() {
+                "(empty)".to_owned()
+            } else {
+                label
+            };
             *self.unknown_labels.entry(label).or_default() += 1;
             return Err(Reason::UnknownStance);
         };
@@ -246,10 +266,17 @@ impl Checker {
         let quality_level = match &self.rules.quality_order {
             None => None,
             Some(order) => {
-                let level = raw.quality.map(|q| q.trim().to_lowercase()).unwrap_or_default();
+                let level = raw
+                    .quality
+                    .map(|q| q.trim().to_lowercase())
+                    .unwrap_or_default();
                 match order.iter().position(|l| *l == level) {
                     None => {
-                        let shown = if level.is_empty() { "(empty)".to_owned() } else { level };
+                        let shown = if level.is_empty() {
+                            "(empty)".to_owned()
+                        } else {
+                            level
+                        };
                         *self.unknown_quality.entry(shown).or_default() += 1;
                         return Err(Reason::UnknownQuality);
                     }
@@ -274,7 +301,13 @@ impl Checker {
             }
             *count += 1;
         }
-        Ok(CleanRecord { x, y, stance, time_utc_s, quality_level })
+        Ok(CleanRecord {
+            x,
+            y,
+            stance,
+            time_utc_s,
+            quality_level,
+        })
     }
 }
 
@@ -287,7 +320,12 @@ mod tests {
             classes: ClassMap::default(),
             geographic: true,
             uses_time: true,
-            quality_order: Some(vec!["coordinates".into(), "address".into(), "place".into(), "region".into()]),
+            quality_order: Some(vec![
+                "coordinates".into(),
+                "address".into(),
+                "place".into(),
+                "region".into(),
+            ]),
             min_quality_index: Some(2),
             drop_duplicates: true,
             max_per_author: Some(2),
@@ -311,23 +349,134 @@ mod tests {
         let mut checker = Checker::new(rules());
         let cases: Vec<(RawRecord<'_>, Option<Reason>)> = vec![
             (good(), None),
-            (RawRecord { location: Location::Missing(String::new()), text: Some("t1"), ..good() }, Some(Reason::MissingCoordinates)),
-            (RawRecord { location: Location::Missing("abc".into()), text: Some("t2"), ..good() }, Some(Reason::MissingCoordinates)),
-            (RawRecord { location: Location::Point(181.0, 0.0), text: Some("t3"), ..good() }, Some(Reason::CoordinatesOutOfRange)),
-            (RawRecord { location: Location::Point(0.0, -90.5), text: Some("t4"), ..good() }, Some(Reason::CoordinatesOutOfRange)),
-            (RawRecord { location: Location::Point(f64::NAN, 0.0), text: Some("t5"), ..good() }, Some(Reason::CoordinatesOutOfRange)),
-            (RawRecord { location: Location::Empty, text: Some("t6"), ..good() }, Some(Reason::EmptyGeometry)),
-            (RawRecord { location: Location::NotPoint("LINESTRING".into()), text: Some("t7"), ..good() }, Some(Reason::NotAPoint)),
-            (RawRecord { stance: Some("maybe"), text: Some("t8"), ..good() }, Some(Reason::UnknownStance)),
-            (RawRecord { stance: None, text: Some("t9"), ..good() }, Some(Reason::UnknownStance)),
-            (RawRecord { time: Some(""), text: Some("t10"), ..good() }, Some(Reason::MissingTime)),
-            (RawRecord { time: Some("03/04/2026"), text: Some("t11"), ..good() }, Some(Reason::UnparseableTime)),
-            (RawRecord { quality: Some("street"), text: Some("t12"), ..good() }, Some(Reason::UnknownQuality)),
-            (RawRecord { quality: Some("region"), text: Some("t13"), ..good() }, Some(Reason::QualityBelowMinimum)),
+            (
+                RawRecord {
+                    location: Location::Missing(String::new()),
+                    text: Some("t1"),
+                    ..good()
+                },
+                Some(Reason::MissingCoordinates),
+            ),
+            (
+                RawRecord {
+                    location: Location::Missing("abc".into()),
+                    text: Some("t2"),
+                    ..good()
+                },
+                Some(Reason::MissingCoordinates),
+            ),
+            (
+                RawRecord {
+                    location: Location::Point(181.0, 0.0),
+                    text: Some("t3"),
+                    ..good()
+                },
+                Some(Reason::CoordinatesOutOfRange),
+            ),
+            (
+                RawRecord {
+                    location: Location::Point(0.0, -90.5),
+                    text: Some("t4"),
+                    ..good()
+                },
+                Some(Reason::CoordinatesOutOfRange),
+            ),
+            (
+                RawRecord {
+                    location: Location::Point(f64::NAN, 0.0),
+                    text: Some("t5"),
+                    ..good()
+                },
+                Some(Reason::CoordinatesOutOfRange),
+            ),
+            (
+                RawRecord {
+                    location: Location::Empty,
+                    text: Some("t6"),
+                    ..good()
+                },
+                Some(Reason::EmptyGeometry),
+            ),
+            (
+                RawRecord {
+                    location: Location::NotPoint("LINESTRING".into()),
+                    text: Some("t7"),
+                    ..good()
+                },
+                Some(Reason::NotAPoint),
+            ),
+            (
+                RawRecord {
+                    stance: Some("maybe"),
+                    text: Some("t8"),
+                    ..good()
+                },
+                Some(Reason::UnknownStance),
+            ),
+            (
+                RawRecord {
+                    stance: None,
+                    text: Some("t9"),
+                    ..good()
+                },
+                Some(Reason::UnknownStance),
+            ),
+            (
+                RawRecord {
+                    time: Some(""),
+                    text: Some("t10"),
+                    ..good()
+                },
+                Some(Reason::MissingTime),
+            ),
+            (
+                RawRecord {
+                    time: Some("03/04/2026"),
+                    text: Some("t11"),
+                    ..good()
+                },
+                Some(Reason::UnparseableTime),
+            ),
+            (
+                RawRecord {
+                    quality: Some("street"),
+                    text: Some("t12"),
+                    ..good()
+                },
+                Some(Reason::UnknownQuality),
+            ),
+            (
+                RawRecord {
+                    quality: Some("region"),
+                    text: Some("t13"),
+                    ..good()
+                },
+                Some(Reason::QualityBelowMinimum),
+            ),
             (good(), Some(Reason::Duplicate)),
-            (RawRecord { text: Some("second"), ..good() }, None),
-            (RawRecord { text: Some("third"), ..good() }, Some(Reason::OverAuthorCap)),
-            (RawRecord { text: Some("third"), author: Some("a2"), quality: Some("PLACE"), ..good() }, None),
+            (
+                RawRecord {
+                    text: Some("second"),
+                    ..good()
+                },
+                None,
+            ),
+            (
+                RawRecord {
+                    text: Some("third"),
+                    ..good()
+                },
+                Some(Reason::OverAuthorCap),
+            ),
+            (
+                RawRecord {
+                    text: Some("third"),
+                    author: Some("a2"),
+                    quality: Some("PLACE"),
+                    ..good()
+                },
+                None,
+            ),
         ];
         for (i, (raw, expected)) in cases.iter().enumerate() {
             let got = checker.check(raw).err();
@@ -348,8 +497,14 @@ mod tests {
 
     #[test]
     fn projected_coordinates_are_not_range_checked() {
-        let mut checker = Checker::new(Rules { geographic: false, ..rules() });
-        let raw = RawRecord { location: Location::Point(512_000.0, 4_100_000.0), ..good() };
+        let mut checker = Checker::new(Rules {
+            geographic: false,
+            ..rules()
+        });
+        let raw = RawRecord {
+            location: Location::Point(512_000.0, 4_100_000.0),
+            ..good()
+        };
         assert!(checker.check(&raw).is_ok());
     }
 

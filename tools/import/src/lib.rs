@@ -59,7 +59,11 @@ pub struct ImportParams {
     pub quality_field: Option<String>,
 
     /// Quality levels from best to worst.
-    #[arg(long, value_name = "LEVEL,…", default_value = "coordinates,address,place,region")]
+    #[arg(
+        long,
+        value_name = "LEVEL,…",
+        default_value = "coordinates,address,place,region"
+    )]
     pub quality_order: String,
 
     /// Keep only records at this quality level or better (needs --quality-field).
@@ -86,7 +90,8 @@ pub struct Import;
 impl Tool for Import {
     type Params = ImportParams;
     const ID: &'static str = "import";
-    const TITLE: &'static str = "Import stance records into a GeoPackage point layer, checking every row";
+    const TITLE: &'static str =
+        "Import stance records into a GeoPackage point layer, checking every row";
     const DESCRIPTION: &'static str = "Reads a CSV (x/y or WKT columns) or any vector source GDAL reads, \
         maps stance labels to oppose/neutral/support, parses times to UTC, and drops rows with missing or \
         out-of-range coordinates, empty geometries, unknown labels, unparseable times, low geocoding quality, \
@@ -118,8 +123,12 @@ impl Tool for Import {
             Some(spec) => ClassMap::parse(spec).map_err(|m| Error::argument("--classes", m))?,
             None => ClassMap::default(),
         };
-        let quality_order: Vec<String> =
-            params.quality_order.split(',').map(|l| l.trim().to_lowercase()).filter(|l| !l.is_empty()).collect();
+        let quality_order: Vec<String> = params
+            .quality_order
+            .split(',')
+            .map(|l| l.trim().to_lowercase())
+            .filter(|l| !l.is_empty())
+            .collect();
         if quality_order.is_empty() {
             return Err(Error::argument("--quality-order", "is empty; expected levels from best to worst, e.g. coordinates,address,place,region"));
         }
@@ -129,9 +138,20 @@ impl Tool for Import {
                 if params.quality_field.is_none() {
                     return Err(Error::argument("--min-quality", "needs --quality-field"));
                 }
-                Some(quality_order.iter().position(|l| *l == level.trim().to_lowercase()).ok_or_else(|| {
-                    Error::argument("--min-quality", format!("'{level}' is not one of the levels {}", quality_order.join(",")))
-                })?)
+                Some(
+                    quality_order
+                        .iter()
+                        .position(|l| *l == level.trim().to_lowercase())
+                        .ok_or_else(|| {
+                            Error::argument(
+                                "--min-quality",
+                                format!(
+                                    "'{level}' is not one of the levels {}",
+                                    quality_order.join(",")
+                                ),
+                            )
+                        })?,
+                )
             }
         };
         if params.max_per_author == Some(0) {
@@ -146,7 +166,12 @@ impl Tool for Import {
         let keep: Vec<String> = params
             .keep
             .as_deref()
-            .map(|k| k.split(',').map(|f| f.trim().to_owned()).filter(|f| !f.is_empty()).collect())
+            .map(|k| {
+                k.split(',')
+                    .map(|f| f.trim().to_owned())
+                    .filter(|f| !f.is_empty())
+                    .collect()
+            })
             .unwrap_or_default();
 
         // Read.
@@ -178,9 +203,15 @@ impl Tool for Import {
         // Check and write, streaming.
         let name = run.layer_name("");
         if params.rejects.as_deref() == Some(name.as_str()) {
-            return Err(Error::argument("--rejects", format!("'{name}' is also the records layer; choose another name")));
+            return Err(Error::argument(
+                "--rejects",
+                format!("'{name}' is also the records layer; choose another name"),
+            ));
         }
-        let mut out_fields = vec![FieldDef::new("stance", FieldKind::Text), FieldDef::new("stance_value", FieldKind::Integer)];
+        let mut out_fields = vec![
+            FieldDef::new("stance", FieldKind::Text),
+            FieldDef::new("stance_value", FieldKind::Integer),
+        ];
         if params.time_field.is_some() {
             out_fields.push(FieldDef::new("time_utc", FieldKind::DateTime));
         }
@@ -188,9 +219,14 @@ impl Tool for Import {
             out_fields.push(FieldDef::new("quality", FieldKind::Text));
         }
         for k in &keep {
-            let clean = k.to_lowercase().replace(|c: char| !c.is_ascii_alphanumeric(), "_");
+            let clean = k
+                .to_lowercase()
+                .replace(|c: char| !c.is_ascii_alphanumeric(), "_");
             if out_fields.iter().any(|f| f.name == clean) {
-                return Err(Error::argument("--keep", format!("field '{k}' clashes with an output field '{clean}'")));
+                return Err(Error::argument(
+                    "--keep",
+                    format!("field '{k}' clashes with an output field '{clean}'"),
+                ));
             }
             out_fields.push(FieldDef::new(&clean, FieldKind::Text));
         }
@@ -198,7 +234,8 @@ impl Tool for Import {
         let mut rows_read: u64 = 0;
         {
             let (staging, progress, interrupt) = run.writing();
-            let mut writer = staging.create_vector(&name, GeometryKind::Point, Some(&srs), &out_fields)?;
+            let mut writer =
+                staging.create_vector(&name, GeometryKind::Point, Some(&srs), &out_fields)?;
             while let Some(row) = reader.next_row()? {
                 rows_read += 1;
                 let raw = row.record();
@@ -208,10 +245,17 @@ impl Tool for Import {
                         values.push(FieldData::Text(clean.stance.label()));
                         values.push(FieldData::Integer(i64::from(clean.stance.value())));
                         if params.time_field.is_some() {
-                            values.push(clean.time_utc_s.map_or(FieldData::Null, FieldData::DateTime));
+                            values.push(
+                                clean
+                                    .time_utc_s
+                                    .map_or(FieldData::Null, FieldData::DateTime),
+                            );
                         }
                         if params.quality_field.is_some() {
-                            let level = clean.quality_level.and_then(|i| quality_order.get(i)).map(String::as_str);
+                            let level = clean
+                                .quality_level
+                                .and_then(|i| quality_order.get(i))
+                                .map(String::as_str);
                             values.push(level.map_or(FieldData::Null, FieldData::Text));
                         }
                         for kept in &row.keep {
@@ -236,10 +280,19 @@ impl Tool for Import {
 
         // Whole-input checks: a column where nothing parses is an error, not a silent drop.
         if rows_read == 0 {
-            return Err(Error::BadLayer { path: input.clone(), layer: reader.layer_name().unwrap_or_default(), message: "has no rows".into() });
+            return Err(Error::BadLayer {
+                path: input.clone(),
+                layer: reader.layer_name().unwrap_or_default(),
+                message: "has no rows".into(),
+            });
         }
         if checker.stances_recognised == 0 {
-            let found: Vec<String> = checker.unknown_labels.iter().take(10).map(|(l, c)| format!("'{l}' ×{c}")).collect();
+            let found: Vec<String> = checker
+                .unknown_labels
+                .iter()
+                .take(10)
+                .map(|(l, c)| format!("'{l}' ×{c}"))
+                .collect();
             return Err(Error::BadField {
                 path: input.clone(),
                 layer: reader.layer_name().unwrap_or_default(),
@@ -252,14 +305,23 @@ impl Tool for Import {
             });
         }
         if params.time_field.is_some() && checker.times_parsed == 0 {
-            let examples: Vec<&str> = checker.time_examples.values().take(5).map(String::as_str).collect();
+            let examples: Vec<&str> = checker
+                .time_examples
+                .values()
+                .take(5)
+                .map(String::as_str)
+                .collect();
             return Err(Error::BadField {
                 path: input.clone(),
                 layer: reader.layer_name().unwrap_or_default(),
                 field: params.time_field.clone().unwrap_or_default(),
                 message: format!(
                     "no value is an RFC 3339 / ISO 8601 date or date-time (examples: {})",
-                    if examples.is_empty() { "all empty".to_owned() } else { examples.join(" | ") }
+                    if examples.is_empty() {
+                        "all empty".to_owned()
+                    } else {
+                        examples.join(" | ")
+                    }
                 ),
             });
         }
@@ -274,7 +336,9 @@ impl Tool for Import {
                 FieldDef::new("time_raw", FieldKind::Text),
                 FieldDef::new("quality_raw", FieldKind::Text),
             ];
-            let mut writer = run.output().create_vector(rejects_name, GeometryKind::None, None, &fields)?;
+            let mut writer =
+                run.output()
+                    .create_vector(rejects_name, GeometryKind::None, None, &fields)?;
             for (row, reason, raw) in &rejects {
                 writer.add(
                     Shape::None,
@@ -292,14 +356,26 @@ impl Tool for Import {
             writer.finish()?;
         }
 
-        let dropped: BTreeMap<&str, u64> = Reason::ALL.iter().map(|r| (r.name(), checker.dropped.get(r).copied().unwrap_or(0))).collect();
+        let dropped: BTreeMap<&str, u64> = Reason::ALL
+            .iter()
+            .map(|r| (r.name(), checker.dropped.get(r).copied().unwrap_or(0)))
+            .collect();
         let kept: u64 = checker.kept.values().sum();
-        let classes: BTreeMap<&str, u64> = checker.kept.iter().map(|(s, c)| (s.label(), *c)).collect();
+        let classes: BTreeMap<&str, u64> =
+            checker.kept.iter().map(|(s, c)| (s.label(), *c)).collect();
         if kept == 0 {
             return Err(Error::BadLayer {
                 path: input.clone(),
                 layer: reader.layer_name().unwrap_or_default(),
-                message: format!("every row was dropped ({})", dropped.iter().filter(|(_, c)| **c > 0).map(|(r, c)| format!("{r}: {c}")).collect::<Vec<_>>().join(", ")),
+                message: format!(
+                    "every row was dropped ({})",
+                    dropped
+                        .iter()
+                        .filter(|(_, c)| **c > 0)
+                        .map(|(r, c)| format!("{r}: {c}"))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
             });
         }
         run.log(format!(

@@ -83,15 +83,31 @@ pub enum Reader {
 ///
 /// # Errors
 /// Missing file, unknown columns or fields, a source without CRS.
-pub fn open(path: &Path, layer: Option<&str>, params: &ImportParams, fields: &Fields) -> Result<Reader> {
-    let extension = path.extension().map(|e| e.to_string_lossy().to_lowercase()).unwrap_or_default();
+pub fn open(
+    path: &Path,
+    layer: Option<&str>,
+    params: &ImportParams,
+    fields: &Fields,
+) -> Result<Reader> {
+    let extension = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_lowercase())
+        .unwrap_or_default();
     if ["csv", "tsv", "txt"].contains(&extension.as_str()) {
-        Ok(Reader::Csv(CsvReader::open(path, params, fields, extension == "tsv")?))
+        Ok(Reader::Csv(CsvReader::open(
+            path,
+            params,
+            fields,
+            extension == "tsv",
+        )?))
     } else {
         if params.x_field.is_some() || params.y_field.is_some() || params.wkt_field.is_some() {
             return Err(Error::argument(
                 "--x-field/--y-field/--wkt-field",
-                format!("apply to CSV input only; {} is read through GDAL with its own geometry", path.display()),
+                format!(
+                    "apply to CSV input only; {} is read through GDAL with its own geometry",
+                    path.display()
+                ),
             ));
         }
         Ok(Reader::Gdal(GdalReader::open(path, layer, params, fields)?))
@@ -136,7 +152,10 @@ impl Reader {
 }
 
 /// Reads the source CRS option or a default.
-fn source_srs(params: &ImportParams, default: impl FnOnce() -> Result<SpatialRef>) -> Result<SpatialRef> {
+fn source_srs(
+    params: &ImportParams,
+    default: impl FnOnce() -> Result<SpatialRef>,
+) -> Result<SpatialRef> {
     match &params.source_crs {
         Some(definition) => crs::parse(definition),
         None => default(),
@@ -166,30 +185,58 @@ pub struct CsvReader {
 
 impl CsvReader {
     fn open(path: &Path, params: &ImportParams, fields: &Fields, tabs: bool) -> Result<Self> {
-        let file = std::fs::File::open(path).map_err(|e| Error::InputFile { path: path.to_owned(), reason: e.to_string() })?;
+        let file = std::fs::File::open(path).map_err(|e| Error::InputFile {
+            path: path.to_owned(),
+            reason: e.to_string(),
+        })?;
         let size = file.metadata().map(|m| m.len()).unwrap_or(0);
-        let mut reader = csv::ReaderBuilder::new().delimiter(if tabs { b'\t' } else { b',' }).flexible(true).from_reader(file);
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(if tabs { b'\t' } else { b',' })
+            .flexible(true)
+            .from_reader(file);
         let headers: Vec<String> = reader
             .headers()
-            .map_err(|e| Error::InputFile { path: path.to_owned(), reason: format!("cannot read the CSV header: {e}") })?
+            .map_err(|e| Error::InputFile {
+                path: path.to_owned(),
+                reason: format!("cannot read the CSV header: {e}"),
+            })?
             .iter()
             .map(|h| h.trim().to_owned())
             .collect();
-        let find = |name: &str| headers.iter().position(|h| h == name).or_else(|| headers.iter().position(|h| h.eq_ignore_ascii_case(name)));
+        let find = |name: &str| {
+            headers
+                .iter()
+                .position(|h| h == name)
+                .or_else(|| headers.iter().position(|h| h.eq_ignore_ascii_case(name)))
+        };
         let require = |name: &str| {
-            find(name).ok_or_else(|| Error::ColumnNotFound { path: path.to_owned(), field: name.to_owned(), available: headers.join(", ") })
+            find(name).ok_or_else(|| Error::ColumnNotFound {
+                path: path.to_owned(),
+                field: name.to_owned(),
+                available: headers.join(", "),
+            })
         };
         let first_of = |option: &str, candidates: &[&str]| {
             candidates.iter().find_map(|c| find(c)).ok_or_else(|| {
                 Error::argument(
                     option,
-                    format!("{}: none of the columns {} found (columns: {}); name one with {option}", path.display(), candidates.join(", "), headers.join(", ")),
+                    format!(
+                        "{}: none of the columns {} found (columns: {}); name one with {option}",
+                        path.display(),
+                        candidates.join(", "),
+                        headers.join(", ")
+                    ),
                 )
             })
         };
         let geometry = match (&params.wkt_field, &params.x_field, &params.y_field) {
             (Some(wkt), None, None) => Geometry::Wkt(require(wkt)?),
-            (Some(_), _, _) => return Err(Error::argument("--wkt-field", "give either --wkt-field or --x-field/--y-field, not both")),
+            (Some(_), _, _) => {
+                return Err(Error::argument(
+                    "--wkt-field",
+                    "give either --wkt-field or --x-field/--y-field, not both",
+                ))
+            }
             (None, x, y) => Geometry::Columns {
                 x: match x {
                     Some(x) => require(x)?,
@@ -212,7 +259,11 @@ impl CsvReader {
             author: optional(&fields.author)?,
             text: optional(&fields.text)?,
             quality: optional(&fields.quality)?,
-            keep: fields.keep.iter().map(|k| require(k)).collect::<Result<_>>()?,
+            keep: fields
+                .keep
+                .iter()
+                .map(|k| require(k))
+                .collect::<Result<_>>()?,
             srs: source_srs(params, crs::wgs84)?,
             reader,
             row: 0,
@@ -220,23 +271,39 @@ impl CsvReader {
     }
 
     fn next_row(&mut self) -> Result<Option<Row>> {
-        let more = self.reader.read_record(&mut self.record).map_err(|e| Error::InputFile {
-            path: self.path.clone(),
-            reason: format!("malformed CSV after data row {}: {e}", self.row),
-        })?;
+        let more = self
+            .reader
+            .read_record(&mut self.record)
+            .map_err(|e| Error::InputFile {
+                path: self.path.clone(),
+                reason: format!("malformed CSV after data row {}: {e}", self.row),
+            })?;
         if !more {
             return Ok(None);
         }
         self.row += 1;
         let record = &self.record;
-        let get = |i: usize| record.get(i).map(str::trim).filter(|v| !v.is_empty()).map(str::to_owned);
+        let get = |i: usize| {
+            record
+                .get(i)
+                .map(str::trim)
+                .filter(|v| !v.is_empty())
+                .map(str::to_owned)
+        };
         let opt = |i: Option<usize>| i.and_then(get);
         let (location, x_raw, y_raw) = match self.geometry {
             Geometry::Columns { x, y } => {
                 let (xr, yr) = (get(x), get(y));
-                let location = match (xr.as_deref().map(str::parse::<f64>), yr.as_deref().map(str::parse::<f64>)) {
+                let location = match (
+                    xr.as_deref().map(str::parse::<f64>),
+                    yr.as_deref().map(str::parse::<f64>),
+                ) {
                     (Some(Ok(xv)), Some(Ok(yv))) => Location::Point(xv, yv),
-                    _ => Location::Missing(format!("{} {}", xr.clone().unwrap_or_default(), yr.clone().unwrap_or_default())),
+                    _ => Location::Missing(format!(
+                        "{} {}",
+                        xr.clone().unwrap_or_default(),
+                        yr.clone().unwrap_or_default()
+                    )),
                 };
                 (location, xr, yr)
             }
@@ -299,29 +366,67 @@ pub struct GdalReader {
 }
 
 impl GdalReader {
-    fn open(path: &Path, layer: Option<&str>, params: &ImportParams, fields: &Fields) -> Result<Self> {
+    fn open(
+        path: &Path,
+        layer: Option<&str>,
+        params: &ImportParams,
+        fields: &Fields,
+    ) -> Result<Self> {
         if !path.exists() {
-            return Err(Error::InputFile { path: path.to_owned(), reason: "no such file".into() });
+            return Err(Error::InputFile {
+                path: path.to_owned(),
+                reason: "no such file".into(),
+            });
         }
         let dataset = gdal::Dataset::open_ex(
             path,
-            gdal::DatasetOptions { open_flags: gdal::GdalOpenFlags::GDAL_OF_READONLY | gdal::GdalOpenFlags::GDAL_OF_VECTOR, ..Default::default() },
+            gdal::DatasetOptions {
+                open_flags: gdal::GdalOpenFlags::GDAL_OF_READONLY
+                    | gdal::GdalOpenFlags::GDAL_OF_VECTOR,
+                ..Default::default()
+            },
         )
-        .map_err(|e| Error::InputFile { path: path.to_owned(), reason: format!("GDAL cannot read it as a vector source ({e})") })?;
+        .map_err(|e| Error::InputFile {
+            path: path.to_owned(),
+            reason: format!("GDAL cannot read it as a vector source ({e})"),
+        })?;
         let names: Vec<String> = dataset.layers().map(|l| l.name()).collect();
         let name = match layer {
-            Some(l) => names.iter().find(|n| *n == l).cloned().ok_or_else(|| Error::LayerNotFound {
-                path: path.to_owned(),
-                layer: l.to_owned(),
-                available: names.join(", "),
-            })?,
+            Some(l) => {
+                names
+                    .iter()
+                    .find(|n| *n == l)
+                    .cloned()
+                    .ok_or_else(|| Error::LayerNotFound {
+                        path: path.to_owned(),
+                        layer: l.to_owned(),
+                        available: names.join(", "),
+                    })?
+            }
             None => match names.as_slice() {
                 [one] => one.clone(),
-                [] => return Err(Error::BadLayer { path: path.to_owned(), layer: String::new(), message: "the source has no layers".into() }),
-                _ => return Err(Error::argument("--layer", format!("{} has several layers; name one ({})", path.display(), names.join(", ")))),
+                [] => {
+                    return Err(Error::BadLayer {
+                        path: path.to_owned(),
+                        layer: String::new(),
+                        message: "the source has no layers".into(),
+                    })
+                }
+                _ => {
+                    return Err(Error::argument(
+                        "--layer",
+                        format!(
+                            "{} has several layers; name one ({})",
+                            path.display(),
+                            names.join(", ")
+                        ),
+                    ))
+                }
             },
         };
-        let owned = dataset.into_layer_by_name(&name).map_err(Error::gdal(format!("opening layer '{name}'")))?;
+        let owned = dataset
+            .into_layer_by_name(&name)
+            .map_err(Error::gdal(format!("opening layer '{name}'")))?;
         let available: Vec<String> = owned.defn().fields().map(|f| f.name()).collect();
         let require = |field: &str| {
             available
@@ -337,14 +442,19 @@ impl GdalReader {
         };
         let optional = |f: &Option<String>| f.as_deref().map(require).transpose();
         let srs = source_srs(params, || {
-            owned.spatial_ref().map(|mut s| {
-                s.set_axis_mapping_strategy(gdal::spatial_ref::AxisMappingStrategy::TraditionalGisOrder);
-                s
-            }).ok_or_else(|| Error::BadLayer {
-                path: path.to_owned(),
-                layer: name.clone(),
-                message: "has no CRS; give the coordinates' CRS with --source-crs".into(),
-            })
+            owned
+                .spatial_ref()
+                .map(|mut s| {
+                    s.set_axis_mapping_strategy(
+                        gdal::spatial_ref::AxisMappingStrategy::TraditionalGisOrder,
+                    );
+                    s
+                })
+                .ok_or_else(|| Error::BadLayer {
+                    path: path.to_owned(),
+                    layer: name.clone(),
+                    message: "has no CRS; give the coordinates' CRS with --source-crs".into(),
+                })
         })?;
         let count = owned.feature_count();
         Ok(GdalReader {
@@ -353,7 +463,11 @@ impl GdalReader {
             author: optional(&fields.author)?,
             text: optional(&fields.text)?,
             quality: optional(&fields.quality)?,
-            keep: fields.keep.iter().map(|k| require(k)).collect::<Result<_>>()?,
+            keep: fields
+                .keep
+                .iter()
+                .map(|k| require(k))
+                .collect::<Result<_>>()?,
             layer: name,
             features: owned.owned_features(),
             srs,
@@ -365,7 +479,14 @@ impl GdalReader {
     fn next_row(&mut self) -> Option<Row> {
         let feature = self.features.into_iter().next()?;
         self.read += 1;
-        let get = |i: usize| feature.field_as_string(i).ok().flatten().map(|s| s.trim().to_owned()).filter(|s| !s.is_empty());
+        let get = |i: usize| {
+            feature
+                .field_as_string(i)
+                .ok()
+                .flatten()
+                .map(|s| s.trim().to_owned())
+                .filter(|s| !s.is_empty())
+        };
         let opt = |i: Option<usize>| i.and_then(get);
         let location = match feature.geometry() {
             None => Location::Missing(String::new()),

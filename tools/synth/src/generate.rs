@@ -1,4 +1,4 @@
-//! Invented "Veldmark" stance scenario: a Thomas-type cluster process around towns (Diggle 2013, Statistical Analysis of Spatial and Spatio-Temporal Point Patterns, 3rd ed.) with planted stance zones, a planted burst and Dawid–Skene (1979) label noise.
+//! Invented "Veldmark" stance scenario: town-centred Gaussian clusters as in a Thomas process (Diggle 2013, Statistical Analysis of Spatial and Spatio-Temporal Point Patterns, 3rd ed.), planted stance zones and burst, Dawid & Skene (1979) label noise.
 
 use geo_types::{Coord, LineString, Polygon};
 use rand::{Rng, SeedableRng};

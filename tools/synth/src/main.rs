@@ -1,1 +1,3 @@
-fn main() {}
+fn main() -> std::process::ExitCode {
+    stance_core::host::main::<stance_synth::Synth>()
+}
