@@ -363,6 +363,8 @@ pub struct GdalReader {
     keep: Vec<usize>,
     count: u64,
     read: u64,
+    /// Whether the time field is a typed OGR date or date-time (read as a value, not OGR's text form).
+    typed_time: bool,
 }
 
 impl GdalReader {
@@ -457,7 +459,17 @@ impl GdalReader {
                 })
         })?;
         let count = owned.feature_count();
+        let time = optional(&fields.time)?;
+        let typed_time = time.is_some_and(|i| {
+            owned.defn().fields().nth(i).is_some_and(|f| {
+                matches!(
+                    f.field_type(),
+                    gdal::vector::OGRFieldType::OFTDateTime | gdal::vector::OGRFieldType::OFTDate
+                )
+            })
+        });
         Ok(GdalReader {
+            typed_time,
             stance: require(&fields.stance)?,
             time: optional(&fields.time)?,
             author: optional(&fields.author)?,
@@ -502,7 +514,15 @@ impl GdalReader {
             x_raw,
             y_raw,
             stance: get(self.stance),
-            time: opt(self.time),
+            time: match self.time {
+                // OGR's text form of a date-time ("2026/03/02 18:36:09+00") is not ISO 8601.
+                Some(i) if self.typed_time => feature
+                    .field_as_datetime(i)
+                    .ok()
+                    .flatten()
+                    .map(|t| t.to_rfc3339()),
+                other => opt(other),
+            },
             author: opt(self.author),
             text: opt(self.text),
             quality: opt(self.quality),
