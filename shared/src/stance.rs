@@ -55,15 +55,9 @@ impl fmt::Display for Stance {
 
 /// Maps a field's labels to stance classes: the canonical labels by default, or the user's
 /// `--classes "label=class,…"` (labels compared case-insensitively, trimmed).
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
 pub struct ClassMap {
     custom: Option<Vec<(String, Stance)>>,
-}
-
-impl Default for ClassMap {
-    fn default() -> Self {
-        ClassMap { custom: None }
-    }
 }
 
 impl ClassMap {

@@ -115,16 +115,30 @@ def read_vector(path, name, geometry_type):
     return layer
 
 
-def raster_tables(path):
+def contents(path, data_types):
+    """Table names of `gpkg_contents` with one of `data_types`, sorted."""
     connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
     try:
+        marks = ", ".join("?" for _ in data_types)
         rows = connection.execute(
-            "SELECT table_name FROM gpkg_contents WHERE data_type = '2d-gridded-coverage' "
-            "ORDER BY table_name"
+            f"SELECT table_name FROM gpkg_contents WHERE data_type IN ({marks}) "
+            "ORDER BY table_name",
+            list(data_types),
         ).fetchall()
     finally:
         connection.close()
     return [r[0] for r in rows]
+
+
+def vector_layers(path):
+    """(name, geometry type) of every vector layer as pyogrio lists them.
+
+    pyogrio opens files in vector mode, in which GDAL refuses a GeoPackage that holds only
+    rasters ("not recognized as being in a supported file format"): such a file has no layers.
+    """
+    if not contents(path, ["features", "attributes"]):
+        return []
+    return [(str(n), str(g)) for n, g in pyogrio.list_layers(path)]
 
 
 def read_raster(path, name):
@@ -164,8 +178,8 @@ def main(argv):
             "rasterio": rasterio.__version__,
             "rasterio_gdal": rasterio.__gdal_version__,
         },
-        "vector": [read_vector(path, str(n), str(g)) for n, g in pyogrio.list_layers(path)],
-        "raster": [read_raster(path, name) for name in raster_tables(path)],
+        "vector": [read_vector(path, n, g) for n, g in vector_layers(path)],
+        "raster": [read_raster(path, n) for n in contents(path, ["2d-gridded-coverage"])],
     }
     json.dump(result, sys.stdout, allow_nan=False)
     sys.stdout.write("\n")

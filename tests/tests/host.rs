@@ -422,7 +422,7 @@ fn inputs_are_never_modified_and_provenance_is_complete() {
 #[test]
 fn sigterm_rolls_back_and_exits_non_zero() {
     let dir = out_dir("sigterm");
-    let mut child = std::process::Command::new(stance_tests::bin("stance-synth"))
+    let child = std::process::Command::new(stance_tests::bin("stance-synth"))
         .args(["--output", "o.gpkg", "--points", "3000000", "-q"])
         .current_dir(&dir)
         .stdout(std::process::Stdio::piped())

@@ -65,24 +65,25 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
     dataset
         .set_spatial_ref(surface.srs)
         .map_err(Error::gdal(ctx()))?;
-    let mut band = dataset.rasterband(1).map_err(Error::gdal(ctx()))?;
-    // GDAL's GeoPackage driver stores the value but may report an error with an empty message
-    // (DESIGN.md); what counts is that the value reads back.
-    let _ = band.set_no_data_value(Some(f64::from(NODATA)));
-    if band.no_data_value() != Some(f64::from(NODATA)) {
-        return Err(Error::Failed(format!(
-            "surface '{name}': nodata value was not stored"
-        )));
+    {
+        let mut band = dataset.rasterband(1).map_err(Error::gdal(ctx()))?;
+        // GDAL's GeoPackage driver stores the value but may report an error with an empty message
+        // (DESIGN.md); what counts is that the value reads back.
+        let _ = band.set_no_data_value(Some(f64::from(NODATA)));
+        if band.no_data_value() != Some(f64::from(NODATA)) {
+            return Err(Error::Failed(format!(
+                "surface '{name}': nodata value was not stored"
+            )));
+        }
+        let data: Vec<f32> = surface
+            .values
+            .iter()
+            .map(|v| if v.is_finite() { *v } else { NODATA })
+            .collect();
+        let mut buffer = Buffer::new((grid.cols, grid.rows), data);
+        band.write((0, 0), (grid.cols, grid.rows), &mut buffer)
+            .map_err(Error::gdal(ctx()))?;
     }
-    let data: Vec<f32> = surface
-        .values
-        .iter()
-        .map(|v| if v.is_finite() { *v } else { NODATA })
-        .collect();
-    let mut buffer = Buffer::new((grid.cols, grid.rows), data);
-    band.write((0, 0), (grid.cols, grid.rows), &mut buffer)
-        .map_err(Error::gdal(ctx()))?;
-    drop(band);
     dataset.close().map_err(Error::gdal(ctx()))?;
     Ok(())
 }

@@ -289,32 +289,33 @@ impl Staging {
             .as_mut()
             .ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
         let context = format!("creating layer '{name_owned}'");
-        let layer = dataset
-            .create_layer(LayerOptions {
-                name: &name_owned,
-                srs: if kind == GeometryKind::None {
-                    None
-                } else {
-                    srs
-                },
-                ty,
-                options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
-            })
-            .map_err(Error::gdal(context.clone()))?;
-        for field in fields {
-            let ogr_type = match field.kind {
-                FieldKind::Integer => OGRFieldType::OFTInteger64,
-                FieldKind::Real => OGRFieldType::OFTReal,
-                FieldKind::Text => OGRFieldType::OFTString,
-                FieldKind::DateTime => OGRFieldType::OFTDateTime,
-            };
-            let definition = gdal::vector::FieldDefn::new(&field.name, ogr_type)
+        {
+            let layer = dataset
+                .create_layer(LayerOptions {
+                    name: &name_owned,
+                    srs: if kind == GeometryKind::None {
+                        None
+                    } else {
+                        srs
+                    },
+                    ty,
+                    options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
+                })
                 .map_err(Error::gdal(context.clone()))?;
-            definition
-                .add_to_layer(&layer)
-                .map_err(Error::gdal(context.clone()))?;
+            for field in fields {
+                let ogr_type = match field.kind {
+                    FieldKind::Integer => OGRFieldType::OFTInteger64,
+                    FieldKind::Real => OGRFieldType::OFTReal,
+                    FieldKind::Text => OGRFieldType::OFTString,
+                    FieldKind::DateTime => OGRFieldType::OFTDateTime,
+                };
+                let definition = gdal::vector::FieldDefn::new(&field.name, ogr_type)
+                    .map_err(Error::gdal(context.clone()))?;
+                definition
+                    .add_to_layer(&layer)
+                    .map_err(Error::gdal(context.clone()))?;
+            }
         }
-        drop(layer);
         // SAFETY: the handle is valid while `dataset` lives; a failure only costs speed.
         let c_dataset = dataset.c_dataset();
         unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };

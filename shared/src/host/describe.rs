@@ -29,10 +29,8 @@ pub fn describe<T: Tool>() -> Value {
             if name == "describe" {
                 continue;
             }
-            if name == "input" || name == "layer" {
-                if T::INPUT == super::InputUse::None {
-                    continue;
-                }
+            if (name == "input" || name == "layer") && T::INPUT == super::InputUse::None {
+                continue;
             }
             let arg = command
                 .get_arguments()

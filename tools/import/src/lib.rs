@@ -269,7 +269,7 @@ impl Tool for Import {
                         }
                     }
                 }
-                if rows_read % 65_536 == 0 {
+                if rows_read.is_multiple_of(65_536) {
                     progress.set(reader.fraction_read());
                     interrupt.check()?;
                 }

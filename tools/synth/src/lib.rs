@@ -1,6 +1,7 @@
 //! stance-synth: generates the invented scenario (region, towns, districts, records with planted
 //! zones) used by the demo, the tests and the benchmarks.
 
+pub mod defects;
 pub mod generate;
 
 use std::f64::consts::PI;
@@ -11,6 +12,7 @@ use stance_core::gpkg::crs;
 use stance_core::gpkg::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Shape};
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 
+use defects::Defect;
 use generate::{generate, metres_between, stance_label, ScenarioParams, EARTH_RADIUS_M};
 
 /// Parameters of stance-synth.
@@ -24,6 +26,12 @@ pub struct SynthParams {
     /// Also write the records as CSV (lon, lat, stance, labels, time, author, text, quality).
     #[arg(long, value_name = "FILE")]
     pub csv: Option<std::path::PathBuf>,
+
+    /// Share of CSV rows given a typical defect (missing or swapped coordinates, label typo,
+    /// local time format, blank time), so the import checks have work to do; the GeoPackage
+    /// records stay clean.
+    #[arg(long, value_name = "SHARE", default_value_t = 0.01)]
+    pub csv_defects: f64,
 }
 
 /// The scenario generator tool.
@@ -112,6 +120,12 @@ impl Tool for Synth {
     }
 
     fn run(params: &SynthParams, run: &mut Run) -> Result<Value> {
+        if !(0.0..=1.0).contains(&params.csv_defects) {
+            return Err(Error::argument(
+                "--csv-defects",
+                format!("{} is not a share between 0 and 1", params.csv_defects),
+            ));
+        }
         if params.points == 0 || params.points > 50_000_000 {
             return Err(Error::argument(
                 "--points",
@@ -135,6 +149,8 @@ impl Tool for Synth {
             Some(path) => Some(run.output().side_file(path)?),
             None => None,
         };
+        let run_seed = run.common.seed;
+        let mut csv_defects = 0usize;
         let (staging, progress, interrupt) = run.writing();
 
         let fields = [
@@ -163,7 +179,7 @@ impl Tool for Synth {
                     FieldData::Text(&scenario.towns[r.town].name),
                 ],
             )?;
-            if i % 65_536 == 0 {
+            if i.is_multiple_of(65_536) {
                 progress.set(0.3 + 0.5 * i as f64 / scenario.records.len() as f64);
                 interrupt.check()?;
             }
@@ -268,21 +284,45 @@ impl Tool for Synth {
                 "quality",
             ])
             .map_err(io)?;
+            let mut defects_written = 0usize;
             for (i, r) in scenario.records.iter().enumerate() {
+                let mut lon = format!("{:.6}", r.lon);
+                let mut lat = format!("{:.6}", r.lat);
+                let mut stance = stance_label(r.stance).to_owned();
+                let mut time = stance_core::time::format_utc(r.time_unix_s);
+                if let Some((defect, detail)) = defects::defect_for(i, run_seed, params.csv_defects)
+                {
+                    defects_written += 1;
+                    match defect {
+                        Defect::MissingCoordinates => (lon, lat) = (String::new(), String::new()),
+                        Defect::SwappedCoordinates => std::mem::swap(&mut lon, &mut lat),
+                        Defect::LabelTypo => {
+                            stance = defects::TYPOS[(detail % defects::TYPOS.len() as u64) as usize]
+                                .to_owned()
+                        }
+                        Defect::LocalTimeFormat => {
+                            if let Some(t) = chrono::DateTime::from_timestamp(r.time_unix_s, 0) {
+                                time = t.format("%m/%d/%Y %I:%M %p").to_string();
+                            }
+                        }
+                        Defect::BlankTime => time.clear(),
+                    }
+                }
                 csv.write_record([
                     (i + 1).to_string(),
-                    format!("{:.6}", r.lon),
-                    format!("{:.6}", r.lat),
-                    stance_label(r.stance).to_owned(),
+                    lon,
+                    lat,
+                    stance,
                     stance_label(r.label_a).to_owned(),
                     stance_label(r.label_b).to_owned(),
-                    stance_core::time::format_utc(r.time_unix_s),
+                    time,
                     r.author.clone(),
                     r.text.clone(),
                     r.quality.as_str().to_owned(),
                 ])
                 .map_err(io)?;
             }
+            csv_defects = defects_written;
             csv.flush()
                 .map_err(|e| Error::Failed(format!("writing CSV: {e}")))?;
         }
@@ -311,6 +351,7 @@ impl Tool for Synth {
             "confusion_a": scenario.confusion_a,
             "confusion_b": scenario.confusion_b,
             "layers": [records_name, districts_name, towns_name, truth_name],
+            "csv_rows_with_defects": csv_defects,
         }))
     }
 }
