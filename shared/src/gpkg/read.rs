@@ -389,21 +389,23 @@ impl ColumnBuilder {
     fn push(&mut self, value: ValueRef<'_>) -> std::result::Result<(), String> {
         match self {
             ColumnBuilder::Text(column, index) => {
-                let text = match value {
+                // Look up by borrowed text first: most rows repeat a few labels, so the hot
+                // path allocates nothing.
+                let text: Option<std::borrow::Cow<'_, str>> = match value {
                     ValueRef::Null => None,
-                    ValueRef::Integer(i) => Some(i.to_string()),
-                    ValueRef::Real(r) => Some(r.to_string()),
-                    ValueRef::Text(t) => Some(String::from_utf8_lossy(t).into_owned()),
+                    ValueRef::Integer(i) => Some(i.to_string().into()),
+                    ValueRef::Real(r) => Some(r.to_string().into()),
+                    ValueRef::Text(t) => Some(String::from_utf8_lossy(t)),
                     ValueRef::Blob(_) => return Err("holds a binary value; expected text".into()),
                 };
                 let code = match text {
                     None => TextColumn::NULL,
-                    Some(text) => match index.get(&text) {
+                    Some(text) => match index.get(text.as_ref()) {
                         Some(code) => *code,
                         None => {
                             let code = column.values.len() as u32;
-                            column.values.push(text.clone());
-                            index.insert(text, code);
+                            column.values.push(text.clone().into_owned());
+                            index.insert(text.into_owned(), code);
                             code
                         }
                     },
