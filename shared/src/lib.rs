@@ -4,6 +4,8 @@ pub mod error;
 pub mod gpkg;
 pub mod grid;
 pub mod host;
+pub mod montecarlo;
+pub mod multiple;
 pub mod stance;
 pub mod time;
 

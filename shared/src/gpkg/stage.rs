@@ -93,6 +93,33 @@ pub enum Shape<'a> {
     MultiPolygon(&'a geo_types::MultiPolygon<f64>),
 }
 
+/// Values of one extra field for [`Staging::copy_with_fields`], one per feature.
+#[derive(Debug, Clone)]
+pub enum ExtraColumn {
+    /// Integers (None = NULL).
+    Integer(Vec<Option<i64>>),
+    /// Reals (None or non-finite = NULL).
+    Real(Vec<Option<f64>>),
+    /// Text (None = NULL).
+    Text(Vec<Option<String>>),
+}
+
+impl ExtraColumn {
+    /// Number of values.
+    pub fn len(&self) -> usize {
+        match self {
+            ExtraColumn::Integer(v) => v.len(),
+            ExtraColumn::Real(v) => v.len(),
+            ExtraColumn::Text(v) => v.len(),
+        }
+    }
+
+    /// True when it holds no values.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+}
+
 /// A layer staged in this run.
 #[derive(Debug, Clone)]
 pub struct StagedLayer {
@@ -335,6 +362,110 @@ impl Staging {
                 "features"
             },
         })
+    }
+
+    /// Copies layer `layer` of the GeoPackage `source` into the staged layer `name` — geometry,
+    /// CRS and every field kept — and appends the `extra` columns. Each extra column holds one
+    /// value per feature, aligned with `fids` (the order [`super::read::read_polygons`] returns).
+    ///
+    /// # Errors
+    /// Name problems, an extra field that clashes with a field of the source, a feature whose
+    /// fid is not in `fids`, or GDAL failures.
+    pub fn copy_with_fields(&mut self, source: &Path, layer: &str, name: &str, fids: &[i64], extra: &[(FieldDef, ExtraColumn)]) -> Result<u64> {
+        self.check_name(name)?;
+        let bad = |message: String| Error::BadLayer { path: source.to_owned(), layer: layer.to_owned(), message };
+        let dataset = super::open_geopackage(source)?;
+        let mut input = dataset.layer_by_name(layer).map_err(|e| bad(e.to_string()))?;
+        let source_fields: Vec<(String, u32)> = input.defn().fields().map(|f| (f.name(), f.field_type())).collect();
+        for (field, column) in extra {
+            if source_fields.iter().any(|(n, _)| n.eq_ignore_ascii_case(&field.name)) {
+                return Err(Error::argument(
+                    "--name",
+                    format!("layer '{layer}' already has a field '{}'; the copy cannot add it again", field.name),
+                ));
+            }
+            if column.len() != fids.len() {
+                return Err(Error::Failed(format!("extra field '{}': {} values for {} features", field.name, column.len(), fids.len())));
+            }
+        }
+        let index: std::collections::HashMap<i64, usize> = fids.iter().enumerate().map(|(i, f)| (*f, i)).collect();
+        let srs = input.spatial_ref();
+        let geometry_type = input.defn().geometry_type();
+        let name_owned = name.to_owned();
+        self.open_dataset()?;
+        let dataset_out = self.dataset.as_mut().ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
+        let context = format!("copying layer '{layer}' to '{name_owned}'");
+        {
+            let created = dataset_out
+                .create_layer(LayerOptions {
+                    name: &name_owned,
+                    srs: srs.as_ref(),
+                    ty: geometry_type,
+                    options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
+                })
+                .map_err(Error::gdal(context.clone()))?;
+            for (field_name, field_type) in &source_fields {
+                gdal::vector::FieldDefn::new(field_name, *field_type)
+                    .and_then(|d| d.add_to_layer(&created))
+                    .map_err(Error::gdal(context.clone()))?;
+            }
+            for (field, _) in extra {
+                let ogr_type = match field.kind {
+                    FieldKind::Integer => OGRFieldType::OFTInteger64,
+                    FieldKind::Real => OGRFieldType::OFTReal,
+                    FieldKind::Text => OGRFieldType::OFTString,
+                    FieldKind::DateTime => OGRFieldType::OFTDateTime,
+                };
+                gdal::vector::FieldDefn::new(&field.name, ogr_type)
+                    .and_then(|d| d.add_to_layer(&created))
+                    .map_err(Error::gdal(context.clone()))?;
+            }
+        }
+        let c_dataset = dataset_out.c_dataset();
+        // SAFETY: the handle is valid while `dataset_out` lives; a failure only costs speed.
+        unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };
+        let output = dataset_out.layer_by_name(&name_owned).map_err(Error::gdal(context.clone()))?;
+        let mut count = 0u64;
+        for feature in input.features() {
+            let fid = feature.fid().map(|f| f as i64).unwrap_or(-1);
+            let row = *index.get(&fid).ok_or_else(|| bad(format!("feature {fid} was not read before copying")))?;
+            let mut copy = Feature::new(output.defn()).map_err(Error::gdal(context.clone()))?;
+            for i in 0..source_fields.len() {
+                if let Some(value) = feature.field(i).map_err(Error::gdal(context.clone()))? {
+                    copy.set_field(i, &value).map_err(Error::gdal(context.clone()))?;
+                }
+            }
+            for (j, (_, column)) in extra.iter().enumerate() {
+                let i = source_fields.len() + j;
+                let result = match column {
+                    ExtraColumn::Integer(v) => match v[row] {
+                        Some(x) => copy.set_field_integer64(i, x),
+                        None => copy.set_field_null(i),
+                    },
+                    ExtraColumn::Real(v) => match v[row] {
+                        Some(x) if x.is_finite() => copy.set_field_double(i, x),
+                        _ => copy.set_field_null(i),
+                    },
+                    ExtraColumn::Text(v) => match v[row].as_deref() {
+                        Some(x) => copy.set_field_string(i, x),
+                        None => copy.set_field_null(i),
+                    },
+                };
+                result.map_err(Error::gdal(context.clone()))?;
+            }
+            if let Some(geometry) = feature.geometry() {
+                copy.set_geometry(geometry.clone()).map_err(Error::gdal(context.clone()))?;
+            }
+            copy.create(&output).map_err(Error::gdal(context.clone()))?;
+            count += 1;
+        }
+        // SAFETY: as above.
+        let status = unsafe { gdal_sys::GDALDatasetCommitTransaction(c_dataset) };
+        if status != gdal_sys::OGRErr::OGRERR_NONE {
+            return Err(Error::Failed(format!("committing layer '{name_owned}' failed (OGR error {status})")));
+        }
+        self.layers.push(StagedLayer { name: name_owned, data_type: "features", count });
+        Ok(count)
     }
 
     /// Writes a Float32 surface `name` (gridded coverage, TIFF tiles, nodata −9999).
