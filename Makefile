@@ -6,7 +6,7 @@ SAMPLE := sample-gpkg
 BIN := target/release
 TEST_OUT := target/test-output
 
-.PHONY: demo test deps venv build build-debug sample bench fmt clean
+.PHONY: demo test deps venv build build-debug sample bench reference fmt clean
 
 deps:
 	@.ci/install-deps
@@ -48,6 +48,10 @@ sample: build
 
 bench: build venv
 	tests/bench/import_vs_ogr2ogr.sh
+
+# Reruns the scripts that produce the reference numbers (R spdep/spatstat, PySAL, SciPy, KDEpy).
+reference:
+	.ci/make-reference
 
 fmt:
 	$(CARGO) fmt --all
