@@ -8,6 +8,7 @@ pub mod montecarlo;
 pub mod multiple;
 pub mod stance;
 pub mod time;
+pub mod weights;
 
 pub use error::{Error, Result};
 
