@@ -194,6 +194,7 @@ impl Staging {
             .duration_since(std::time::UNIX_EPOCH)
             .map(|d| d.subsec_nanos())
             .unwrap_or(0);
+        remove_stale_staging(&directory, &file_name);
         let path = directory.join(format!(
             ".{file_name}.stance-staging-{}-{nanos}.gpkg",
             std::process::id()
@@ -604,6 +605,24 @@ impl Drop for Staging {
             let mut path = self.path.clone().into_os_string();
             path.push(suffix);
             let _ = std::fs::remove_file(PathBuf::from(path));
+        }
+    }
+}
+
+/// Removes staging files of `file_name` left by runs that were killed (SIGKILL leaves no chance
+/// to clean up): those whose process id no longer exists. Linux only (needs `/proc`).
+fn remove_stale_staging(directory: &Path, file_name: &str) {
+    if !Path::new("/proc/self").exists() {
+        return;
+    }
+    let prefix = format!(".{file_name}.stance-staging-");
+    let Ok(entries) = std::fs::read_dir(directory) else { return };
+    for entry in entries.flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        let Some(rest) = name.strip_prefix(&prefix) else { continue };
+        let Some(pid) = rest.split('-').next().and_then(|p| p.parse::<u32>().ok()) else { continue };
+        if pid != std::process::id() && !Path::new(&format!("/proc/{pid}")).exists() {
+            let _ = std::fs::remove_file(entry.path());
         }
     }
 }

@@ -1,1 +1,0 @@
-fn main() -> std::process::ExitCode { stance_core::host::main::<stance_rates::Rates>() }

@@ -1,3 +1,0 @@
-fn main() -> std::process::ExitCode {
-    stance_core::host::main::<stance_render::Render>()
-}
