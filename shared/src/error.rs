@@ -45,6 +45,10 @@ pub enum Error {
         available: String,
     },
 
+    /// The input as a whole cannot be used (no rows, every row dropped…).
+    #[error("{}: {message}", path.display())]
+    BadInput { path: PathBuf, message: String },
+
     /// A named column is missing from a CSV file.
     #[error("{}: no column '{field}' (columns present: {available})", path.display())]
     ColumnNotFound {
@@ -111,6 +115,7 @@ impl Error {
             | Error::BadLayer { .. }
             | Error::FieldNotFound { .. }
             | Error::ColumnNotFound { .. }
+            | Error::BadInput { .. }
             | Error::BadField { .. }
             | Error::BadOutput { .. }
             | Error::Crs { .. } => 2,

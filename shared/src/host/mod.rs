@@ -149,6 +149,14 @@ fn clap_exit(id: &str, error: clap::Error) -> ExitCode {
 fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
     let started = chrono::Utc::now();
     let clock = Instant::now();
+    // GDAL and PROJ print their own warnings and errors to stderr; the toolbox reports every
+    // failure in one line of its own, so theirs are shown only with -v.
+    let show_gdal = common.verbose && !common.quiet;
+    gdal::config::set_error_handler(move |class, number, message| {
+        if show_gdal {
+            eprintln!("gdal: {class:?} {number}: {message}");
+        }
+    });
     let interrupted = Arc::new(AtomicBool::new(false));
     for signal in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
         // A second signal ends the process at once; the first lets the run roll back.

@@ -279,14 +279,21 @@ impl Tool for Import {
         run.progress.set(1.0);
 
         // Whole-input checks: a column where nothing parses is an error, not a silent drop.
-        if rows_read == 0 {
-            return Err(Error::BadLayer {
+        let whole = |message: String| match reader.layer_name() {
+            Some(layer) => Error::BadLayer {
                 path: input.clone(),
-                layer: reader.layer_name().unwrap_or_default(),
-                message: "has no rows".into(),
-            });
+                layer,
+                message,
+            },
+            None => Error::BadInput {
+                path: input.clone(),
+                message,
+            },
+        };
+        if rows_read == 0 {
+            return Err(whole("has no rows".into()));
         }
-        if checker.stances_recognised == 0 {
+        if checker.stances_recognised == 0 && !checker.unknown_labels.is_empty() {
             let found: Vec<String> = checker
                 .unknown_labels
                 .iter()
@@ -295,7 +302,7 @@ impl Tool for Import {
                 .collect();
             return Err(Error::BadField {
                 path: input.clone(),
-                layer: reader.layer_name().unwrap_or_default(),
+                layer: reader.layer_name().unwrap_or_else(|| "(csv)".into()),
                 field: params.stance_field.clone(),
                 message: format!(
                     "no value is a known stance label (expected {}; found {}); map them with --classes",
@@ -304,7 +311,10 @@ impl Tool for Import {
                 ),
             });
         }
-        if params.time_field.is_some() && checker.times_parsed == 0 {
+        if params.time_field.is_some()
+            && checker.times_parsed == 0
+            && !checker.time_examples.is_empty()
+        {
             let examples: Vec<&str> = checker
                 .time_examples
                 .values()
@@ -313,19 +323,14 @@ impl Tool for Import {
                 .collect();
             return Err(Error::BadField {
                 path: input.clone(),
-                layer: reader.layer_name().unwrap_or_default(),
+                layer: reader.layer_name().unwrap_or_else(|| "(csv)".into()),
                 field: params.time_field.clone().unwrap_or_default(),
                 message: format!(
                     "no value is an RFC 3339 / ISO 8601 date or date-time (examples: {})",
-                    if examples.is_empty() {
-                        "all empty".to_owned()
-                    } else {
-                        examples.join(" | ")
-                    }
+                    examples.join(" | ")
                 ),
             });
         }
-
         if let Some(rejects_name) = &params.rejects {
             let fields = [
                 FieldDef::new("source_row", FieldKind::Integer),
@@ -364,19 +369,15 @@ impl Tool for Import {
         let classes: BTreeMap<&str, u64> =
             checker.kept.iter().map(|(s, c)| (s.label(), *c)).collect();
         if kept == 0 {
-            return Err(Error::BadLayer {
-                path: input.clone(),
-                layer: reader.layer_name().unwrap_or_default(),
-                message: format!(
-                    "every row was dropped ({})",
-                    dropped
-                        .iter()
-                        .filter(|(_, c)| **c > 0)
-                        .map(|(r, c)| format!("{r}: {c}"))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                ),
-            });
+            let reasons: Vec<String> = dropped
+                .iter()
+                .filter(|(_, c)| **c > 0)
+                .map(|(r, c)| format!("{r}: {c}"))
+                .collect();
+            return Err(whole(format!(
+                "every row was dropped ({})",
+                reasons.join(", ")
+            )));
         }
         run.log(format!(
             "stance-import: kept {kept} of {rows_read} records into layer '{name}'; dropped {}",

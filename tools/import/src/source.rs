@@ -429,6 +429,18 @@ impl GdalReader {
         let owned = dataset
             .into_layer_by_name(&name)
             .map_err(Error::gdal(format!("opening layer '{name}'")))?;
+        let geometry_type = gdal::vector::geometry_type_flatten(owned.defn().geometry_type());
+        if ![OGRwkbGeometryType::wkbPoint, OGRwkbGeometryType::wkbUnknown].contains(&geometry_type)
+        {
+            return Err(Error::BadLayer {
+                path: path.to_owned(),
+                layer: name.clone(),
+                message: format!(
+                    "has {} geometries; expected points",
+                    gdal::vector::geometry_type_to_name(geometry_type)
+                ),
+            });
+        }
         let available: Vec<String> = owned.defn().fields().map(|f| f.name()).collect();
         let require = |field: &str| {
             available
