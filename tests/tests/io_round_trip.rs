@@ -429,26 +429,67 @@ fn a_layer_copy_keeps_geometry_crs_and_fields_and_adds_columns() {
     let path = dir.join("areas.gpkg");
     let srs = crs::parse("EPSG:32610").expect("srs");
     let mut staging = Staging::new(&path, false).expect("staging");
-    let fields = [FieldDef::new("code", FieldKind::Text), FieldDef::new("population", FieldKind::Integer)];
-    let mut writer = staging.create_vector("areas", GeometryKind::MultiPolygon, Some(&srs), &fields).expect("layer");
-    let squares: Vec<_> = (0..3).map(|i| geo_polygon(&[(i as f64 * 10.0, 0.0), (i as f64 * 10.0 + 10.0, 0.0), (i as f64 * 10.0 + 10.0, 10.0), (i as f64 * 10.0, 10.0)])).collect();
+    let fields = [
+        FieldDef::new("code", FieldKind::Text),
+        FieldDef::new("population", FieldKind::Integer),
+    ];
+    let mut writer = staging
+        .create_vector("areas", GeometryKind::MultiPolygon, Some(&srs), &fields)
+        .expect("layer");
+    let squares: Vec<_> = (0..3)
+        .map(|i| {
+            geo_polygon(&[
+                (i as f64 * 10.0, 0.0),
+                (i as f64 * 10.0 + 10.0, 0.0),
+                (i as f64 * 10.0 + 10.0, 10.0),
+                (i as f64 * 10.0, 10.0),
+            ])
+        })
+        .collect();
     for (i, square) in squares.iter().enumerate() {
-        writer.add(Shape::Polygon(square), &[FieldData::Text(["a", "b", "c"][i]), FieldData::Integer(i as i64 * 100)]).expect("add");
+        writer
+            .add(
+                Shape::Polygon(square),
+                &[
+                    FieldData::Text(["a", "b", "c"][i]),
+                    FieldData::Integer(i as i64 * 100),
+                ],
+            )
+            .expect("add");
     }
     writer.finish().expect("finish");
     publish(staging);
     let areas = read_polygons(&path, Some("areas"), &["code"]).expect("read");
     let mut staging = Staging::new(&path, false).expect("staging");
     let extra = [
-        (FieldDef::new("rate", FieldKind::Real), ExtraColumn::Real(vec![Some(0.5), None, Some(f64::NAN)])),
-        (FieldDef::new("flag", FieldKind::Text), ExtraColumn::Text(vec![None, Some("island".into()), None])),
+        (
+            FieldDef::new("rate", FieldKind::Real),
+            ExtraColumn::Real(vec![Some(0.5), None, Some(f64::NAN)]),
+        ),
+        (
+            FieldDef::new("flag", FieldKind::Text),
+            ExtraColumn::Text(vec![None, Some("island".into()), None]),
+        ),
     ];
-    staging.copy_with_fields(&path, "areas", "areas_rated", &areas.fids, &extra).expect("copy");
-    let clash = [(FieldDef::new("Code", FieldKind::Real), ExtraColumn::Real(vec![None; 3]))];
-    assert!(staging.copy_with_fields(&path, "areas", "other", &areas.fids, &clash).is_err(), "a clashing field is refused");
+    staging
+        .copy_with_fields(&path, "areas", "areas_rated", &areas.fids, &extra)
+        .expect("copy");
+    let clash = [(
+        FieldDef::new("Code", FieldKind::Real),
+        ExtraColumn::Real(vec![None; 3]),
+    )];
+    assert!(
+        staging
+            .copy_with_fields(&path, "areas", "other", &areas.fids, &clash)
+            .is_err(),
+        "a clashing field is refused"
+    );
     publish(staging);
     assert_eq!(
-        rows(&path, "SELECT code, population, rate, flag FROM areas_rated ORDER BY fid"),
+        rows(
+            &path,
+            "SELECT code, population, rate, flag FROM areas_rated ORDER BY fid"
+        ),
         vec![
             vec!["a".to_owned(), "0".into(), "0.5".into(), "NULL".into()],
             vec!["b".into(), "100".into(), "NULL".into(), "island".into()],
