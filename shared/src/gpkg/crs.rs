@@ -63,7 +63,15 @@ pub fn is_projected_metres(srs: &SpatialRef) -> bool {
 pub fn label(srs: &SpatialRef) -> String {
     match (srs.auth_name(), srs.auth_code()) {
         (Some(name), Ok(code)) => format!("{name}:{code}"),
-        _ => srs.name().unwrap_or_else(|| "unnamed CRS".into()),
+        // A CRS built from a PROJ string (the centred LAEA) has no authority and the name
+        // "unknown": its PROJ string says what it is.
+        _ => match srs.name().filter(|n| !n.eq_ignore_ascii_case("unknown")) {
+            Some(name) => name,
+            None => srs
+                .to_proj4()
+                .map(|p| p.trim().to_owned())
+                .unwrap_or_else(|_| "unnamed CRS".into()),
+        },
     }
 }
 
