@@ -500,3 +500,52 @@ fn a_layer_copy_keeps_geometry_crs_and_fields_and_adds_columns() {
     assert_eq!(copy.polygons, areas.polygons);
     assert_eq!(crs::label(&copy.srs), "EPSG:32610");
 }
+
+#[test]
+fn a_surface_merged_into_a_vector_only_file_brings_what_coverages_need() {
+    let dir = out_dir("io_merge_surface");
+    let path = dir.join("vector_first.gpkg");
+    write_points(&path, "EPSG:32610", &[(500_000.0, 3_870_000.0)]);
+    assert!(rows(
+        &path,
+        "SELECT srs_id FROM gpkg_spatial_ref_sys WHERE srs_id = 4979"
+    )
+    .is_empty());
+    let srs = crs::parse("EPSG:32610").expect("srs");
+    let grid = Grid {
+        x_min: 0.0,
+        y_min: 0.0,
+        cell_m: 10.0,
+        cols: 3,
+        rows: 2,
+    };
+    let values = [1.0f32, 2.0, 3.0, 4.0, 5.0, f32::NAN];
+    let mut staging = Staging::new(&path, false).expect("staging");
+    staging
+        .write_surface(
+            "surface",
+            &raster::Surface {
+                grid: &grid,
+                values: &values,
+                srs: &srs,
+                field_name: "v",
+                unit: "unitless",
+                quantity: "test",
+            },
+        )
+        .expect("surface");
+    publish(staging);
+    // OGC 17-066r1 requires srs_id 4979 once a coverage is present; the validator (make test)
+    // checks the rest of the file.
+    assert_eq!(
+        rows(
+            &path,
+            "SELECT srs_id FROM gpkg_spatial_ref_sys WHERE srs_id = 4979"
+        ),
+        vec![vec!["4979".to_owned()]]
+    );
+    assert_eq!(
+        raster::read(&path, "surface").expect("read").values[..5],
+        values[..5]
+    );
+}

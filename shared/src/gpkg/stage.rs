@@ -372,29 +372,61 @@ impl Staging {
     /// # Errors
     /// Name problems, an extra field that clashes with a field of the source, a feature whose
     /// fid is not in `fids`, or GDAL failures.
-    pub fn copy_with_fields(&mut self, source: &Path, layer: &str, name: &str, fids: &[i64], extra: &[(FieldDef, ExtraColumn)]) -> Result<u64> {
+    pub fn copy_with_fields(
+        &mut self,
+        source: &Path,
+        layer: &str,
+        name: &str,
+        fids: &[i64],
+        extra: &[(FieldDef, ExtraColumn)],
+    ) -> Result<u64> {
         self.check_name(name)?;
-        let bad = |message: String| Error::BadLayer { path: source.to_owned(), layer: layer.to_owned(), message };
+        let bad = |message: String| Error::BadLayer {
+            path: source.to_owned(),
+            layer: layer.to_owned(),
+            message,
+        };
         let dataset = super::open_geopackage(source)?;
-        let mut input = dataset.layer_by_name(layer).map_err(|e| bad(e.to_string()))?;
-        let source_fields: Vec<(String, u32)> = input.defn().fields().map(|f| (f.name(), f.field_type())).collect();
+        let mut input = dataset
+            .layer_by_name(layer)
+            .map_err(|e| bad(e.to_string()))?;
+        let source_fields: Vec<(String, u32)> = input
+            .defn()
+            .fields()
+            .map(|f| (f.name(), f.field_type()))
+            .collect();
         for (field, column) in extra {
-            if source_fields.iter().any(|(n, _)| n.eq_ignore_ascii_case(&field.name)) {
+            if source_fields
+                .iter()
+                .any(|(n, _)| n.eq_ignore_ascii_case(&field.name))
+            {
                 return Err(Error::argument(
                     "--name",
-                    format!("layer '{layer}' already has a field '{}'; the copy cannot add it again", field.name),
+                    format!(
+                        "layer '{layer}' already has a field '{}'; the copy cannot add it again",
+                        field.name
+                    ),
                 ));
             }
             if column.len() != fids.len() {
-                return Err(Error::Failed(format!("extra field '{}': {} values for {} features", field.name, column.len(), fids.len())));
+                return Err(Error::Failed(format!(
+                    "extra field '{}': {} values for {} features",
+                    field.name,
+                    column.len(),
+                    fids.len()
+                )));
             }
         }
-        let index: std::collections::HashMap<i64, usize> = fids.iter().enumerate().map(|(i, f)| (*f, i)).collect();
+        let index: std::collections::HashMap<i64, usize> =
+            fids.iter().enumerate().map(|(i, f)| (*f, i)).collect();
         let srs = input.spatial_ref();
         let geometry_type = input.defn().geometry_type();
         let name_owned = name.to_owned();
         self.open_dataset()?;
-        let dataset_out = self.dataset.as_mut().ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
+        let dataset_out = self
+            .dataset
+            .as_mut()
+            .ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
         let context = format!("copying layer '{layer}' to '{name_owned}'");
         {
             let created = dataset_out
@@ -425,15 +457,20 @@ impl Staging {
         let c_dataset = dataset_out.c_dataset();
         // SAFETY: the handle is valid while `dataset_out` lives; a failure only costs speed.
         unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };
-        let output = dataset_out.layer_by_name(&name_owned).map_err(Error::gdal(context.clone()))?;
+        let output = dataset_out
+            .layer_by_name(&name_owned)
+            .map_err(Error::gdal(context.clone()))?;
         let mut count = 0u64;
         for feature in input.features() {
             let fid = feature.fid().map(|f| f as i64).unwrap_or(-1);
-            let row = *index.get(&fid).ok_or_else(|| bad(format!("feature {fid} was not read before copying")))?;
+            let row = *index
+                .get(&fid)
+                .ok_or_else(|| bad(format!("feature {fid} was not read before copying")))?;
             let mut copy = Feature::new(output.defn()).map_err(Error::gdal(context.clone()))?;
             for i in 0..source_fields.len() {
                 if let Some(value) = feature.field(i).map_err(Error::gdal(context.clone()))? {
-                    copy.set_field(i, &value).map_err(Error::gdal(context.clone()))?;
+                    copy.set_field(i, &value)
+                        .map_err(Error::gdal(context.clone()))?;
                 }
             }
             for (j, (_, column)) in extra.iter().enumerate() {
@@ -455,7 +492,8 @@ impl Staging {
                 result.map_err(Error::gdal(context.clone()))?;
             }
             if let Some(geometry) = feature.geometry() {
-                copy.set_geometry(geometry.clone()).map_err(Error::gdal(context.clone()))?;
+                copy.set_geometry(geometry.clone())
+                    .map_err(Error::gdal(context.clone()))?;
             }
             copy.create(&output).map_err(Error::gdal(context.clone()))?;
             count += 1;
@@ -463,9 +501,15 @@ impl Staging {
         // SAFETY: as above.
         let status = unsafe { gdal_sys::GDALDatasetCommitTransaction(c_dataset) };
         if status != gdal_sys::OGRErr::OGRERR_NONE {
-            return Err(Error::Failed(format!("committing layer '{name_owned}' failed (OGR error {status})")));
+            return Err(Error::Failed(format!(
+                "committing layer '{name_owned}' failed (OGR error {status})"
+            )));
         }
-        self.layers.push(StagedLayer { name: name_owned, data_type: "features", count });
+        self.layers.push(StagedLayer {
+            name: name_owned,
+            data_type: "features",
+            count,
+        });
         Ok(count)
     }
 
@@ -616,11 +660,17 @@ fn remove_stale_staging(directory: &Path, file_name: &str) {
         return;
     }
     let prefix = format!(".{file_name}.stance-staging-");
-    let Ok(entries) = std::fs::read_dir(directory) else { return };
+    let Ok(entries) = std::fs::read_dir(directory) else {
+        return;
+    };
     for entry in entries.flatten() {
         let name = entry.file_name().to_string_lossy().into_owned();
-        let Some(rest) = name.strip_prefix(&prefix) else { continue };
-        let Some(pid) = rest.split('-').next().and_then(|p| p.parse::<u32>().ok()) else { continue };
+        let Some(rest) = name.strip_prefix(&prefix) else {
+            continue;
+        };
+        let Some(pid) = rest.split('-').next().and_then(|p| p.parse::<u32>().ok()) else {
+            continue;
+        };
         if pid != std::process::id() && !Path::new(&format!("/proc/{pid}")).exists() {
             let _ = std::fs::remove_file(entry.path());
         }
@@ -914,6 +964,18 @@ fn map_spatial_ref_systems(
         .filter(|c| main_columns.contains(c))
         .cloned()
         .collect();
+    // The gridded coverage extension (OGC 17-066r1, req. 103) needs srs_id 4979 in every file
+    // that holds a coverage, whether or not a coverage uses it.
+    if layers.iter().any(|l| l.data_type == "2d-gridded-coverage") {
+        let columns = common.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
+        tx.execute(
+            &format!(
+                "INSERT INTO main.gpkg_spatial_ref_sys ({columns}) SELECT {columns} FROM staged.gpkg_spatial_ref_sys s
+                 WHERE s.srs_id = 4979 AND NOT EXISTS (SELECT 1 FROM main.gpkg_spatial_ref_sys m WHERE m.srs_id = 4979)"
+            ),
+            [],
+        )?;
+    }
     for layer in layers {
         let ids: Vec<i64> = {
             let mut s = tx.prepare(
@@ -1180,15 +1242,42 @@ fn copy_layer(
                 &format!("INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions WHERE table_name = ?1"),
                 [name],
             )?;
-            tx.execute(
-                &format!(
-                    "INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions s
-                     WHERE (s.table_name IS NULL OR s.table_name LIKE 'gpkg%') AND NOT EXISTS (
-                       SELECT 1 FROM main.gpkg_extensions m WHERE m.table_name IS s.table_name
-                       AND m.column_name IS s.column_name AND m.extension_name = s.extension_name)"
-                ),
-                [],
-            )?;
+            // A system-table extension that names a column (e.g. gpkg_crs_wkt on
+            // gpkg_spatial_ref_sys.definition_12_063) applies only if the output has that column.
+            let candidates: Vec<(String, Option<String>)> = {
+                let mut statement = tx.prepare(
+                    "SELECT s.table_name, s.column_name FROM staged.gpkg_extensions s
+                     WHERE s.table_name IS NULL OR s.table_name LIKE 'gpkg%'",
+                )?;
+                let rows = statement
+                    .query_map([], |r| {
+                        Ok((
+                            r.get::<_, Option<String>>(0)?.unwrap_or_default(),
+                            r.get(1)?,
+                        ))
+                    })?
+                    .collect::<rusqlite::Result<Vec<_>>>()?;
+                rows
+            };
+            for (table_name, column_name) in candidates {
+                if let Some(column) = &column_name {
+                    if !columns_of(tx, "main", &table_name)?
+                        .iter()
+                        .any(|c| c == column)
+                    {
+                        continue;
+                    }
+                }
+                tx.execute(
+                    &format!(
+                        "INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions s
+                         WHERE coalesce(s.table_name, '') = ?1 AND s.column_name IS ?2 AND NOT EXISTS (
+                           SELECT 1 FROM main.gpkg_extensions m WHERE m.table_name IS s.table_name
+                           AND m.column_name IS s.column_name AND m.extension_name = s.extension_name)"
+                    ),
+                    rusqlite::params![table_name, column_name],
+                )?;
+            }
             continue;
         }
         tx.execute(
