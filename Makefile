@@ -6,7 +6,7 @@ SAMPLE := sample-gpkg
 BIN := target/release
 TEST_OUT := target/test-output
 
-.PHONY: demo test deps venv build build-debug sample bench reference fmt clean
+.PHONY: demo test deps venv build build-debug sample bench reference fuzz fmt clean
 
 deps:
 	@.ci/install-deps
@@ -29,8 +29,30 @@ demo: build
 	  --time-field time --author-field author --text-field text \
 	  --quality-field quality --min-quality place --max-per-author 40 --rejects records_rejected \
 	  > $(OUT)/import.json
+	$(BIN)/stance density --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name density \
+	  --bandwidth cv --compare support,oppose -q > $(OUT)/density.json
+	@for s in oppose neutral support diff sqrtdiff share logrr logrr_p logrr_p_lower; do \
+	  overlay=""; case $$s in diff|logrr|logrr_p|logrr_p_lower) overlay="--overlay density_tolerance";; esac; \
+	  $(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_$$s $$overlay \
+	    --title "Veldmark levy debate: density_$$s" --png $(OUT)/density_$$s.png -q > /dev/null || exit 1; \
+	done
+	$(BIN)/stance weights --input $(SAMPLE)/veldmark.gpkg --layer veldmark_districts --id-field code \
+	  --output $(OUT)/demo.gpkg --name district_weights -q > $(OUT)/weights.json
+	$(BIN)/stance rates --input $(OUT)/demo.gpkg --layer records --areas veldmark_districts \
+	  --areas-file $(SAMPLE)/veldmark.gpkg --event oppose --base all --id-field code \
+	  --weights district_weights --weights-file $(OUT)/demo.gpkg --surface density_diff \
+	  --output $(OUT)/demo.gpkg --name district_rates -q > $(OUT)/rates.json
+	$(BIN)/stance moran --input $(OUT)/demo.gpkg --layer district_rates --field rate_eb_global \
+	  --weights district_weights --output $(OUT)/demo.gpkg --name district_moran -q > $(OUT)/moran.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas district_rates \
+	  --field rate_eb_global --title "Veldmark: opposition share per district, empirical Bayes" \
+	  --png $(OUT)/district_rates.png -q > /dev/null
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas district_moran \
+	  --field cluster_type --categorical --title "Veldmark: local Moran's I clusters of opposition share" \
+	  --png $(OUT)/district_clusters.png -q > /dev/null
 	@echo "wrote $(OUT)/demo.gpkg:"; ogrinfo -q $(OUT)/demo.gpkg | sed 's/^/  /'
-	@echo "summaries: $(OUT)/import.json"
+	@echo "previews: $$(ls $(OUT)/*.png | tr '\n' ' ')"
+	@echo "summaries: $$(ls $(OUT)/*.json | tr '\n' ' ')"
 
 test: venv build-debug
 	$(CARGO) fmt --all --check
@@ -48,6 +70,16 @@ sample: build
 
 bench: build venv
 	tests/bench/import_vs_ogr2ogr.sh
+	tests/bench/density_vs_python.sh
+	tests/bench/areal_vs_pysal.sh
+
+# Fuzzes the import parsers (time strings, class mappings, row checks) for FUZZ_SECONDS each.
+# Needs cargo-fuzz (`cargo install cargo-fuzz`); stable Rust runs it with RUSTC_BOOTSTRAP=1.
+FUZZ_SECONDS ?= 60
+fuzz:
+	command -v cargo-fuzz >/dev/null || $(CARGO) install cargo-fuzz --locked
+	cd fuzz && for t in time_strings class_mapping import_rows; do \
+	  RUSTC_BOOTSTRAP=1 $(CARGO) fuzz run $$t -- -max_total_time=$(FUZZ_SECONDS) || exit 1; done
 
 # Reruns the scripts that produce the reference numbers (R spdep/spatstat, PySAL, SciPy, KDEpy).
 reference:

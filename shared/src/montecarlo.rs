@@ -39,7 +39,8 @@ mod tests {
 
     #[test]
     fn replicate_seeds_are_distinct_and_stable() {
-        let seeds: std::collections::HashSet<u64> = (0..10_000).map(|i| replicate_seed(7, i)).collect();
+        let seeds: std::collections::HashSet<u64> =
+            (0..10_000).map(|i| replicate_seed(7, i)).collect();
         assert_eq!(seeds.len(), 10_000);
         assert_ne!(replicate_seed(7, 0), replicate_seed(8, 0));
         let a: f64 = replicate_rng(7, 3).random();

@@ -30,7 +30,11 @@ pub fn adjust(p: &[f64], method: Adjustment) -> Vec<f64> {
         }
         return out;
     }
-    let harmonic: f64 = if method == Adjustment::By { (1..=m).map(|i| 1.0 / i as f64).sum() } else { 1.0 };
+    let harmonic: f64 = if method == Adjustment::By {
+        (1..=m).map(|i| 1.0 / i as f64).sum()
+    } else {
+        1.0
+    };
     order.sort_by(|&a, &b| p[a].total_cmp(&p[b]));
     let mut running = f64::INFINITY;
     for (rank, &i) in order.iter().enumerate().rev() {
@@ -70,7 +74,10 @@ mod tests {
 
     #[test]
     fn bonferroni_none_and_nan() {
-        assert_eq!(adjust(&P, Adjustment::Bonferroni), vec![0.05, 0.2, 0.15, 0.025, 1.0]);
+        assert_eq!(
+            adjust(&P, Adjustment::Bonferroni),
+            vec![0.05, 0.2, 0.15, 0.025, 1.0]
+        );
         assert_eq!(adjust(&P, Adjustment::None), P.to_vec());
         let with_nan = adjust(&[0.01, f64::NAN, 0.02], Adjustment::Bonferroni);
         assert_eq!(with_nan[0], 0.02);

@@ -1,14 +1,161 @@
-//! Spatial weights: neighbour lists of areas (contiguity, k nearest, distance band), their
-//! summaries, and row or binary standardisation.
+//! Spatial weights: neighbour lists of areas — queen / rook contiguity from shared vertices and
+//! edges, k nearest centroids, distance band — their summaries, and row or binary
+//! standardisation (Bivand, Pebesma & Gómez-Rubio 2013, *Applied Spatial Data Analysis with R*,
+//! ch. 9; Anselin 1988, *Spatial Econometrics*, ch. 3).
 //!
-//! API contract (implementation in progress): every list is sorted and holds no self-link;
-//! `lists[i]` are the indices (into the areas' order) of the neighbours of area `i`.
+//! API contract: every list is sorted and holds no self-link; `lists[i]` are the indices (into
+//! the areas' order) of the neighbours of area `i`. Contiguity and distance-band lists are
+//! symmetric; k-nearest lists in general are not.
+//!
+//! Contiguity never compares all pairs: vertices are grouped by exact coordinates (or, with a
+//! snap tolerance, through a hash grid of cell size `snap_m` and a union–find of the vertices
+//! closer than `snap_m`), and two areas are queen neighbours when they share a vertex group,
+//! rook neighbours when they share an edge between two vertex groups. This is the vertex rule
+//! of spdep `poly2nb` and libpysal `Queen` / `Rook.from_dataframe`: two areas whose boundaries
+//! touch only where neither has a vertex are not linked.
+
+use std::collections::HashMap;
+
+use geo_types::{LineString, MultiPolygon};
+use rayon::prelude::*;
+use rstar::{primitives::GeomWithData, RTree};
 
 /// Neighbour lists of `n` areas.
 #[derive(Debug, Clone, PartialEq, Eq, Default)]
 pub struct Neighbours {
     /// `lists[i]`: sorted indices of the neighbours of area `i` (no self-links).
     pub lists: Vec<Vec<u32>>,
+}
+
+/// Contiguity rule.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Contiguity {
+    /// Neighbours share at least one boundary point (vertex).
+    Queen,
+    /// Neighbours share at least one boundary edge (two consecutive vertices).
+    Rook,
+}
+
+/// How neighbour weights are scaled.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Standardisation {
+    /// Row-standardised: w_ij = 1 / |N(i)|, so each row sums to 1 (spdep style "W").
+    Row,
+    /// Binary: w_ij = 1 for every neighbour (spdep style "B").
+    Binary,
+}
+
+/// Summary of a set of neighbour lists.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Summary {
+    /// Number of areas.
+    pub areas: usize,
+    /// Number of directed links Σ|N(i)| (spdep's "nonzero links"; twice the number of
+    /// neighbouring pairs for symmetric lists).
+    pub links: usize,
+    /// Fewest neighbours of any area.
+    pub min_neighbours: usize,
+    /// Mean number of neighbours.
+    pub mean_neighbours: f64,
+    /// Most neighbours of any area.
+    pub max_neighbours: usize,
+    /// Indices of areas without neighbours.
+    pub islands: Vec<usize>,
+    /// Number of connected components (an island is a component of its own).
+    pub components: usize,
+    /// Whether every link i→j has its reverse j→i.
+    pub symmetric: bool,
+}
+
+/// Sparse weights in compressed-row form, aligned with a [`Neighbours`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct SparseWeights {
+    /// Row `i` spans `offsets[i]..offsets[i + 1]` of `neighbours` and `weights`.
+    pub offsets: Vec<usize>,
+    /// Neighbour indices, row after row.
+    pub neighbours: Vec<u32>,
+    /// Weights w_ij, row after row.
+    pub weights: Vec<f64>,
+}
+
+impl SparseWeights {
+    /// Number of areas (rows).
+    pub fn len(&self) -> usize {
+        self.offsets.len().saturating_sub(1)
+    }
+
+    /// True when there are no areas.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Neighbour indices and weights of row `i`.
+    pub fn row(&self, i: usize) -> (&[u32], &[f64]) {
+        let span = self.offsets[i]..self.offsets[i + 1];
+        (&self.neighbours[span.clone()], &self.weights[span])
+    }
+
+    /// Σ_j w_ij z_j, the spatial lag of `z` at area `i`.
+    pub fn lag(&self, i: usize, z: &[f64]) -> f64 {
+        let (js, ws) = self.row(i);
+        js.iter().zip(ws).map(|(j, w)| w * z[*j as usize]).sum()
+    }
+
+    /// Sums of weights used by Moran's I (Cliff & Ord 1981, p. 19):
+    /// S0 = Σ_i Σ_j w_ij, S1 = ½ Σ_i Σ_j (w_ij + w_ji)², S2 = Σ_i (w_i· + w_·i)².
+    pub fn moments(&self) -> WeightMoments {
+        let n = self.len();
+        let mut row_sum = vec![0.0; n];
+        let mut column_sum = vec![0.0; n];
+        let mut lookup: HashMap<(u32, u32), f64> = HashMap::with_capacity(self.weights.len());
+        for (i, row) in row_sum.iter_mut().enumerate() {
+            let (js, ws) = self.row(i);
+            for (j, w) in js.iter().zip(ws) {
+                *row += w;
+                column_sum[*j as usize] += w;
+                lookup.insert((i as u32, *j), *w);
+            }
+        }
+        let s0: f64 = row_sum.iter().sum();
+        let mut s1 = 0.0;
+        for i in 0..n {
+            let (js, ws) = self.row(i);
+            for (j, w) in js.iter().zip(ws) {
+                let back = lookup.get(&(*j, i as u32)).copied().unwrap_or(0.0);
+                s1 += (w + back).powi(2);
+                if back == 0.0 {
+                    // The pair (j, i) is absent from row j, so its term (w_ji + w_ij)² is counted here.
+                    s1 += (w + back).powi(2);
+                }
+            }
+        }
+        s1 *= 0.5;
+        let s2 = row_sum
+            .iter()
+            .zip(&column_sum)
+            .map(|(r, c)| (r + c).powi(2))
+            .sum();
+        WeightMoments { s0, s1, s2 }
+    }
+}
+
+/// The weight sums S0, S1, S2 of Cliff & Ord (1981).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WeightMoments {
+    /// Σ_i Σ_j w_ij.
+    pub s0: f64,
+    /// ½ Σ_i Σ_j (w_ij + w_ji)².
+    pub s1: f64,
+    /// Σ_i (w_i· + w_·i)².
+    pub s2: f64,
+}
+
+/// Errors of the weights builders.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum WeightsError {
+    /// A coordinate or parameter is not a finite number, or out of range.
+    #[error("{0}")]
+    Invalid(String),
 }
 
 impl Neighbours {
@@ -24,6 +171,692 @@ impl Neighbours {
 
     /// Areas without neighbours.
     pub fn islands(&self) -> Vec<usize> {
-        (0..self.lists.len()).filter(|&i| self.lists[i].is_empty()).collect()
+        (0..self.lists.len())
+            .filter(|&i| self.lists[i].is_empty())
+            .collect()
+    }
+
+    /// Lists of `n` areas from directed links (i, j): self-links and repeats are dropped, lists
+    /// sorted. Links naming an area ≥ `n` are ignored.
+    pub fn from_links(n: usize, links: impl IntoIterator<Item = (u32, u32)>) -> Self {
+        let mut lists = vec![Vec::new(); n];
+        for (i, j) in links {
+            if i != j && (i as usize) < n && (j as usize) < n {
+                lists[i as usize].push(j);
+            }
+        }
+        lists.par_iter_mut().for_each(|l| {
+            l.sort_unstable();
+            l.dedup();
+        });
+        Neighbours { lists }
+    }
+
+    /// Directed links Σ|N(i)|.
+    pub fn links(&self) -> usize {
+        self.lists.iter().map(Vec::len).sum()
+    }
+
+    /// Whether every link i→j has its reverse j→i.
+    pub fn is_symmetric(&self) -> bool {
+        self.lists.iter().enumerate().all(|(i, l)| {
+            l.iter()
+                .all(|&j| self.lists[j as usize].binary_search(&(i as u32)).is_ok())
+        })
+    }
+
+    /// Adds the reverse of every link (k-nearest lists made symmetric).
+    pub fn symmetrised(&self) -> Neighbours {
+        let links = self
+            .lists
+            .iter()
+            .enumerate()
+            .flat_map(|(i, l)| l.iter().flat_map(move |&j| [(i as u32, j), (j, i as u32)]));
+        Neighbours::from_links(self.len(), links)
+    }
+
+    /// Connected component of every area (links taken as undirected), numbered 0, 1, … in
+    /// order of each component's lowest area index.
+    pub fn components(&self) -> Vec<u32> {
+        let n = self.len();
+        let mut parent: Vec<u32> = (0..n as u32).collect();
+        fn find(parent: &mut [u32], mut a: u32) -> u32 {
+            while parent[a as usize] != a {
+                let up = parent[parent[a as usize] as usize];
+                parent[a as usize] = up;
+                a = up;
+            }
+            a
+        }
+        for (i, list) in self.lists.iter().enumerate() {
+            for &j in list {
+                let (a, b) = (find(&mut parent, i as u32), find(&mut parent, j));
+                if a != b {
+                    parent[a.max(b) as usize] = a.min(b);
+                }
+            }
+        }
+        let mut label = vec![u32::MAX; n];
+        let mut next = 0;
+        let mut out = vec![0; n];
+        for (i, slot) in out.iter_mut().enumerate() {
+            let root = find(&mut parent, i as u32) as usize;
+            if label[root] == u32::MAX {
+                label[root] = next;
+                next += 1;
+            }
+            *slot = label[root];
+        }
+        out
+    }
+
+    /// Areas, links, min / mean / max neighbours, islands, components and symmetry.
+    pub fn summary(&self) -> Summary {
+        let counts: Vec<usize> = self.lists.iter().map(Vec::len).collect();
+        let areas = counts.len();
+        let links: usize = counts.iter().sum();
+        Summary {
+            areas,
+            links,
+            min_neighbours: counts.iter().copied().min().unwrap_or(0),
+            mean_neighbours: if areas == 0 {
+                0.0
+            } else {
+                links as f64 / areas as f64
+            },
+            max_neighbours: counts.iter().copied().max().unwrap_or(0),
+            islands: self.islands(),
+            components: self
+                .components()
+                .iter()
+                .map(|c| *c as usize + 1)
+                .max()
+                .unwrap_or(0),
+            symmetric: self.is_symmetric(),
+        }
+    }
+
+    /// Links every island to its nearest other area by centroid distance, in both directions
+    /// (ties go to the lower index). Returns the links added as (island, nearest) pairs.
+    ///
+    /// Centroids `x`, `y` must be aligned with the lists and finite.
+    pub fn link_islands_to_nearest(&mut self, x: &[f64], y: &[f64]) -> Vec<(usize, usize)> {
+        let islands = self.islands();
+        if islands.is_empty() || self.len() < 2 {
+            return Vec::new();
+        }
+        let tree = centroid_tree(x, y);
+        let mut added = Vec::new();
+        for i in islands {
+            if let Some(j) = nearest_others(&tree, x[i], y[i], i, 1).first().copied() {
+                added.push((i, j as usize));
+            }
+        }
+        for &(i, j) in &added {
+            for (a, b) in [(i, j), (j, i)] {
+                let list = &mut self.lists[a];
+                if let Err(position) = list.binary_search(&(b as u32)) {
+                    list.insert(position, b as u32);
+                }
+            }
+        }
+        added
+    }
+
+    /// The weights of these lists under `style`; islands get empty rows.
+    pub fn standardise(&self, style: Standardisation) -> SparseWeights {
+        let mut offsets = Vec::with_capacity(self.len() + 1);
+        offsets.push(0);
+        let mut neighbours = Vec::with_capacity(self.links());
+        let mut weights = Vec::with_capacity(self.links());
+        for list in &self.lists {
+            let w = match style {
+                Standardisation::Row => 1.0 / list.len() as f64,
+                Standardisation::Binary => 1.0,
+            };
+            neighbours.extend_from_slice(list);
+            weights.extend(std::iter::repeat_n(w, list.len()));
+            offsets.push(neighbours.len());
+        }
+        SparseWeights {
+            offsets,
+            neighbours,
+            weights,
+        }
+    }
+}
+
+/// Exact-equality key of a coordinate pair (−0 and +0 are the same point).
+fn exact_key(x: f64, y: f64) -> (u64, u64) {
+    ((x + 0.0).to_bits(), (y + 0.0).to_bits())
+}
+
+/// Every ring (exterior and holes) of every part of a multipolygon.
+fn rings(polygon: &MultiPolygon<f64>) -> impl Iterator<Item = &LineString<f64>> {
+    polygon
+        .0
+        .iter()
+        .flat_map(|p| std::iter::once(p.exterior()).chain(p.interiors()))
+}
+
+/// Contiguity neighbours of `polygons` (coordinates in metres when `snap_m` > 0).
+///
+/// Vertices closer than `snap_m` are one boundary point (chains of such vertices merge, so a
+/// group can span more than `snap_m`); `snap_m` = 0 asks for exactly equal coordinates.
+/// Time and memory are O(V log V) in the number of vertices V.
+///
+/// # Errors
+/// [`WeightsError::Invalid`] for a negative or non-finite `snap_m` or a non-finite vertex.
+pub fn contiguity(
+    polygons: &[MultiPolygon<f64>],
+    rule: Contiguity,
+    snap_m: f64,
+) -> Result<Neighbours, WeightsError> {
+    if !(snap_m.is_finite() && snap_m >= 0.0) {
+        return Err(WeightsError::Invalid(format!(
+            "snap tolerance {snap_m} must be a finite number ≥ 0"
+        )));
+    }
+    // Vertices in ring order: (x, y, area, ring id). Ring ids let rook read consecutive pairs.
+    let mut xs = Vec::new();
+    let mut ys = Vec::new();
+    let mut area_of = Vec::new();
+    let mut ring_starts = vec![0usize];
+    for (area, polygon) in polygons.iter().enumerate() {
+        for ring in rings(polygon) {
+            for c in &ring.0 {
+                if !(c.x.is_finite() && c.y.is_finite()) {
+                    return Err(WeightsError::Invalid(format!(
+                        "area {area} has a non-finite vertex ({}, {})",
+                        c.x, c.y
+                    )));
+                }
+                xs.push(c.x);
+                ys.push(c.y);
+                area_of.push(area as u32);
+            }
+            ring_starts.push(xs.len());
+        }
+    }
+    let group = if snap_m == 0.0 {
+        exact_groups(&xs, &ys)
+    } else {
+        snapped_groups(&xs, &ys, snap_m)
+    };
+    // Keys shared by areas: a vertex group (queen) or an edge between two groups (rook).
+    let mut keyed: Vec<(u64, u32)> = match rule {
+        Contiguity::Queen => group
+            .iter()
+            .zip(&area_of)
+            .map(|(g, a)| (u64::from(*g), *a))
+            .collect(),
+        Contiguity::Rook => {
+            let mut edges = Vec::with_capacity(xs.len());
+            for w in ring_starts.windows(2) {
+                for v in w[0]..w[1].saturating_sub(1) {
+                    let (a, b) = (group[v], group[v + 1]);
+                    if a != b {
+                        let key = (u64::from(a.min(b)) << 32) | u64::from(a.max(b));
+                        edges.push((key, area_of[v]));
+                    }
+                }
+            }
+            edges
+        }
+    };
+    keyed.par_sort_unstable();
+    keyed.dedup();
+    let mut links = Vec::new();
+    let mut start = 0;
+    while start < keyed.len() {
+        let mut end = start + 1;
+        while end < keyed.len() && keyed[end].0 == keyed[start].0 {
+            end += 1;
+        }
+        for a in start..end {
+            for b in a + 1..end {
+                links.push((keyed[a].1, keyed[b].1));
+                links.push((keyed[b].1, keyed[a].1));
+            }
+        }
+        start = end;
+    }
+    Ok(Neighbours::from_links(polygons.len(), links))
+}
+
+/// Group id of every vertex: equal coordinates share a group.
+fn exact_groups(xs: &[f64], ys: &[f64]) -> Vec<u32> {
+    let mut order: Vec<u32> = (0..xs.len() as u32).collect();
+    order.par_sort_unstable_by_key(|&v| exact_key(xs[v as usize], ys[v as usize]));
+    let mut group = vec![0u32; xs.len()];
+    let mut next = 0u32;
+    for (k, &v) in order.iter().enumerate() {
+        if k > 0 {
+            let previous = order[k - 1] as usize;
+            if exact_key(xs[previous], ys[previous]) != exact_key(xs[v as usize], ys[v as usize]) {
+                next += 1;
+            }
+        }
+        group[v as usize] = next;
+    }
+    group
+}
+
+/// Group id of every vertex: vertices within `snap` of each other (transitively) share a group.
+/// A hash grid of cell size `snap` is the spatial index: only the 3 × 3 cells around a vertex
+/// can hold vertices within `snap` of it.
+fn snapped_groups(xs: &[f64], ys: &[f64], snap: f64) -> Vec<u32> {
+    let cell = |v: f64| (v / snap).floor() as i64;
+    let mut grid: HashMap<(i64, i64), Vec<u32>> = HashMap::new();
+    for v in 0..xs.len() {
+        grid.entry((cell(xs[v]), cell(ys[v])))
+            .or_default()
+            .push(v as u32);
+    }
+    let mut parent: Vec<u32> = (0..xs.len() as u32).collect();
+    fn find(parent: &mut [u32], mut a: u32) -> u32 {
+        while parent[a as usize] != a {
+            let up = parent[parent[a as usize] as usize];
+            parent[a as usize] = up;
+            a = up;
+        }
+        a
+    }
+    let snap2 = snap * snap;
+    for v in 0..xs.len() {
+        let (cx, cy) = (cell(xs[v]), cell(ys[v]));
+        for dx in -1..=1 {
+            for dy in -1..=1 {
+                let Some(others) = grid.get(&(cx + dx, cy + dy)) else {
+                    continue;
+                };
+                for &o in others {
+                    let o_index = o as usize;
+                    if o_index <= v {
+                        continue;
+                    }
+                    let d2 = (xs[o_index] - xs[v]).powi(2) + (ys[o_index] - ys[v]).powi(2);
+                    if d2 <= snap2 {
+                        let (a, b) = (find(&mut parent, v as u32), find(&mut parent, o));
+                        if a != b {
+                            parent[a.max(b) as usize] = a.min(b);
+                        }
+                    }
+                }
+            }
+        }
+    }
+    (0..xs.len() as u32).map(|v| find(&mut parent, v)).collect()
+}
+
+/// Area-weighted centroid of a multipolygon (holes subtract), by the shoelace formula;
+/// the mean of the exterior vertices when the area is zero.
+pub fn centroid(polygon: &MultiPolygon<f64>) -> (f64, f64) {
+    let (mut a, mut cx, mut cy) = (0.0, 0.0, 0.0);
+    // Shift to the first vertex so large projected coordinates do not cancel.
+    let origin = polygon
+        .0
+        .first()
+        .and_then(|p| p.exterior().0.first())
+        .map(|c| (c.x, c.y))
+        .unwrap_or((0.0, 0.0));
+    for p in &polygon.0 {
+        for (k, ring) in std::iter::once(p.exterior())
+            .chain(p.interiors())
+            .enumerate()
+        {
+            let mut ring_a = 0.0;
+            let (mut ring_x, mut ring_y) = (0.0, 0.0);
+            for w in ring.0.windows(2) {
+                let (x0, y0) = (w[0].x - origin.0, w[0].y - origin.1);
+                let (x1, y1) = (w[1].x - origin.0, w[1].y - origin.1);
+                let cross = x0 * y1 - x1 * y0;
+                ring_a += cross;
+                ring_x += (x0 + x1) * cross;
+                ring_y += (y0 + y1) * cross;
+            }
+            // Exterior counts positive and holes negative whatever their orientation.
+            let sign = if (k == 0) == (ring_a >= 0.0) {
+                1.0
+            } else {
+                -1.0
+            };
+            a += sign * ring_a;
+            cx += sign * ring_x;
+            cy += sign * ring_y;
+        }
+    }
+    if a.abs() > 0.0 {
+        (origin.0 + cx / (3.0 * a), origin.1 + cy / (3.0 * a))
+    } else {
+        let points: Vec<_> = polygon
+            .0
+            .iter()
+            .flat_map(|p| p.exterior().0.iter())
+            .collect();
+        let m = points.len().max(1) as f64;
+        (
+            points.iter().map(|c| c.x).sum::<f64>() / m,
+            points.iter().map(|c| c.y).sum::<f64>() / m,
+        )
+    }
+}
+
+type IndexedPoint = GeomWithData<[f64; 2], u32>;
+
+fn centroid_tree(x: &[f64], y: &[f64]) -> RTree<IndexedPoint> {
+    RTree::bulk_load(
+        x.iter()
+            .zip(y)
+            .enumerate()
+            .map(|(i, (a, b))| IndexedPoint::new([*a, *b], i as u32))
+            .collect(),
+    )
+}
+
+/// The `k` nearest points to (`px`, `py`) other than point `me`, ordered by distance then index
+/// (deterministic under ties).
+fn nearest_others(tree: &RTree<IndexedPoint>, px: f64, py: f64, me: usize, k: usize) -> Vec<u32> {
+    let mut found: Vec<(f64, u32)> = Vec::with_capacity(k + 4);
+    for candidate in tree.nearest_neighbor_iter_with_distance_2(&[px, py]) {
+        let (point, d2) = candidate;
+        if point.data as usize == me {
+            continue;
+        }
+        // Keep reading past the k-th while distances tie, so ties resolve by index.
+        if found.len() >= k && d2 > found[k - 1].0 {
+            break;
+        }
+        found.push((d2, point.data));
+        if found.len() >= k {
+            found.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        }
+    }
+    found.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    found.truncate(k);
+    found.into_iter().map(|(_, i)| i).collect()
+}
+
+fn check_points(x: &[f64], y: &[f64]) -> Result<(), WeightsError> {
+    if x.len() != y.len() {
+        return Err(WeightsError::Invalid(format!(
+            "{} x coordinates for {} y coordinates",
+            x.len(),
+            y.len()
+        )));
+    }
+    if let Some(i) = x
+        .iter()
+        .zip(y)
+        .position(|(a, b)| !a.is_finite() || !b.is_finite())
+    {
+        return Err(WeightsError::Invalid(format!(
+            "area {i} has a non-finite centroid"
+        )));
+    }
+    Ok(())
+}
+
+/// The `k` nearest other centroids of every area (Euclidean distance; ties by lower index).
+/// Not symmetric in general. An R-tree answers each query in O(log n).
+///
+/// # Errors
+/// [`WeightsError::Invalid`] when `k` is 0 or not below the number of areas, or a centroid is
+/// not finite.
+pub fn k_nearest(x: &[f64], y: &[f64], k: usize) -> Result<Neighbours, WeightsError> {
+    check_points(x, y)?;
+    if k == 0 || k >= x.len() {
+        return Err(WeightsError::Invalid(format!(
+            "k = {k} neighbours needs 1 ≤ k < number of areas ({})",
+            x.len()
+        )));
+    }
+    let tree = centroid_tree(x, y);
+    let lists = (0..x.len())
+        .into_par_iter()
+        .map(|i| {
+            let mut l = nearest_others(&tree, x[i], y[i], i, k);
+            l.sort_unstable();
+            l
+        })
+        .collect();
+    Ok(Neighbours { lists })
+}
+
+/// Every other centroid within `max_distance` (inclusive) of each area's centroid. Symmetric.
+///
+/// # Errors
+/// [`WeightsError::Invalid`] for a non-positive or non-finite distance, or a non-finite centroid.
+pub fn distance_band(x: &[f64], y: &[f64], max_distance: f64) -> Result<Neighbours, WeightsError> {
+    check_points(x, y)?;
+    if !(max_distance.is_finite() && max_distance > 0.0) {
+        return Err(WeightsError::Invalid(format!(
+            "maximum distance {max_distance} must be a finite number > 0"
+        )));
+    }
+    let tree = centroid_tree(x, y);
+    let d2 = max_distance * max_distance;
+    let lists = (0..x.len())
+        .into_par_iter()
+        .map(|i| {
+            let mut l: Vec<u32> = tree
+                .locate_within_distance([x[i], y[i]], d2)
+                .map(|p| p.data)
+                .filter(|&j| j as usize != i)
+                .collect();
+            l.sort_unstable();
+            l
+        })
+        .collect();
+    Ok(Neighbours { lists })
+}
+
+/// How neighbours are defined.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Method {
+    /// Queen contiguity (a shared boundary point).
+    Queen,
+    /// Rook contiguity (a shared boundary edge).
+    Rook,
+    /// The k nearest centroids.
+    KNearest(usize),
+    /// Centroids within a distance (inclusive), in the coordinates' unit.
+    DistanceBand(f64),
+}
+
+/// Area-weighted centroids of every area, as (x, y) columns.
+pub fn centroids(polygons: &[MultiPolygon<f64>]) -> (Vec<f64>, Vec<f64>) {
+    polygons.par_iter().map(centroid).unzip()
+}
+
+/// Neighbours of `polygons` by `method` ([`contiguity`] with `snap_m`, [`k_nearest`] or
+/// [`distance_band`] on [`centroids`]).
+///
+/// # Errors
+/// As the builder called.
+pub fn build(
+    polygons: &[MultiPolygon<f64>],
+    method: Method,
+    snap_m: f64,
+) -> Result<Neighbours, WeightsError> {
+    match method {
+        Method::Queen => contiguity(polygons, Contiguity::Queen, snap_m),
+        Method::Rook => contiguity(polygons, Contiguity::Rook, snap_m),
+        Method::KNearest(k) => {
+            let (x, y) = centroids(polygons);
+            k_nearest(&x, &y, k)
+        }
+        Method::DistanceBand(d) => {
+            let (x, y) = centroids(polygons);
+            distance_band(&x, &y, d)
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+    use geo_types::{polygon, MultiPolygon};
+
+    /// Unit square with lower-left corner (x, y).
+    fn square(x: f64, y: f64) -> MultiPolygon<f64> {
+        MultiPolygon::new(vec![polygon![
+            (x: x, y: y), (x: x + 1.0, y: y), (x: x + 1.0, y: y + 1.0), (x: x, y: y + 1.0)
+        ]])
+    }
+
+    /// A rows × cols lattice of unit squares, row-major from the lower left.
+    fn lattice(rows: usize, cols: usize) -> Vec<MultiPolygon<f64>> {
+        (0..rows)
+            .flat_map(|r| (0..cols).map(move |c| square(c as f64, r as f64)))
+            .collect()
+    }
+
+    #[test]
+    fn three_by_three_lattice_by_hand() {
+        // Worked by hand: 3 × 3 rook has 12 shared edges → 24 directed links; queen adds the
+        // 8 diagonal pairs → 40. Centre (4) has 4 rook / 8 queen neighbours.
+        let areas = lattice(3, 3);
+        let rook = contiguity(&areas, Contiguity::Rook, 0.0).expect("valid input");
+        let queen = contiguity(&areas, Contiguity::Queen, 0.0).expect("valid input");
+        assert_eq!(rook.links(), 24);
+        assert_eq!(queen.links(), 40);
+        assert_eq!(rook.lists[4], vec![1, 3, 5, 7]);
+        assert_eq!(queen.lists[4], vec![0, 1, 2, 3, 5, 6, 7, 8]);
+        assert_eq!(queen.lists[0], vec![1, 3, 4]);
+        let s = queen.summary();
+        assert_eq!(
+            (s.min_neighbours, s.max_neighbours, s.components),
+            (3, 8, 1)
+        );
+        assert_relative_eq!(s.mean_neighbours, 40.0 / 9.0);
+        assert!(s.symmetric && s.islands.is_empty());
+    }
+
+    #[test]
+    fn island_and_components() {
+        let mut areas = lattice(1, 2);
+        areas.push(square(10.0, 0.0));
+        areas.push(square(10.0, 1.0));
+        areas.push(square(20.0, 0.0));
+        let queen = contiguity(&areas, Contiguity::Queen, 0.0).expect("valid input");
+        let s = queen.summary();
+        assert_eq!(s.islands, vec![4]);
+        assert_eq!(s.components, 3);
+        assert_eq!(queen.components(), vec![0, 0, 1, 1, 2]);
+        let mut linked = queen.clone();
+        let xs: Vec<f64> = areas.iter().map(|p| centroid(p).0).collect();
+        let ys: Vec<f64> = areas.iter().map(|p| centroid(p).1).collect();
+        // Island centroid (20.5, 0.5): nearest is area 2 at (10.5, 0.5), distance 10.
+        assert_eq!(linked.link_islands_to_nearest(&xs, &ys), vec![(4, 2)]);
+        assert_eq!(linked.lists[4], vec![2]);
+        assert_eq!(linked.lists[2], vec![3, 4]);
+        assert!(linked.islands().is_empty());
+    }
+
+    #[test]
+    fn corner_touch_is_queen_not_rook_and_snap_closes_gaps() {
+        let areas = vec![square(0.0, 0.0), square(1.0, 1.0)];
+        assert_eq!(
+            contiguity(&areas, Contiguity::Queen, 0.0)
+                .expect("valid input")
+                .links(),
+            2
+        );
+        assert_eq!(
+            contiguity(&areas, Contiguity::Rook, 0.0)
+                .expect("valid input")
+                .links(),
+            0
+        );
+        // A 1 mm digitising gap between two squares: no link exactly, linked with 5 mm snap.
+        let areas = vec![square(0.0, 0.0), square(1.001, 0.0)];
+        assert_eq!(
+            contiguity(&areas, Contiguity::Rook, 0.0)
+                .expect("valid input")
+                .links(),
+            0
+        );
+        assert_eq!(
+            contiguity(&areas, Contiguity::Rook, 0.005)
+                .expect("valid input")
+                .links(),
+            2
+        );
+        assert_eq!(
+            contiguity(&areas, Contiguity::Queen, 0.005)
+                .expect("valid input")
+                .links(),
+            2
+        );
+        assert!(contiguity(&areas, Contiguity::Queen, -1.0).is_err());
+    }
+
+    #[test]
+    fn knn_and_distance_band() {
+        // Five centroids on a line at x = 0, 1, 2, 4, 8.
+        let x = [0.0, 1.0, 2.0, 4.0, 8.0];
+        let y = [0.0; 5];
+        let knn = k_nearest(&x, &y, 2).expect("valid input");
+        // Area 1: 0 and 2 tie at 1 → both. Area 3: 2 (d 2), then 1 (d 3).
+        assert_eq!(knn.lists[1], vec![0, 2]);
+        assert_eq!(knn.lists[3], vec![1, 2]);
+        assert_eq!(knn.lists[4], vec![2, 3]);
+        assert!(!knn.is_symmetric());
+        assert!(knn.symmetrised().is_symmetric());
+        let band = distance_band(&x, &y, 2.0).expect("valid input");
+        assert_eq!(band.lists[0], vec![1, 2]);
+        assert_eq!(band.lists[3], vec![2]);
+        assert!(band.lists[4].is_empty());
+        assert!(k_nearest(&x, &y, 5).is_err());
+        assert!(distance_band(&x, &y, 0.0).is_err());
+        // Ties resolve by the lower index: area 1 with k = 1 takes area 0 (both at distance 1).
+        assert_eq!(k_nearest(&x, &y, 1).expect("valid input").lists[1], vec![0]);
+    }
+
+    #[test]
+    fn standardisation_and_moments() {
+        // Path 0 – 1 – 2, row standardised: w01 = 1, w10 = w12 = ½, w21 = 1.
+        let n = Neighbours {
+            lists: vec![vec![1], vec![0, 2], vec![1]],
+        };
+        let w = n.standardise(Standardisation::Row);
+        assert_eq!(w.row(1), (&[0u32, 2][..], &[0.5, 0.5][..]));
+        let m = w.moments();
+        // S0 = 3; S1 = ½ Σ (w_ij + w_ji)² = ½ · 4 · 1.5² = 4.5;
+        // row sums 1, 1, 1; column sums ½, 2, ½ → S2 = 1.5² + 3² + 1.5² = 13.5.
+        assert_relative_eq!(m.s0, 3.0);
+        assert_relative_eq!(m.s1, 4.5);
+        assert_relative_eq!(m.s2, 13.5);
+        let b = n.standardise(Standardisation::Binary).moments();
+        assert_relative_eq!(b.s0, 4.0);
+        assert_relative_eq!(b.s1, 8.0);
+        assert_relative_eq!(b.s2, 4.0 + 16.0 + 4.0);
+        // Asymmetric: 0 → 1 only. S1 = ½ (w01² + w10²) both from the one link = ½·2·1 = 1.
+        let a = Neighbours {
+            lists: vec![vec![1], vec![]],
+        };
+        assert_relative_eq!(a.standardise(Standardisation::Binary).moments().s1, 1.0);
+    }
+
+    #[test]
+    fn centroid_of_square_with_hole_and_empty_input() {
+        let c = centroid(&square(2.0, 3.0));
+        assert_relative_eq!(c.0, 2.5);
+        assert_relative_eq!(c.1, 3.5);
+        let empty = contiguity(&[], Contiguity::Queen, 0.0).expect("valid input");
+        assert!(empty.is_empty());
+        assert_eq!(empty.summary().components, 0);
+    }
+
+    #[test]
+    fn ten_thousand_squares_quickly() {
+        let areas = lattice(100, 100);
+        let queen = contiguity(&areas, Contiguity::Queen, 0.0).expect("valid input");
+        // Interior 98² × 8 + edges 4·98 × 5 + corners 4 × 3.
+        assert_eq!(queen.links(), 98 * 98 * 8 + 4 * 98 * 5 + 4 * 3);
+        let snapped = contiguity(&areas, Contiguity::Rook, 1e-6).expect("valid input");
+        assert_eq!(snapped.links(), 98 * 98 * 4 + 4 * 98 * 3 + 4 * 2);
     }
 }

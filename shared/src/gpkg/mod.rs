@@ -6,6 +6,7 @@ pub mod crs;
 pub mod raster;
 pub mod read;
 pub mod stage;
+pub mod weights_table;
 
 use std::path::Path;
 

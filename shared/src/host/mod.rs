@@ -74,14 +74,15 @@ pub trait Tool {
 
 /// The clap command of tool `T`: common options plus the tool's parameters.
 pub fn command<T: Tool>() -> clap::Command {
-    let command = clap::Command::new(format!("stance-{}", T::ID))
+    let command = clap::Command::new(format!("stance-{}", T::ID));
+    // The derive sets `about` from the parameter structs' doc comments: set the tool's own after.
+    T::Params::augment_args(CommonArgs::augment_args(command))
         .about(T::TITLE)
         .long_about(format!("{}\n\n{}", T::TITLE, T::DESCRIPTION))
         .version(crate::VERSION)
         .after_help(
             "Exit codes: 0 done, 2 bad arguments or unusable input, 1 failure while working.",
-        );
-    T::Params::augment_args(CommonArgs::augment_args(command))
+        )
 }
 
 /// Entry point of a tool executable: `fn main() -> ExitCode { host::main::<MyTool>() }`.

@@ -31,6 +31,11 @@ pub fn tools() -> Vec<Entry> {
     vec![
         entry::<stance_synth::Synth>(),
         entry::<stance_import::Import>(),
+        entry::<stance_density::Density>(),
+        entry::<stance_weights::Weights>(),
+        entry::<stance_rates::Rates>(),
+        entry::<stance_moran::Moran>(),
+        entry::<stance_render::Render>(),
     ]
 }
 

@@ -1,0 +1,163 @@
+//! stance-density end to end: the planted zones of stance-synth show up with the right sign in
+//! `_diff` and as significant in the tolerance p-values; bad inputs exit 2 with one line.
+
+use stance_core::gpkg::{crs, raster};
+use stance_tests::{out_dir, rows, run_in, tables};
+
+#[test]
+fn planted_zones_show_in_diff_and_tolerance() {
+    let dir = out_dir("density_zones");
+    run_in(
+        &dir,
+        "stance-synth",
+        &[
+            "--output", "s.gpkg", "--points", "20000", "--seed", "3", "-q",
+        ],
+    )
+    .ok();
+    let summary = run_in(
+        &dir,
+        "stance-density",
+        &[
+            "--input",
+            "s.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--stance-field",
+            "stance",
+            "--output",
+            "d.gpkg",
+            "--cell-m",
+            "500",
+            "--bandwidth-m",
+            "8000",
+            "--permutations",
+            "99",
+            "-q",
+        ],
+    )
+    .ok();
+    let path = dir.join("d.gpkg");
+    let names = tables(&path);
+    for t in [
+        "density_support",
+        "density_oppose",
+        "density_diff",
+        "density_logrr",
+        "density_logrr_p",
+        "density_tolerance",
+    ] {
+        assert!(names.iter().any(|n| n == t), "missing {t}: {names:?}");
+    }
+    assert_eq!(summary["results"]["bandwidth_m"].as_f64(), Some(8000.0));
+    let diff = raster::read(&path, "density_diff").expect("diff");
+    let p_upper = raster::read(&path, "density_logrr_p").expect("p");
+    let p_lower = raster::read(&path, "density_logrr_p_lower").expect("p lower");
+    let working = crs::parse(&diff.crs_wkt).expect("crs");
+    let wgs84 = crs::wgs84().expect("wgs84");
+    let truth = rows(
+        &s_path(&dir),
+        "SELECT favours, centre_lon, centre_lat FROM veldmark_truth WHERE kind = 'stance_zone'",
+    );
+    assert_eq!(truth.len(), 4);
+    for zone in truth {
+        let mut x = [zone[1].parse::<f64>().expect("lon")];
+        let mut y = [zone[2].parse::<f64>().expect("lat")];
+        crs::transform(&wgs84, &working, &mut x, &mut y).expect("project");
+        let g = diff.grid;
+        let col = ((x[0] - g.x_min) / g.cell_m).floor() as usize;
+        let row = ((g.y_max() - y[0]) / g.cell_m).floor() as usize;
+        let k = row * g.cols + col;
+        let (d, pu, pl) = (diff.values[k], p_upper.values[k], p_lower.values[k]);
+        // The planted odds multiplier is 3 within 6–10 km: at the centre the favoured class
+        // dominates and, with ~20,000 records, is significant at 0.05 in its own tail.
+        if zone[0] == "support" {
+            assert!(
+                d > 0.0 && pu <= 0.05,
+                "support zone at {zone:?}: diff {d}, p {pu}"
+            );
+        } else {
+            assert!(
+                d < 0.0 && pl <= 0.05,
+                "oppose zone at {zone:?}: diff {d}, p lower {pl}"
+            );
+        }
+    }
+    let elevated = rows(
+        &path,
+        "SELECT DISTINCT elevated FROM density_tolerance ORDER BY elevated",
+    );
+    assert_eq!(
+        elevated,
+        vec![vec!["oppose".to_owned()], vec!["support".to_owned()]]
+    );
+}
+
+fn s_path(dir: &std::path::Path) -> std::path::PathBuf {
+    dir.join("s.gpkg")
+}
+
+#[test]
+fn bad_inputs_exit_2_with_one_line() {
+    let dir = out_dir("density_bad");
+    run_in(
+        &dir,
+        "stance-synth",
+        &["--output", "s.gpkg", "--points", "500", "--seed", "4", "-q"],
+    )
+    .ok();
+    let base = [
+        "--input",
+        "s.gpkg",
+        "--layer",
+        "veldmark_records",
+        "--output",
+        "d.gpkg",
+        "--permutations",
+        "0",
+        "-q",
+    ];
+    let with = |extra: &[&str]| {
+        let mut args: Vec<&str> = base.to_vec();
+        args.extend_from_slice(extra);
+        run_in(&dir, "stance-density", &args)
+    };
+    with(&["--bandwidth-m", "0"]).usage_error(&["--bandwidth-m", "positive"]);
+    with(&["--bandwidth-m=-5"]).usage_error(&["--bandwidth-m", "-5"]);
+    with(&["--cell-m", "1", "--max-cells", "1000"]).usage_error(&["--max-cells", "use --cell-m"]);
+    with(&["--compare", "support,maybe"]).usage_error(&["--compare", "maybe"]);
+    // A negative weight: a CSV imported with its reach column kept.
+    std::fs::write(
+        dir.join("w.csv"),
+        "lon,lat,stance,reach\n-140.1,35.0,support,2\n-140.2,35.1,oppose,-3\n-140.3,35.05,support,1\n",
+    )
+    .expect("csv");
+    run_in(
+        &dir,
+        "stance-import",
+        &[
+            "--input", "w.csv", "--output", "w.gpkg", "--name", "w", "--keep", "reach", "-q",
+        ],
+    )
+    .ok();
+    run_in(
+        &dir,
+        "stance-density",
+        &[
+            "--input",
+            "w.gpkg",
+            "--output",
+            "d.gpkg",
+            "--weight-field",
+            "reach",
+            "--bandwidth-m",
+            "5000",
+            "-q",
+        ],
+    )
+    .usage_error(&["reach", "-3", "non-negative"]);
+    assert!(
+        !dir.join("d.gpkg").exists(),
+        "a failed run wrote its output"
+    );
+}

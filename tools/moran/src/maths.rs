@@ -1,0 +1,577 @@
+//! Global and local Moran's I (Moran 1950; Cliff & Ord 1981, *Spatial Processes*, ch. 2;
+//! Anselin 1995, "Local indicators of spatial association — LISA", Geogr. Anal. 27(2)), with
+//! conditional-randomisation moments (Sokal, Oden & Thomson 1998, Geogr. Anal. 30(4), eqs. A7–A8),
+//! permutation tests, and the Empirical Bayes standardised rate (Assunção & Reis 1999,
+//! Stat. Med. 18(16)).
+//!
+//! Scales follow R spdep 1.2: local Ii = (z_i / m2) Σ_j w_ij z_j with m2 = Σ z² / n (esda's `Is`
+//! is (n − 1)/n times this); global I uses spdep's `adjust.n`: n counts areas with neighbours.
+
+use rand::Rng;
+use rayon::prelude::*;
+use stance_core::montecarlo::{mix64, replicate_rng};
+use stance_core::weights::SparseWeights;
+
+/// The direction of a test.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Alternative {
+    /// Either direction: p = min(1, 2 · min(p_greater, p_less)).
+    TwoSided,
+    /// Positive association (clustering of like values).
+    Greater,
+    /// Negative association (dispersion).
+    Less,
+}
+
+/// Errors of the statistics.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum MoranError {
+    /// The values do not vary: Moran's I is 0/0.
+    #[error("all values are equal ({0}); Moran's I is undefined for a constant field")]
+    Constant(f64),
+    /// Too few areas with neighbours for the variances (n − 3 in a denominator).
+    #[error("{0} area(s) have neighbours; Moran's I needs at least 4")]
+    TooFew(usize),
+    /// A value is missing or not finite.
+    #[error("value {index} is not a finite number")]
+    NotFinite {
+        /// Index of the area.
+        index: usize,
+    },
+    /// Rates need positive bases and non-negative events.
+    #[error("area {index}: {message}")]
+    BadRate {
+        /// Index of the area.
+        index: usize,
+        /// What is wrong.
+        message: String,
+    },
+}
+
+/// Standard normal upper tail 1 − Φ(x) = erfc(x / √2) / 2, to ~1e-15 relative.
+pub fn normal_upper_tail(x: f64) -> f64 {
+    0.5 * erfc(x / std::f64::consts::SQRT_2)
+}
+
+/// Complementary error function: the Maclaurin series of erf for |x| < 2.5 (all terms positive
+/// in the form 2/√π e^{−x²} Σ 2ⁿ x^{2n+1} / (2n+1)!!, Abramowitz & Stegun 7.1.6) and the
+/// continued fraction of erfc otherwise (A&S 7.1.14, evaluated by Lentz's method).
+pub fn erfc(x: f64) -> f64 {
+    if x.is_nan() {
+        return f64::NAN;
+    }
+    if x < 0.0 {
+        return 2.0 - erfc(-x);
+    }
+    if x < 2.5 {
+        let mut term = x;
+        let mut sum = x;
+        let x2 = x * x;
+        let mut n = 0.0;
+        while term > sum * 1e-17 {
+            n += 1.0;
+            term *= 2.0 * x2 / (2.0 * n + 1.0);
+            sum += term;
+        }
+        let erf = 2.0 / std::f64::consts::PI.sqrt() * (-x2).exp() * sum;
+        return 1.0 - erf;
+    }
+    if x > 27.0 {
+        return 0.0;
+    }
+    // erfc(x) = e^{−x²}/√π · 1/(x + (1/2)/(x + 1/(x + (3/2)/(x + 2/(x + …))))).
+    let tiny = 1e-300;
+    let mut f = x;
+    let mut c = x;
+    let mut d = 0.0;
+    for k in 1..500 {
+        let a = k as f64 / 2.0;
+        d = x + a * d;
+        d = if d.abs() < tiny { tiny } else { d };
+        c = x + a / c;
+        c = if c.abs() < tiny { tiny } else { c };
+        d = 1.0 / d;
+        let delta = c * d;
+        f *= delta;
+        if (delta - 1.0).abs() < 1e-16 {
+            break;
+        }
+    }
+    (-x * x).exp() / std::f64::consts::PI.sqrt() / f
+}
+
+/// The analytic p-value of a standard normal deviate `z` under `alternative`.
+pub fn normal_p(z: f64, alternative: Alternative) -> f64 {
+    match alternative {
+        Alternative::Greater => normal_upper_tail(z),
+        Alternative::Less => normal_upper_tail(-z),
+        Alternative::TwoSided => (2.0 * normal_upper_tail(z.abs())).min(1.0),
+    }
+}
+
+/// Rank p-values from counts of replicates at least as large / as small as the observation,
+/// p = (1 + count) / (R + 1) (Davison & Hinkley 1997, eq. 4.11); two-sided folds the smaller tail:
+/// min(1, 2 · min(p_greater, p_less)).
+pub fn permutation_p(
+    at_least: usize,
+    at_most: usize,
+    replicates: usize,
+    alternative: Alternative,
+) -> f64 {
+    let r = (replicates + 1) as f64;
+    let greater = (1 + at_least) as f64 / r;
+    let less = (1 + at_most) as f64 / r;
+    match alternative {
+        Alternative::Greater => greater,
+        Alternative::Less => less,
+        Alternative::TwoSided => (2.0 * greater.min(less)).min(1.0),
+    }
+}
+
+/// Global Moran's I with its moments and tests.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GlobalMoran {
+    /// I = (n / S0) Σ_i z_i Σ_j w_ij z_j / Σ z_i².
+    pub i: f64,
+    /// E[I] = −1 / (n − 1).
+    pub expected: f64,
+    /// Var[I] under normality (Cliff & Ord 1981, eq. 2.33).
+    pub variance_normality: f64,
+    /// Var[I] under randomisation (Cliff & Ord 1981, eq. 2.34; spdep `moran.test` default).
+    pub variance_randomisation: f64,
+    /// (I − E[I]) / √Var_normality.
+    pub z_normality: f64,
+    /// (I − E[I]) / √Var_randomisation.
+    pub z_randomisation: f64,
+    /// Analytic p from `z_normality`.
+    pub p_normality: f64,
+    /// Analytic p from `z_randomisation`.
+    pub p_randomisation: f64,
+    /// Permutation p (NaN without permutations).
+    pub p_permutation: f64,
+    /// Mean of I over the permutations (NaN without permutations).
+    pub permutation_mean: f64,
+    /// n used in the formulas (areas with neighbours).
+    pub n: usize,
+    /// Weight sums.
+    pub s0: f64,
+    /// Weight sums.
+    pub s1: f64,
+    /// Weight sums.
+    pub s2: f64,
+}
+
+fn check_values(x: &[f64]) -> Result<(), MoranError> {
+    if let Some(index) = x.iter().position(|v| !v.is_finite()) {
+        return Err(MoranError::NotFinite { index });
+    }
+    if x.iter().all(|v| *v == x[0]) {
+        return Err(MoranError::Constant(x.first().copied().unwrap_or(f64::NAN)));
+    }
+    Ok(())
+}
+
+/// Values centred on their mean (over every area, islands included, as spdep).
+fn centred(x: &[f64]) -> Vec<f64> {
+    let mean = x.iter().sum::<f64>() / x.len() as f64;
+    x.iter().map(|v| v - mean).collect()
+}
+
+fn cross_product(w: &SparseWeights, z: &[f64]) -> f64 {
+    (0..z.len()).map(|i| z[i] * w.lag(i, z)).sum()
+}
+
+/// Global Moran's I of `x` under weights `w`, with `permutations` random relabellings seeded by
+/// `seed` (replicate r uses [`replicate_rng`]`(seed, r)`, so results do not depend on threads).
+///
+/// # Errors
+/// [`MoranError`] for non-finite or constant values, or fewer than 4 areas with neighbours.
+pub fn global_moran(
+    x: &[f64],
+    w: &SparseWeights,
+    permutations: usize,
+    seed: u64,
+    alternative: Alternative,
+) -> Result<GlobalMoran, MoranError> {
+    check_values(x)?;
+    let with_neighbours = (0..w.len()).filter(|&i| !w.row(i).0.is_empty()).count();
+    if with_neighbours < 4 {
+        return Err(MoranError::TooFew(with_neighbours));
+    }
+    let z = centred(x);
+    let zz: f64 = z.iter().map(|v| v * v).sum();
+    let z4: f64 = z.iter().map(|v| v.powi(4)).sum();
+    let kurtosis = x.len() as f64 * z4 / (zz * zz);
+    let m = w.moments();
+    let n = with_neighbours as f64;
+    let i = n / m.s0 * cross_product(w, &z) / zz;
+    let expected = -1.0 / (n - 1.0);
+    let s02 = m.s0 * m.s0;
+    let variance_normality =
+        (n * n * m.s1 - n * m.s2 + 3.0 * s02) / (s02 * (n * n - 1.0)) - expected * expected;
+    let variance_randomisation = (n * (m.s1 * (n * n - 3.0 * n + 3.0) - n * m.s2 + 3.0 * s02)
+        - kurtosis * (m.s1 * (n * n - n) - 2.0 * n * m.s2 + 6.0 * s02))
+        / ((n - 1.0) * (n - 2.0) * (n - 3.0) * s02)
+        - expected * expected;
+    let z_normality = (i - expected) / variance_normality.sqrt();
+    let z_randomisation = (i - expected) / variance_randomisation.sqrt();
+    let (p_permutation, permutation_mean) = if permutations == 0 {
+        (f64::NAN, f64::NAN)
+    } else {
+        let replicates: Vec<f64> = (0..permutations as u64)
+            .into_par_iter()
+            .map(|r| {
+                let mut rng = replicate_rng(seed, r);
+                let mut shuffled = z.clone();
+                for k in (1..shuffled.len()).rev() {
+                    let j = rng.random_range(0..=k as u32) as usize;
+                    shuffled.swap(k, j);
+                }
+                n / m.s0 * cross_product(w, &shuffled) / zz
+            })
+            .collect();
+        let at_least = replicates.iter().filter(|v| **v >= i).count();
+        let at_most = replicates.iter().filter(|v| **v <= i).count();
+        (
+            permutation_p(at_least, at_most, permutations, alternative),
+            replicates.iter().sum::<f64>() / permutations as f64,
+        )
+    };
+    Ok(GlobalMoran {
+        i,
+        expected,
+        variance_normality,
+        variance_randomisation,
+        z_normality,
+        z_randomisation,
+        p_normality: normal_p(z_normality, alternative),
+        p_randomisation: normal_p(z_randomisation, alternative),
+        p_permutation,
+        permutation_mean,
+        n: with_neighbours,
+        s0: m.s0,
+        s1: m.s1,
+        s2: m.s2,
+    })
+}
+
+/// Local Moran's I of every area; islands hold NaN.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LocalMoran {
+    /// Ii = (z_i / m2) Σ_j w_ij z_j, m2 = Σ z² / n (spdep's scale).
+    pub ii: Vec<f64>,
+    /// E[Ii] under conditional randomisation: −z_i² W_i / ((n − 1) m2).
+    pub expected: Vec<f64>,
+    /// Var[Ii] under conditional randomisation:
+    /// (z_i/m2)² · n/(n − 2) · (W_i(2) − W_i²/(n − 1)) · (m2 − z_i²/(n − 1)).
+    pub variance: Vec<f64>,
+    /// (Ii − E[Ii]) / √Var[Ii].
+    pub z: Vec<f64>,
+    /// Analytic p from `z`.
+    pub p_analytic: Vec<f64>,
+    /// Conditional-permutation pseudo p (NaN without permutations).
+    pub p_permutation: Vec<f64>,
+    /// The centred value z_i = x_i − x̄.
+    pub centred: Vec<f64>,
+    /// Its spatial lag Σ_j w_ij z_j.
+    pub lag: Vec<f64>,
+}
+
+/// Stream offset so local permutations never reuse the global ones' seeds.
+const LOCAL_STREAM: u64 = 0x4C4F_4341_4C5F_4D49;
+
+/// Local Moran's I with analytic conditional moments and conditional-permutation pseudo
+/// p-values: for area i, each of `permutations` draws takes |N(i)| distinct values at random
+/// from the other n − 1 areas (area i keeps its own value). Area i draws from
+/// [`replicate_rng`]`(mix64(seed ^ LOCAL_STREAM), i)`, so results do not depend on threads.
+///
+/// # Errors
+/// [`MoranError`] for non-finite or constant values.
+pub fn local_moran(
+    x: &[f64],
+    w: &SparseWeights,
+    permutations: usize,
+    seed: u64,
+    alternative: Alternative,
+) -> Result<LocalMoran, MoranError> {
+    check_values(x)?;
+    let n = x.len();
+    let nf = n as f64;
+    let z = centred(x);
+    let m2 = z.iter().map(|v| v * v).sum::<f64>() / nf;
+    let stream = mix64(seed ^ LOCAL_STREAM);
+    let rows: Vec<[f64; 7]> = (0..n)
+        .into_par_iter()
+        .map(|i| {
+            let (js, ws) = w.row(i);
+            if js.is_empty() {
+                return [f64::NAN; 7];
+            }
+            let lag = w.lag(i, &z);
+            let ii = z[i] / m2 * lag;
+            let wi: f64 = ws.iter().sum();
+            let wi2: f64 = ws.iter().map(|v| v * v).sum();
+            let expected = -(z[i] * z[i] * wi) / ((nf - 1.0) * m2);
+            let variance = (z[i] / m2).powi(2)
+                * (nf / (nf - 2.0))
+                * (wi2 - wi * wi / (nf - 1.0))
+                * (m2 - z[i] * z[i] / (nf - 1.0));
+            let zi = (ii - expected) / variance.sqrt();
+            let p_permutation = if permutations == 0 || n < 2 {
+                f64::NAN
+            } else {
+                let mut rng = replicate_rng(stream, i as u64);
+                let k = js.len().min(n - 1);
+                let mut drawn: Vec<usize> = Vec::with_capacity(k);
+                let (mut at_least, mut at_most) = (0, 0);
+                for _ in 0..permutations {
+                    drawn.clear();
+                    while drawn.len() < k {
+                        // u32 draws: half the generator output of a usize range.
+                        let mut j = rng.random_range(0..(n - 1) as u32) as usize;
+                        if j >= i {
+                            j += 1;
+                        }
+                        if !drawn.contains(&j) {
+                            drawn.push(j);
+                        }
+                    }
+                    let lag_r: f64 = drawn.iter().zip(ws).map(|(j, wj)| wj * z[*j]).sum();
+                    let ii_r = z[i] / m2 * lag_r;
+                    at_least += usize::from(ii_r >= ii);
+                    at_most += usize::from(ii_r <= ii);
+                }
+                permutation_p(at_least, at_most, permutations, alternative)
+            };
+            [
+                ii,
+                expected,
+                variance,
+                zi,
+                normal_p(zi, alternative),
+                p_permutation,
+                lag,
+            ]
+        })
+        .collect();
+    let column = |c: usize| rows.iter().map(|r| r[c]).collect::<Vec<f64>>();
+    Ok(LocalMoran {
+        ii: column(0),
+        expected: column(1),
+        variance: column(2),
+        z: column(3),
+        p_analytic: column(4),
+        p_permutation: column(5),
+        lag: column(6),
+        centred: z,
+    })
+}
+
+/// Cluster type of an area by the quadrant of (z_i, lag_i), both centred on the mean, when its
+/// p ≤ `alpha`: a value or lag ≥ 0 counts as high.
+pub fn cluster_type(centred: f64, lag: f64, p: f64, alpha: f64) -> Option<&'static str> {
+    if !(p.is_finite() && centred.is_finite() && lag.is_finite()) {
+        return None;
+    }
+    if p > alpha {
+        return Some("not significant");
+    }
+    Some(match (centred >= 0.0, lag >= 0.0) {
+        (true, true) => "high-high",
+        (false, false) => "low-low",
+        (true, false) => "high-low",
+        (false, true) => "low-high",
+    })
+}
+
+/// Assunção–Reis (1999) Empirical Bayes standardised rates, as spdep `EBImoran.mc`:
+/// p_i = e_i / b_i, β = Σe / Σb, α = Σ b_i (p_i − β)² / Σb − β / (Σb / n) (set to 0 when
+/// negative, Marshall 1991), v_i = α + β / b_i, z_i = (p_i − β) / √v_i.
+///
+/// # Errors
+/// [`MoranError::BadRate`] for a base ≤ 0, negative events or non-finite values.
+pub fn eb_standardised_rates(events: &[f64], base: &[f64]) -> Result<Vec<f64>, MoranError> {
+    for (index, (e, b)) in events.iter().zip(base).enumerate() {
+        if !(e.is_finite() && b.is_finite()) {
+            return Err(MoranError::NotFinite { index });
+        }
+        if *b <= 0.0 {
+            return Err(MoranError::BadRate {
+                index,
+                message: format!("base {b} must be positive for an Empirical Bayes rate"),
+            });
+        }
+        if *e < 0.0 {
+            return Err(MoranError::BadRate {
+                index,
+                message: format!("events {e} must not be negative"),
+            });
+        }
+    }
+    let n = events.len() as f64;
+    let (event_sum, base_sum): (f64, f64) = (events.iter().sum(), base.iter().sum());
+    let beta = event_sum / base_sum;
+    let spread: f64 = events
+        .iter()
+        .zip(base)
+        .map(|(e, b)| b * (e / b - beta).powi(2))
+        .sum::<f64>()
+        / base_sum;
+    let alpha = (spread - beta / (base_sum / n)).max(0.0);
+    Ok(events
+        .iter()
+        .zip(base)
+        .map(|(e, b)| (e / b - beta) / (alpha + beta / b).sqrt())
+        .collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+    use stance_core::weights::{Neighbours, Standardisation};
+
+    #[test]
+    fn erfc_against_python_math() {
+        // Python 3.11 math.erfc / statistics.NormalDist printed to 17 digits.
+        assert_relative_eq!(erfc(0.5), 0.4795001221869535, max_relative = 1e-14);
+        assert_relative_eq!(erfc(1.0), 0.15729920705028513, max_relative = 1e-14);
+        assert_relative_eq!(erfc(3.0), 2.209049699858544e-05, max_relative = 1e-13);
+        assert_relative_eq!(erfc(6.0), 2.1519736712498913e-17, max_relative = 1e-12);
+        assert_relative_eq!(
+            normal_upper_tail(1.959963984540054),
+            0.025,
+            max_relative = 1e-13
+        );
+        assert_relative_eq!(
+            normal_upper_tail(-1.0),
+            0.8413447460685429,
+            max_relative = 1e-14
+        );
+    }
+
+    /// A path of 4 areas 0 – 1 – 2 – 3 with values 1, 2, 3, 10: worked by hand below.
+    fn path() -> (Vec<f64>, SparseWeights) {
+        let n = Neighbours {
+            lists: vec![vec![1], vec![0, 2], vec![1, 3], vec![2]],
+        };
+        (
+            vec![1.0, 2.0, 3.0, 10.0],
+            n.standardise(Standardisation::Row),
+        )
+    }
+
+    #[test]
+    fn local_moran_on_a_path_by_hand() {
+        // Mean 4; z = −3, −2, −1, 6; Σz² = 50, m2 = 12.5.
+        // Lags (row): −2, (−3 − 1)/2 = −2, (−2 + 6)/2 = 2, −1.
+        // Ii = z·lag/m2: 6/12.5 = 0.48, 4/12.5 = 0.32, −2/12.5 = −0.16, −6/12.5 = −0.48.
+        let (x, w) = path();
+        let l = local_moran(&x, &w, 0, 1, Alternative::TwoSided).expect("valid");
+        for (g, e) in l.ii.iter().zip([0.48, 0.32, -0.16, -0.48]) {
+            assert_relative_eq!(*g, e, max_relative = 1e-14);
+        }
+        // E[I0] = −z0² W0 / ((n−1) m2) = −9 / 37.5 = −0.24.
+        assert_relative_eq!(l.expected[0], -0.24, max_relative = 1e-14);
+        // Var[I1] = (z1/m2)² · n/(n−2) · (W(2) − W²/(n−1)) · (m2 − z1²/(n−1))
+        //         = (0.16)² · 2 · (0.5 − 1/3) · (12.5 − 4/3) = 0.0256 · 2 · (1/6) · (33.5/3).
+        assert_relative_eq!(
+            l.variance[1],
+            0.0256 * 2.0 / 6.0 * (33.5 / 3.0),
+            max_relative = 1e-14
+        );
+        assert_eq!(
+            cluster_type(l.centred[3], l.lag[3], 0.01, 0.05),
+            Some("high-low")
+        );
+        assert_eq!(
+            cluster_type(l.centred[0], l.lag[0], 0.01, 0.05),
+            Some("low-low")
+        );
+        assert_eq!(
+            cluster_type(l.centred[0], l.lag[0], 0.2, 0.05),
+            Some("not significant")
+        );
+    }
+
+    #[test]
+    fn global_moran_on_a_path_by_hand() {
+        // Row weights: S0 = 4, n = 4; Σ z·lag = 6 + 4 − 2 − 6 = 2 → I = (4/4) · 2/50 = 0.04.
+        let (x, w) = path();
+        let g = global_moran(&x, &w, 99, 7, Alternative::Greater).expect("valid");
+        assert_relative_eq!(g.i, 0.04, max_relative = 1e-14);
+        assert_relative_eq!(g.expected, -1.0 / 3.0, max_relative = 1e-14);
+        assert!(g.p_permutation > 0.0 && g.p_permutation <= 1.0);
+    }
+
+    #[test]
+    fn constant_nan_and_islands() {
+        let (_, w) = path();
+        assert_eq!(
+            global_moran(&[2.0; 4], &w, 0, 1, Alternative::Greater),
+            Err(MoranError::Constant(2.0))
+        );
+        assert!(local_moran(&[1.0, f64::NAN, 2.0, 3.0], &w, 0, 1, Alternative::Greater).is_err());
+        let island = Neighbours {
+            lists: vec![vec![1], vec![0, 2], vec![1], vec![]],
+        }
+        .standardise(Standardisation::Row);
+        let l = local_moran(&[1.0, 2.0, 3.0, 4.0], &island, 9, 1, Alternative::TwoSided)
+            .expect("valid");
+        assert!(l.ii[3].is_nan() && l.p_permutation[3].is_nan());
+        assert!(l.ii[0].is_finite());
+        assert_eq!(
+            global_moran(&[1.0, 2.0, 3.0, 4.0], &island, 0, 1, Alternative::Greater),
+            Err(MoranError::TooFew(3))
+        );
+    }
+
+    #[test]
+    fn permutations_do_not_depend_on_threads() {
+        let n = 400;
+        let x: Vec<f64> = (0..n).map(|i| ((i * 37) % 101) as f64).collect();
+        let lists = (0..n)
+            .map(|i| {
+                let mut l = vec![];
+                if i > 0 {
+                    l.push(i as u32 - 1);
+                }
+                if i + 1 < n {
+                    l.push(i as u32 + 1);
+                }
+                l
+            })
+            .collect();
+        let w = Neighbours { lists }.standardise(Standardisation::Row);
+        let run = |threads: usize| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .expect("pool")
+                .install(|| {
+                    (
+                        local_moran(&x, &w, 199, 5, Alternative::TwoSided).expect("valid"),
+                        global_moran(&x, &w, 199, 5, Alternative::TwoSided).expect("valid"),
+                    )
+                })
+        };
+        assert_eq!(run(1), run(2));
+    }
+
+    #[test]
+    fn permutation_p_folding() {
+        // 999 replicates, 10 at least as large, 990 at most as large.
+        assert_relative_eq!(permutation_p(10, 990, 999, Alternative::Greater), 0.011);
+        assert_relative_eq!(permutation_p(10, 990, 999, Alternative::TwoSided), 0.022);
+        assert_relative_eq!(permutation_p(999, 999, 999, Alternative::TwoSided), 1.0);
+    }
+
+    #[test]
+    fn eb_rates_reject_zero_base() {
+        assert!(eb_standardised_rates(&[1.0, 2.0], &[10.0, 0.0]).is_err());
+        assert!(eb_standardised_rates(&[-1.0, 2.0], &[10.0, 5.0]).is_err());
+        // Equal rates: every standardised rate is 0.
+        let z = eb_standardised_rates(&[1.0, 2.0, 3.0], &[10.0, 20.0, 30.0]).expect("valid");
+        assert!(z.iter().all(|v| v.abs() < 1e-15));
+    }
+}
