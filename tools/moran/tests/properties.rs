@@ -40,7 +40,7 @@ proptest! {
         prop_assume!(values.iter().any(|v| (v - mean).abs() > 1e-6));
         let original = global_moran(&values, &nb.standardise(style), 0, 1, Alternative::TwoSided).expect("moran");
         // Area `old` becomes area new_of[old].
-        let mut new_of = vec![0u32; 20];
+        let mut new_of = [0u32; 20];
         for (new, old) in order.iter().enumerate() {
             new_of[*old] = new as u32;
         }
