@@ -3,6 +3,7 @@
 
 mod common;
 pub mod describe;
+pub mod neighbours;
 mod progress;
 
 use std::ffi::OsString;

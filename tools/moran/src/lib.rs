@@ -14,22 +14,7 @@ use stance_core::multiple::{adjust, Adjustment};
 use stance_core::weights::{self, Method, Standardisation};
 
 use maths::{Alternative, MoranError};
-
-/// How neighbours are built when no --weights table is given.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize, schemars::JsonSchema,
-)]
-#[serde(rename_all = "kebab-case")]
-pub enum MethodArg {
-    /// Areas sharing a boundary point (vertex).
-    Queen,
-    /// Areas sharing a boundary edge.
-    Rook,
-    /// The --k nearest area centroids.
-    Knn,
-    /// Area centroids within --max-distance-m.
-    Distance,
-}
+use stance_core::host::neighbours::NeighbourArgs;
 
 /// Weight scaling.
 #[derive(
@@ -95,22 +80,9 @@ pub struct MoranParams {
     pub weights: Option<String>,
 
     /// How neighbours are built without --weights.
-    #[arg(long, value_enum, default_value_t = MethodArg::Queen)]
-    #[serde(default = "default_method")]
-    pub method: MethodArg,
-
-    /// Number of nearest neighbours (with --method knn).
-    #[arg(long, value_name = "N")]
-    pub k: Option<usize>,
-
-    /// Largest centroid distance of a neighbour, in metres (with --method distance).
-    #[arg(long, value_name = "METRES")]
-    pub max_distance_m: Option<f64>,
-
-    /// Vertices closer than this are one boundary point, in metres (contiguity without --weights).
-    #[arg(long, value_name = "METRES", default_value_t = 0.0)]
-    #[serde(default)]
-    pub snap_m: f64,
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub neighbours: NeighbourArgs,
 
     /// Field of the area ids used in the --weights table (default: the one the table records,
     /// else the feature id).
@@ -143,9 +115,6 @@ pub struct MoranParams {
     pub alpha: f64,
 }
 
-fn default_method() -> MethodArg {
-    MethodArg::Queen
-}
 fn default_standardise() -> StandardiseArg {
     StandardiseArg::Row
 }
@@ -173,49 +142,14 @@ enum Variable {
 }
 
 fn method_from(params: &MoranParams) -> Result<Method> {
-    if !(params.snap_m.is_finite() && params.snap_m >= 0.0) {
-        return Err(Error::argument("--snap-m", "must be a number ≥ 0 (metres)"));
-    }
-    if params.weights.is_some() {
-        if params.k.is_some() || params.max_distance_m.is_some() {
-            return Err(Error::argument(
-                "--weights",
-                "takes its neighbours from the table; drop --k / --max-distance-m",
-            ));
-        }
-        return Ok(Method::Queen);
-    }
-    if params.k.is_some() && params.method != MethodArg::Knn {
-        return Err(Error::argument("--k", "is used only with --method knn"));
-    }
-    if params.max_distance_m.is_some() && params.method != MethodArg::Distance {
+    let neighbours = &params.neighbours;
+    if params.weights.is_some() && (neighbours.k.is_some() || neighbours.max_distance_m.is_some()) {
         return Err(Error::argument(
-            "--max-distance-m",
-            "is used only with --method distance",
+            "--weights",
+            "takes its neighbours from the table; drop --k / --max-distance-m",
         ));
     }
-    Ok(match params.method {
-        MethodArg::Queen => Method::Queen,
-        MethodArg::Rook => Method::Rook,
-        MethodArg::Knn => match params.k {
-            Some(k) if k >= 1 => Method::KNearest(k),
-            _ => {
-                return Err(Error::argument(
-                    "--k",
-                    "a number ≥ 1 is required with --method knn",
-                ))
-            }
-        },
-        MethodArg::Distance => match params.max_distance_m {
-            Some(d) if d.is_finite() && d > 0.0 => Method::DistanceBand(d),
-            _ => {
-                return Err(Error::argument(
-                    "--max-distance-m",
-                    "a positive number of metres is required with --method distance",
-                ))
-            }
-        },
-    })
+    neighbours.method()
 }
 
 fn numbers(
@@ -435,11 +369,11 @@ impl Tool for Moran {
             None => {
                 let (polygons, srs) =
                     weights_table::project_areas(&layer, run.common.crs.as_deref())?;
-                let lists = weights::build(&polygons, method, params.snap_m)
+                let lists = weights::build(&polygons, method, params.neighbours.snap_m)
                     .map_err(|e| Error::argument("--method", e.to_string()))?;
                 (
                     lists,
-                    format!("{:?} built on the fly", params.method).to_lowercase(),
+                    format!("{:?} built on the fly", params.neighbours.method).to_lowercase(),
                     Some(srs),
                 )
             }

@@ -6,24 +6,9 @@ use serde_json::{json, Value};
 use stance_core::error::{Error, Result};
 use stance_core::gpkg::read::read_polygons;
 use stance_core::gpkg::weights_table::{self, AreaIds};
+use stance_core::host::neighbours::NeighbourArgs;
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
-use stance_core::weights::{self, Method};
-
-/// How neighbours are defined.
-#[derive(
-    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize, schemars::JsonSchema,
-)]
-#[serde(rename_all = "kebab-case")]
-pub enum MethodArg {
-    /// Areas sharing a boundary point (vertex).
-    Queen,
-    /// Areas sharing a boundary edge.
-    Rook,
-    /// The --k nearest area centroids (not symmetric in general).
-    Knn,
-    /// Area centroids within --max-distance-m.
-    Distance,
-}
+use stance_core::weights;
 
 /// What to do with areas that have no neighbour.
 #[derive(
@@ -43,23 +28,9 @@ pub enum IslandsArg {
 #[derive(Debug, Clone, clap::Args, serde::Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub struct WeightsParams {
-    /// How neighbours are defined.
-    #[arg(long, value_enum, default_value_t = MethodArg::Queen)]
-    #[serde(default = "default_method")]
-    pub method: MethodArg,
-
-    /// Number of nearest neighbours (with --method knn).
-    #[arg(long, value_name = "N")]
-    pub k: Option<usize>,
-
-    /// Largest centroid distance of a neighbour, in metres (with --method distance).
-    #[arg(long, value_name = "METRES")]
-    pub max_distance_m: Option<f64>,
-
-    /// Vertices closer than this are one boundary point (closes digitising gaps), in metres.
-    #[arg(long, value_name = "METRES", default_value_t = 0.0)]
-    #[serde(default)]
-    pub snap_m: f64,
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub neighbours: NeighbourArgs,
 
     /// Field with a stable id per area (default: the feature id); ids must be unique.
     #[arg(long, value_name = "FIELD")]
@@ -71,63 +42,8 @@ pub struct WeightsParams {
     pub islands: IslandsArg,
 }
 
-fn default_method() -> MethodArg {
-    MethodArg::Queen
-}
-
 fn default_islands() -> IslandsArg {
     IslandsArg::Keep
-}
-
-/// Checks the method options into a [`Method`].
-///
-/// # Errors
-/// [`Error::BadArgument`] naming the option.
-pub fn method_from(
-    method: MethodArg,
-    k: Option<usize>,
-    max_distance_m: Option<f64>,
-    snap_m: f64,
-) -> Result<Method> {
-    if !(snap_m.is_finite() && snap_m >= 0.0) {
-        return Err(Error::argument(
-            "--snap-m",
-            format!("{snap_m} must be a number ≥ 0 (metres)"),
-        ));
-    }
-    if k.is_some() && method != MethodArg::Knn {
-        return Err(Error::argument("--k", "is used only with --method knn"));
-    }
-    if max_distance_m.is_some() && method != MethodArg::Distance {
-        return Err(Error::argument(
-            "--max-distance-m",
-            "is used only with --method distance",
-        ));
-    }
-    Ok(match method {
-        MethodArg::Queen => Method::Queen,
-        MethodArg::Rook => Method::Rook,
-        MethodArg::Knn => match k {
-            Some(k) if k >= 1 => Method::KNearest(k),
-            Some(_) => return Err(Error::argument("--k", "must be at least 1")),
-            None => return Err(Error::argument("--k", "is required with --method knn")),
-        },
-        MethodArg::Distance => match max_distance_m {
-            Some(d) if d.is_finite() && d > 0.0 => Method::DistanceBand(d),
-            Some(d) => {
-                return Err(Error::argument(
-                    "--max-distance-m",
-                    format!("{d} must be a positive number of metres"),
-                ))
-            }
-            None => {
-                return Err(Error::argument(
-                    "--max-distance-m",
-                    "is required with --method distance",
-                ))
-            }
-        },
-    })
 }
 
 /// The weights tool.
@@ -159,12 +75,7 @@ impl Tool for Weights {
     }
 
     fn run(params: &WeightsParams, run: &mut Run) -> Result<Value> {
-        let method = method_from(
-            params.method,
-            params.k,
-            params.max_distance_m,
-            params.snap_m,
-        )?;
+        let method = params.neighbours.method()?;
         let input = run.input()?.to_owned();
         let fields: Vec<&str> = params.id_field.iter().map(String::as_str).collect();
         let layer = read_polygons(&input, run.common.layer.as_deref(), &fields)?;
@@ -173,7 +84,7 @@ impl Tool for Weights {
         run.progress.set(0.2);
         let (polygons, srs) = weights_table::project_areas(&layer, run.common.crs.as_deref())?;
         run.progress.set(0.4);
-        let mut neighbours = weights::build(&polygons, method, params.snap_m)
+        let mut neighbours = weights::build(&polygons, method, params.neighbours.snap_m)
             .map_err(|e| Error::argument("--method", e.to_string()))?;
         run.progress.set(0.7);
         let islands_before = neighbours.islands();
@@ -220,7 +131,7 @@ impl Tool for Weights {
         Ok(json!({
             "table": name,
             "rows": rows,
-            "method": params.method,
+            "method": params.neighbours.method,
             "id_field": params.id_field,
             "areas": summary.areas,
             "links": summary.links,
