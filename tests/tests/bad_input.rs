@@ -70,6 +70,35 @@ fn bad_inputs_exit_2_with_one_line_and_change_nothing() {
         "lon,lat,\"my \"\"stance\"\"\"\n-140.1,35.0,support\n",
     )
     .expect("csv");
+    // Point layers for the analysis tools: one class only, and a negative weight.
+    std::fs::write(
+        dir.join("one_class.csv"),
+        "lon,lat,stance\n-140.1,35.0,support\n-140.2,35.1,support\n-140.3,35.0,support\n",
+    )
+    .expect("csv");
+    std::fs::write(
+        dir.join("weighted.csv"),
+        "lon,lat,stance,w\n-140.1,35.0,support,1\n-140.2,35.1,oppose,-1\n-140.3,35.0,oppose,2\n",
+    )
+    .expect("csv");
+    for (csv, layer, extra) in [
+        ("one_class.csv", "one_class", None),
+        ("weighted.csv", "weighted", Some("w")),
+    ] {
+        let mut args = vec![
+            "--input",
+            csv,
+            "--output",
+            "fixtures.gpkg",
+            "--name",
+            layer,
+            "-q",
+        ];
+        if let Some(keep) = extra {
+            args.extend(["--keep", keep]);
+        }
+        run_in(&dir, "stance-import", &args).ok();
+    }
     let readonly = dir.join("readonly");
     std::fs::create_dir_all(&readonly).expect("mkdir");
     let (sample_s, text_s, truncated_s) = (
@@ -263,6 +292,246 @@ fn bad_inputs_exit_2_with_one_line_and_change_nothing() {
             &["many"],
         ),
         case(
+            "bandwidth zero",
+            "stance-density",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_records",
+                "--output",
+                "out.gpkg",
+                "--bandwidth-m",
+                "0",
+            ],
+            &["--bandwidth-m"],
+        ),
+        case(
+            "bandwidth negative",
+            "stance-density",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_records",
+                "--output",
+                "out.gpkg",
+                "--bandwidth-m",
+                "-500",
+            ],
+            &["--bandwidth-m"],
+        ),
+        case(
+            "cell size absurd",
+            "stance-density",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_records",
+                "--output",
+                "out.gpkg",
+                "--cell-m",
+                "0.01",
+            ],
+            &["--cell-m"],
+        ),
+        case(
+            "memory guard",
+            "stance-density",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_records",
+                "--output",
+                "out.gpkg",
+                "--max-memory-mb",
+                "1",
+            ],
+            &["--max-memory-mb", "--cell-m"],
+        ),
+        case(
+            "polygons where points are expected",
+            "stance-density",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_districts",
+                "--output",
+                "out.gpkg",
+            ],
+            &["veldmark_districts", "expected points"],
+        ),
+        case(
+            "single class present",
+            "stance-density",
+            &[
+                "--input",
+                "fixtures.gpkg",
+                "--layer",
+                "one_class",
+                "--output",
+                "out.gpkg",
+            ],
+            &["oppose"],
+        ),
+        case(
+            "negative weight",
+            "stance-density",
+            &[
+                "--input",
+                "fixtures.gpkg",
+                "--layer",
+                "weighted",
+                "--weight-field",
+                "w",
+                "--output",
+                "out.gpkg",
+            ],
+            &["'w'", "-1"],
+        ),
+        case(
+            "unknown compare class",
+            "stance-density",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_records",
+                "--output",
+                "out.gpkg",
+                "--compare",
+                "support,maybe",
+            ],
+            &["--compare", "maybe"],
+        ),
+        case(
+            "islands refused",
+            "stance-weights",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_districts",
+                "--id-field",
+                "code",
+                "--islands",
+                "error",
+                "--output",
+                "out.gpkg",
+            ],
+            &["VD-209"],
+        ),
+        case(
+            "duplicate ids",
+            "stance-weights",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_districts",
+                "--id-field",
+                "population",
+                "--output",
+                "out.gpkg",
+            ],
+            &["population", "more than once"],
+        ),
+        case(
+            "knn without k",
+            "stance-weights",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_districts",
+                "--method",
+                "knn",
+                "--output",
+                "out.gpkg",
+            ],
+            &["--k"],
+        ),
+        case(
+            "text field for Moran's I",
+            "stance-moran",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_districts",
+                "--field",
+                "code",
+                "--output",
+                "out.gpkg",
+            ],
+            &["'code'"],
+        ),
+        case(
+            "alpha out of range",
+            "stance-moran",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_districts",
+                "--field",
+                "population",
+                "--alpha",
+                "1.5",
+                "--output",
+                "out.gpkg",
+            ],
+            &["--alpha"],
+        ),
+        case(
+            "rates without areas layer",
+            "stance-rates",
+            &[
+                "--input",
+                sample_s,
+                "--layer",
+                "veldmark_records",
+                "--areas",
+                "nope",
+                "--event",
+                "oppose",
+                "--output",
+                "out.gpkg",
+            ],
+            &["'nope'"],
+        ),
+        case(
+            "missing surface",
+            "stance-render",
+            &[
+                "--input",
+                sample_s,
+                "--output",
+                "out.gpkg",
+                "--surface",
+                "nope",
+                "--png",
+                "x.png",
+            ],
+            &["'nope'"],
+        ),
+        case(
+            "synth memory guard",
+            "stance-synth",
+            &[
+                "--output",
+                "out.gpkg",
+                "--points",
+                "1000000",
+                "--max-memory-mb",
+                "10",
+            ],
+            &["--max-memory-mb", "--points"],
+        ),
+        case(
             "bad CRS",
             "stance-import",
             &[
@@ -326,7 +595,11 @@ fn bad_inputs_exit_2_with_one_line_and_change_nothing() {
         );
     }
     set_readonly(&readonly, false);
-    assert!(cases.len() >= 24);
+    assert!(cases.len() >= 30, "{} cases", cases.len());
+    assert!(
+        !dir.join("x.png").exists(),
+        "a refused render wrote its PNG"
+    );
 }
 
 fn set_readonly(dir: &Path, readonly: bool) {

@@ -39,6 +39,11 @@ pub struct CommonArgs {
     #[arg(long, value_name = "N", default_value_t = 0)]
     pub threads: usize,
 
+    /// Refuse, before working, a run estimated to need more memory than this (default: three
+    /// quarters of the machine's memory).
+    #[arg(long, value_name = "MIB")]
+    pub max_memory_mb: Option<u64>,
+
     /// Print the tool's OGC API – Processes description as JSON and exit.
     #[arg(long)]
     pub describe: bool,

@@ -78,6 +78,14 @@ pub fn command<T: Tool>() -> clap::Command {
     let command = clap::Command::new(format!("stance-{}", T::ID));
     // The derive sets `about` from the parameter structs' doc comments: set the tool's own after.
     T::Params::augment_args(CommonArgs::augment_args(command))
+        // `--bandwidth-m -500` must reach the tool's own check rather than read as an option.
+        .mut_args(|arg| {
+            if arg.get_action().takes_values() {
+                arg.allow_negative_numbers(true)
+            } else {
+                arg
+            }
+        })
         .about(T::TITLE)
         .long_about(format!("{}\n\n{}", T::TITLE, T::DESCRIPTION))
         .version(crate::VERSION)
@@ -360,6 +368,51 @@ impl Run {
         } else {
             format!("{}_{}", self.name, suffix)
         }
+    }
+
+    /// The memory a run may use: `--max-memory-mb`, else three quarters of the machine's memory
+    /// (`MemTotal` of `/proc/meminfo`), else 8 GiB where that cannot be read.
+    pub fn memory_limit_bytes(&self) -> u64 {
+        if let Some(mib) = self.common.max_memory_mb {
+            return mib.saturating_mul(1 << 20);
+        }
+        let total_kib = std::fs::read_to_string("/proc/meminfo")
+            .ok()
+            .and_then(|text| {
+                text.lines()
+                    .find(|l| l.starts_with("MemTotal:"))
+                    .and_then(|l| l.split_whitespace().nth(1))
+                    .and_then(|v| v.parse::<u64>().ok())
+            });
+        match total_kib {
+            Some(kib) => kib.saturating_mul(1024) / 4 * 3,
+            None => 8 << 30,
+        }
+    }
+
+    /// Refuses up front a run estimated to need `estimate_bytes` when that exceeds
+    /// [`Run::memory_limit_bytes`]; `what` names the quantity, `advice` says what to change.
+    ///
+    /// # Errors
+    /// [`Error::BadArgument`] naming `--max-memory-mb`, the estimate and the advice.
+    pub fn guard_memory(&self, estimate_bytes: u64, what: &str, advice: &str) -> Result<()> {
+        let limit = self.memory_limit_bytes();
+        if estimate_bytes > limit {
+            return Err(Error::argument(
+                "--max-memory-mb",
+                format!(
+                    "{what} needs about {} MiB, over the limit of {} MiB; {advice} (or raise --max-memory-mb)",
+                    estimate_bytes >> 20,
+                    limit >> 20
+                ),
+            ));
+        }
+        self.debug(format!(
+            "memory estimate {} MiB of {} MiB allowed ({what})",
+            estimate_bytes >> 20,
+            limit >> 20
+        ));
+        Ok(())
     }
 
     /// A log line on stderr (unless `--quiet`).

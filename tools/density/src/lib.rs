@@ -459,6 +459,16 @@ impl Tool for Density {
                 ),
             ));
         }
+        // Memory: the output and per-class surfaces (f64 while computed, f32 when written), and
+        // the zero-padded FFT buffers (complex f64) per bandwidth level and per worker thread.
+        let surfaces =
+            (stance_core::stance::Stance::ALL.len() + 8) as f64 * grid.len() as f64 * 12.0;
+        let fft = padded * 16.0 * (2.0 + 2.0 * rayon::current_num_threads() as f64);
+        run.guard_memory(
+            (surfaces + fft) as u64,
+            &format!("a {}×{} grid", grid.cols, grid.rows),
+            "use a larger --cell-m or a --mask-layer",
+        )?;
         if margin < 2.0 * cell_m {
             run.log(format!("warning: the kernel reaches {margin:.0} m, under two cells of {cell_m} m; the surfaces will be spiky"));
         }

@@ -135,6 +135,12 @@ impl Tool for Synth {
                 ),
             ));
         }
+        // Measured: about 200 bytes a record (two strings each) while the scenario is held.
+        run.guard_memory(
+            params.points as u64 * 200,
+            &format!("{} records", params.points),
+            "ask for fewer --points",
+        )?;
         let scenario = generate(&ScenarioParams {
             points: params.points,
             seed: run.common.seed,
