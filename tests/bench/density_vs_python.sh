@@ -14,9 +14,9 @@ cargo build --release -p stance-density -p stance-synth --manifest-path "$ROOT/C
 TIME=""; [ -x /usr/bin/time ] && TIME="/usr/bin/time -v"
 run() { local log=$1; shift; local t0=$(date +%s.%N); $TIME "$@" 2>"$log" >"$log.out"; echo "$(date +%s.%N) - $t0" | bc; }
 rm -f "$W/d.gpkg"
-# About 1000 x 1000 cells of 130 m over the ~110 x 90 km region plus the 5 km bandwidth.
+# About 1000 x 1000 cells of 112 m (1072 x 883) over the ~110 x 90 km region plus the 5 km support.
 T_RUST=$(run "$W/rust.log" "$B/stance-density" --input "$W/s.gpkg" --layer veldmark_records --output "$W/d.gpkg" \
-  --bandwidth-m 5000 --cell-m 130 --permutations 0 --method fft -v)
+  --bandwidth-m 5000 --cell-m 112 --permutations 0 --method fft -v)
 "$PY" - "$W" <<'PYEOF'
 import json, sys, sqlite3
 w = sys.argv[1]
