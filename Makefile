@@ -36,6 +36,12 @@ demo: build
 	  $(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_$$s $$overlay \
 	    --title "Veldmark levy debate: density_$$s" --png $(OUT)/density_$$s.png -q > /dev/null || exit 1; \
 	done
+	$(BIN)/stance scan --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name scan \
+	  --model ordinal --direction both --max-radius-m 12000 --centres-cell-m 2000 --replicates 199 \
+	  --report-p 0.05 -q > $(OUT)/scan.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_diff \
+	  --overlay scan_clusters --title "Veldmark: ordinal scan clusters (p < 0.05) over support - oppose density" \
+	  --png $(OUT)/scan_clusters.png -q > /dev/null
 	$(BIN)/stance weights --input $(SAMPLE)/veldmark.gpkg --layer veldmark_districts --id-field code \
 	  --output $(OUT)/demo.gpkg --name district_weights -q > $(OUT)/weights.json
 	$(BIN)/stance rates --input $(OUT)/demo.gpkg --layer records --areas veldmark_districts \
@@ -71,6 +77,7 @@ sample: build
 bench: build venv
 	tests/bench/import_vs_ogr2ogr.sh
 	tests/bench/density_vs_python.sh
+	tests/bench/scan_vs_numba.sh
 	tests/bench/areal_vs_pysal.sh
 
 # Fuzzes the import parsers (time strings, class mappings, row checks) for FUZZ_SECONDS each.

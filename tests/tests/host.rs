@@ -8,6 +8,7 @@ const TOOLS: &[&str] = &[
     "stance-import",
     "stance-synth",
     "stance-density",
+    "stance-scan",
     "stance-weights",
     "stance-rates",
     "stance-moran",

@@ -32,6 +32,7 @@ pub fn tools() -> Vec<Entry> {
         entry::<stance_synth::Synth>(),
         entry::<stance_import::Import>(),
         entry::<stance_density::Density>(),
+        entry::<stance_scan::Scan>(),
         entry::<stance_weights::Weights>(),
         entry::<stance_rates::Rates>(),
         entry::<stance_moran::Moran>(),

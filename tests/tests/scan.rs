@@ -1,0 +1,287 @@
+//! stance-scan end to end: planted-zone recovery on stance-synth data, thread-count
+//! determinism, the output layers, the Poisson model on areas, and clear errors on bad input.
+
+use std::path::Path;
+
+use stance_core::gpkg::crs;
+use stance_tests::{out_dir, rows, run_in, tables};
+
+/// Planted stance zones of a stance-synth file: (favours, x, y, radius) in the CRS `srs`.
+fn planted_zones(
+    synth: &Path,
+    srs: &gdal::spatial_ref::SpatialRef,
+) -> Vec<(String, f64, f64, f64)> {
+    let zones = rows(
+        synth,
+        "SELECT favours, centre_lon, centre_lat, radius_m FROM veldmark_truth WHERE kind = 'stance_zone'",
+    );
+    let mut xs: Vec<f64> = zones.iter().map(|z| z[1].parse().expect("lon")).collect();
+    let mut ys: Vec<f64> = zones.iter().map(|z| z[2].parse().expect("lat")).collect();
+    crs::transform(&crs::wgs84().expect("wgs84"), srs, &mut xs, &mut ys).expect("project");
+    zones
+        .iter()
+        .zip(xs.iter().zip(&ys))
+        .map(|(z, (x, y))| (z[0].clone(), *x, *y, z[3].parse().expect("radius")))
+        .collect()
+}
+
+/// The working CRS the scan wrote its clusters in.
+fn clusters_srs(path: &Path, layer: &str) -> gdal::spatial_ref::SpatialRef {
+    let definition = rows(
+        path,
+        &format!(
+            "SELECT s.definition FROM gpkg_geometry_columns g JOIN gpkg_spatial_ref_sys s \
+             ON s.srs_id = g.srs_id WHERE g.table_name = '{layer}'"
+        ),
+    );
+    crs::parse(&definition[0][0]).expect("cluster CRS")
+}
+
+#[test]
+fn ordinal_scan_recovers_planted_zones() {
+    // stance-synth plants four zones (odds ×3 toward support or toward oppose, radius 6–10 km)
+    // over a west–east gradient. A zone counts as found when a cluster with p < 0.05, shifted
+    // the zone's way, is centred within the zone's radius. 1,500 records, windows up to 12 km
+    // (the planted scale), 99 replicates: the smallest attainable p is 0.01.
+    let dir = out_dir("scan_recovery");
+    let mut seeds_with_a_zone = 0;
+    let mut zones_found = 0;
+    for seed in 1..=20u32 {
+        let synth = dir.join(format!("s{seed}.gpkg"));
+        let out = dir.join(format!("scan{seed}.gpkg"));
+        let seed_text = seed.to_string();
+        run_in(
+            &dir,
+            "stance-synth",
+            &[
+                "--output",
+                synth.to_str().expect("path"),
+                "--points",
+                "1500",
+                "--seed",
+                &seed_text,
+                "-q",
+            ],
+        )
+        .ok();
+        run_in(
+            &dir,
+            "stance-scan",
+            &[
+                "--input",
+                synth.to_str().expect("path"),
+                "--layer",
+                "veldmark_records",
+                "--output",
+                out.to_str().expect("path"),
+                "--model",
+                "ordinal",
+                "--direction",
+                "both",
+                "--max-radius-m",
+                "12000",
+                "--replicates",
+                "99",
+                "--report-p",
+                "0.05",
+                "--seed",
+                &seed_text,
+                "-q",
+            ],
+        )
+        .ok();
+        let srs = clusters_srs(&out, "scan_clusters");
+        let clusters = rows(
+            &out,
+            "SELECT direction, centre_x_m, centre_y_m, p_value FROM scan_clusters ORDER BY rank",
+        );
+        let mut found_here = 0;
+        for (favours, zx, zy, radius) in planted_zones(&synth, &srs) {
+            let wanted = format!("toward_{favours}");
+            let found = clusters.iter().any(|c| {
+                let (x, y, p): (f64, f64, f64) = (
+                    c[1].parse().expect("x"),
+                    c[2].parse().expect("y"),
+                    c[3].parse().expect("p"),
+                );
+                c[0] == wanted && p < 0.05 && (x - zx).hypot(y - zy) <= radius
+            });
+            found_here += usize::from(found);
+        }
+        zones_found += found_here;
+        seeds_with_a_zone += usize::from(found_here > 0);
+        eprintln!("seed {seed}: {found_here} of 4 planted zones found");
+    }
+    eprintln!("zones found: {zones_found} of 80; seeds with at least one: {seeds_with_a_zone}");
+    assert!(seeds_with_a_zone >= 18, "{seeds_with_a_zone} of 20 seeds");
+}
+
+#[test]
+fn scan_outputs_and_thread_determinism() {
+    let dir = out_dir("scan_determinism");
+    run_in(
+        &dir,
+        "stance-synth",
+        &["--output", "s.gpkg", "--points", "800", "--seed", "7", "-q"],
+    )
+    .ok();
+    let mut outputs = Vec::new();
+    for threads in ["1", "2"] {
+        let out = format!("t{threads}.gpkg");
+        let summary = run_in(
+            &dir,
+            "stance-scan",
+            &[
+                "--input",
+                "s.gpkg",
+                "--layer",
+                "veldmark_records",
+                "--output",
+                &out,
+                "--cases",
+                "support",
+                "--direction",
+                "both",
+                "--max-share",
+                "0.2",
+                "--replicates",
+                "49",
+                "--seed",
+                "3",
+                "--threads",
+                threads,
+                "-q",
+            ],
+        )
+        .ok();
+        assert_eq!(summary["results"]["model"], "bernoulli");
+        assert!(!summary["results"]["clusters"]
+            .as_array()
+            .expect("clusters")
+            .is_empty());
+        outputs.push(dir.join(out));
+    }
+    let clusters = "SELECT rank, direction, centre_x_m, centre_y_m, radius_m, locations, records, cases, \
+        expected_cases, relative_risk, log_likelihood_ratio, p_value, p_value_gumbel FROM scan_clusters ORDER BY rank";
+    let members = "SELECT feature_id, cluster_rank FROM scan_members ORDER BY feature_id";
+    assert_eq!(rows(&outputs[0], clusters), rows(&outputs[1], clusters));
+    assert_eq!(rows(&outputs[0], members), rows(&outputs[1], members));
+    assert_eq!(tables(&outputs[0]), vec!["scan_clusters", "scan_members"]);
+    // Every member lies in its cluster's circle (records are read back from the input).
+    let first = rows(
+        &outputs[0],
+        "SELECT rank, records, cases FROM scan_clusters WHERE rank = 1",
+    );
+    let member_count = rows(
+        &outputs[0],
+        "SELECT count(*) FROM scan_members WHERE cluster_rank = 1",
+    );
+    assert_eq!(first[0][1], member_count[0][0]);
+}
+
+#[test]
+fn poisson_scan_on_areas() {
+    // Areas: stance-synth's districts with the count of oppose records in each (spatial join
+    // by GDAL's SQLite dialect), population from the districts.
+    let dir = out_dir("scan_poisson");
+    run_in(
+        &dir,
+        "stance-synth",
+        &[
+            "--output", "s.gpkg", "--points", "3000", "--seed", "5", "-q",
+        ],
+    )
+    .ok();
+    let status = std::process::Command::new("ogr2ogr")
+        .current_dir(&dir)
+        .args([
+            "-f", "GPKG", "areas.gpkg", "s.gpkg", "-dialect", "SQLite", "-nln", "areas", "-sql",
+            "SELECT d.geom, d.code, d.population, (SELECT count(*) FROM veldmark_records r \
+             WHERE r.stance = 'oppose' AND ST_Within(r.geom, d.geom)) AS oppose_count FROM veldmark_districts d",
+        ])
+        .status()
+        .expect("run ogr2ogr");
+    assert!(status.success());
+    let summary = run_in(
+        &dir,
+        "stance-scan",
+        &[
+            "--input",
+            "areas.gpkg",
+            "--output",
+            "out.gpkg",
+            "--model",
+            "poisson",
+            "--areas",
+            "areas",
+            "--count-field",
+            "oppose_count",
+            "--population-field",
+            "population",
+            "--max-share",
+            "0.2",
+            "--replicates",
+            "99",
+            "-q",
+        ],
+    )
+    .ok();
+    let results = &summary["results"];
+    assert_eq!(results["model"], "poisson");
+    let top = &results["clusters"][0];
+    assert!(top["log_likelihood_ratio"].as_f64().expect("llr") > 0.0);
+    assert!(top["population"].as_f64().expect("population") > 0.0);
+    let members = rows(
+        &dir.join("out.gpkg"),
+        "SELECT count(*) FROM scan_members WHERE cluster_rank = 1",
+    );
+    assert_eq!(members[0][0], top["locations"].to_string());
+}
+
+#[test]
+fn bad_inputs_are_named_and_write_nothing() {
+    let dir = out_dir("scan_errors");
+    run_in(
+        &dir,
+        "stance-synth",
+        &["--output", "s.gpkg", "--points", "300", "--seed", "2", "-q"],
+    )
+    .ok();
+    let base = [
+        "--input",
+        "s.gpkg",
+        "--layer",
+        "veldmark_records",
+        "--output",
+        "out.gpkg",
+    ];
+    let with = |extra: &[&str]| {
+        let mut args: Vec<&str> = base.to_vec();
+        if !extra.contains(&"--replicates") {
+            args.extend_from_slice(&["--replicates", "9"]);
+        }
+        args.extend_from_slice(extra);
+        run_in(&dir, "stance-scan", &args)
+    };
+    with(&["--max-share", "0.7"]).usage_error(&["--max-share", "0.7", "(0, 0.5]"]);
+    with(&["--max-share", "0"]).usage_error(&["--max-share"]);
+    with(&["--cases", "maybe"]).usage_error(&["--cases", "maybe"]);
+    with(&["--cases", "support", "--controls", "support"]).usage_error(&["--controls", "support"]);
+    with(&["--model", "poisson"]).usage_error(&["--areas"]);
+    // A field whose labels are not stances: the synth's quality field.
+    with(&["--stance-field", "quality"]).usage_error(&["quality", "not a stance class"]);
+    // A single class: map every label to oppose.
+    with(&["--classes", "oppose=oppose,neutral=oppose,support=oppose"])
+        .usage_error(&["stance", "controls"]);
+    with(&[
+        "--model",
+        "ordinal",
+        "--classes",
+        "oppose=support,neutral=support,support=support",
+    ])
+    .usage_error(&["stance", "at least two classes"]);
+    assert!(!dir.join("out.gpkg").exists());
+    // No replicates is allowed: clusters come without p-values.
+    let summary = with(&["--replicates", "0", "--max-clusters", "2"]).ok();
+    assert!(summary["results"]["clusters"][0]["p_value"].is_null());
+}
