@@ -144,3 +144,58 @@ fn two_writers_into_one_geopackage_both_finish() {
         )
     );
 }
+
+#[test]
+fn sigint_while_writing_into_an_existing_file_rolls_back() {
+    let dir = out_dir("reliability_sigint");
+    run_in(
+        &dir,
+        "stance-synth",
+        &["--output", "o.gpkg", "--points", "200", "-q"],
+    )
+    .ok();
+    let before = rows(
+        &dir.join("o.gpkg"),
+        "SELECT * FROM veldmark_records ORDER BY fid",
+    );
+    let before_tables = tables(&dir.join("o.gpkg"));
+    let child = Command::new(bin("stance-synth"))
+        .args([
+            "--output", "o.gpkg", "--points", "3000000", "--name", "big", "-q",
+        ])
+        .current_dir(&dir)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    std::thread::sleep(Duration::from_millis(1500));
+    let status = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill");
+    assert!(status.success());
+    let output = child.wait_with_output().expect("wait");
+    assert_ne!(
+        output.status.code(),
+        Some(0),
+        "an interrupted run must not report success"
+    );
+    assert!(
+        output.stdout.is_empty(),
+        "an interrupted run printed a summary"
+    );
+    assert!(
+        String::from_utf8_lossy(&output.stderr).contains("interrupted"),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    reopen(&dir.join("o.gpkg"));
+    assert_eq!(tables(&dir.join("o.gpkg")), before_tables);
+    assert_eq!(
+        rows(
+            &dir.join("o.gpkg"),
+            "SELECT * FROM veldmark_records ORDER BY fid"
+        ),
+        before
+    );
+}
