@@ -198,3 +198,13 @@ pub fn reference_python() -> Option<PathBuf> {
 pub fn sample_gpkg() -> PathBuf {
     root().join("sample-gpkg/veldmark.gpkg")
 }
+
+/// Names of staging files (of a run's private GeoPackage or side files) left in `dir`.
+pub fn staging_leftovers(dir: &Path) -> Vec<String> {
+    std::fs::read_dir(dir)
+        .expect("list folder")
+        .filter_map(Result::ok)
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains("stance-staging"))
+        .collect()
+}

@@ -242,11 +242,7 @@ fn missing_layer_or_file_exits_2_and_writes_nothing() {
     )
     .usage_error(&["'nope'"]);
     assert_eq!(sha256(&input), before);
-    let leftovers: Vec<_> = std::fs::read_dir(&dir)
-        .expect("list")
-        .filter_map(Result::ok)
-        .filter(|e| e.file_name().to_string_lossy().contains("staging"))
-        .collect();
+    let leftovers = stance_tests::staging_leftovers(&dir);
     assert!(
         leftovers.is_empty(),
         "staging files left behind: {leftovers:?}"
@@ -286,11 +282,7 @@ fn a_failing_run_leaves_no_partial_layer() {
         "output changed by a failed run"
     );
     assert!(!tables(&dir.join("o.gpkg")).contains(&"never".to_owned()));
-    let leftovers: Vec<_> = std::fs::read_dir(&dir)
-        .expect("list")
-        .filter_map(Result::ok)
-        .filter(|e| e.file_name().to_string_lossy().contains("staging"))
-        .collect();
+    let leftovers = stance_tests::staging_leftovers(&dir);
     assert!(
         leftovers.is_empty(),
         "staging files left behind: {leftovers:?}"

@@ -87,12 +87,7 @@ fn sigkill_while_publishing_leaves_the_output_as_it_was() {
         ],
     )
     .ok();
-    let leftovers: Vec<String> = std::fs::read_dir(&dir)
-        .expect("list")
-        .filter_map(Result::ok)
-        .map(|e| e.file_name().to_string_lossy().into_owned())
-        .filter(|n| n.contains("stance-staging"))
-        .collect();
+    let leftovers = stance_tests::staging_leftovers(&dir);
     assert!(leftovers.is_empty(), "{leftovers:?}");
 }
 
