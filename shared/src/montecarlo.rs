@@ -1,8 +1,9 @@
 //! Monte Carlo helpers: one seed per replicate (so results do not depend on the number of
 //! threads) and rank-based p-values (Besag & Clifford 1991; Davison & Hinkley 1997, eq. 4.11).
 
-use rand::SeedableRng;
+use rand::{RngCore, SeedableRng};
 use rand_chacha::ChaCha8Rng;
+use rand_xoshiro::Xoshiro256PlusPlus;
 
 /// SplitMix64 finaliser (Steele, Lea & Flood 2014): a bijective mix of 64 bits.
 pub fn mix64(mut z: u64) -> u64 {
@@ -22,6 +23,61 @@ pub fn replicate_seed(seed: u64, index: u64) -> u64 {
 /// crate versions of the same major release).
 pub fn replicate_rng(seed: u64, index: u64) -> ChaCha8Rng {
     ChaCha8Rng::seed_from_u64(replicate_seed(seed, index))
+}
+
+/// Uniform integers for the hot loops of permutation tests (hundreds of millions of draws):
+/// Xoshiro256++ (Blackman & Vigna 2021), seeded per replicate like [`replicate_rng`], each 64-bit
+/// output split into two 32-bit halves, mapped to `0..n` by Lemire's (2019) multiply-and-reject
+/// method, which is exactly uniform. About four times cheaper per draw than ChaCha8.
+#[derive(Debug, Clone)]
+pub struct Draws {
+    rng: Xoshiro256PlusPlus,
+    spare: Option<u32>,
+}
+
+impl Draws {
+    /// The generator of replicate `index` of a run seeded with `seed`.
+    pub fn new(seed: u64, index: u64) -> Self {
+        Draws {
+            rng: Xoshiro256PlusPlus::seed_from_u64(replicate_seed(seed, index)),
+            spare: None,
+        }
+    }
+
+    #[inline]
+    fn next_u32(&mut self) -> u32 {
+        match self.spare.take() {
+            Some(v) => v,
+            None => {
+                let v = self.rng.next_u64();
+                self.spare = Some(v as u32);
+                (v >> 32) as u32
+            }
+        }
+    }
+
+    /// A uniform integer in `0..n` (`n` ≥ 1).
+    #[inline]
+    pub fn below(&mut self, n: u32) -> u32 {
+        debug_assert!(n > 0);
+        let mut m = u64::from(self.next_u32()) * u64::from(n);
+        if (m as u32) < n {
+            // Reject the few low products that would over-represent some values.
+            let threshold = n.wrapping_neg() % n;
+            while (m as u32) < threshold {
+                m = u64::from(self.next_u32()) * u64::from(n);
+            }
+        }
+        (m >> 32) as u32
+    }
+
+    /// Shuffles `values` in place (Fisher–Yates, Durstenfeld's form).
+    pub fn shuffle<T>(&mut self, values: &mut [T]) {
+        for k in (1..values.len()).rev() {
+            let j = self.below(k as u32 + 1) as usize;
+            values.swap(k, j);
+        }
+    }
 }
 
 /// Monte Carlo p-value p = (1 + #{replicates ≥ observed}) / (R + 1) for an upper-tail test.
@@ -46,6 +102,36 @@ mod tests {
         let a: f64 = replicate_rng(7, 3).random();
         let b: f64 = replicate_rng(7, 3).random();
         assert_eq!(a, b);
+    }
+
+    #[test]
+    fn draws_are_uniform_and_reproducible() {
+        // Chi-square goodness of fit over 7 cells (6 degrees of freedom): the 0.999 quantile is
+        // 22.46 (any chi-square table), so a correct generator fails this about once in 1000
+        // seeds; seed 1 is fixed, so the check is deterministic.
+        let mut draws = Draws::new(1, 0);
+        let mut cells = [0u32; 7];
+        let total = 70_000;
+        for _ in 0..total {
+            cells[draws.below(7) as usize] += 1;
+        }
+        let expected = f64::from(total) / 7.0;
+        let chi2: f64 = cells
+            .iter()
+            .map(|&c| (f64::from(c) - expected).powi(2) / expected)
+            .sum();
+        assert!(chi2 < 22.46, "chi-square {chi2} over {cells:?}");
+        // Large n: a value near 2^32 still lands in range, and draws repeat per seed.
+        let big = u32::MAX - 5;
+        assert!((0..1000).all(|_| draws.below(big) < big));
+        let a: Vec<u32> = (0..5).map(|_| Draws::new(9, 4).below(1000)).collect();
+        assert!(a.windows(2).all(|w| w[0] == w[1]));
+        let mut s: Vec<u32> = (0..100).collect();
+        Draws::new(3, 3).shuffle(&mut s);
+        let mut sorted = s.clone();
+        sorted.sort_unstable();
+        assert_eq!(sorted, (0..100).collect::<Vec<_>>());
+        assert_ne!(s, sorted);
     }
 
     #[test]

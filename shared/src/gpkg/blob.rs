@@ -1,4 +1,7 @@
-//! Decoding GeoPackage geometry blobs (OGC 12-128r18 §2.1.3: header + ISO WKB) for points.
+//! GeoPackage geometry blobs (OGC 12-128r18 §2.1.3: header + ISO WKB): decoding points,
+//! envelopes of any simple-feature geometry, encoding points and multipolygons, and the
+//! `ST_MinX`… SQL functions the R-tree triggers of a GeoPackage call (§F.3), so the toolbox can
+//! write feature tables with plain SQLite.
 
 /// What a point blob holds.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -78,6 +81,223 @@ pub fn decode_point(blob: &[u8]) -> PointBlob {
     }
 }
 
+/// Bounds of a geometry: [min x, max x, min y, max y] (the order of the header envelope).
+pub type Envelope = [f64; 4];
+
+/// The header length (8 + envelope) and flags of a blob, or None when it is not one.
+fn header(blob: &[u8]) -> Option<(usize, u8)> {
+    if blob.len() < 8 || &blob[..2] != b"GP" {
+        return None;
+    }
+    let flags = blob[3];
+    let envelope_len = match (flags >> 1) & 0b111 {
+        0 => 0,
+        1 => 32,
+        2 | 3 => 48,
+        4 => 64,
+        _ => return None,
+    };
+    (blob.len() >= 8 + envelope_len).then_some((8 + envelope_len, flags))
+}
+
+/// The envelope of a GeoPackage geometry blob: the header's when it has one, else computed from
+/// the WKB coordinates (NaN ordinates, as in empty points, are skipped). `Ok(None)` for an empty
+/// geometry.
+///
+/// # Errors
+/// A message when the bytes are not a blob of a simple-feature geometry (types 1–7).
+pub fn envelope(blob: &[u8]) -> Result<Option<Envelope>, String> {
+    let (start, flags) = header(blob).ok_or("not a GeoPackage geometry blob")?;
+    if flags & 0b1_0000 != 0 {
+        return Ok(None);
+    }
+    if start > 8 {
+        let little = flags & 1 == 1;
+        let mut e = [0.0; 4];
+        for (k, v) in e.iter_mut().enumerate() {
+            *v = read_f64(&blob[8 + 8 * k..], little).ok_or("short envelope")?;
+        }
+        return Ok(Some(e));
+    }
+    let mut e = [
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    ];
+    wkb_bounds(&blob[start..], &mut e, 0)?;
+    Ok((e[0] <= e[1] && e[2] <= e[3]).then_some(e))
+}
+
+/// Widens `e` by the coordinates of one WKB geometry; returns the bytes it spans.
+fn wkb_bounds(wkb: &[u8], e: &mut Envelope, depth: usize) -> Result<usize, String> {
+    const SHORT: &str = "truncated WKB";
+    if depth > 32 {
+        return Err("WKB nested too deeply".into());
+    }
+    let little = *wkb.first().ok_or(SHORT)? == 1;
+    let code = read_u32(&wkb[1..], little).ok_or(SHORT)?;
+    // Extended WKB flags (Z 0x8000_0000, M 0x4000_0000, SRID 0x2000_0000) or ISO thousands.
+    let mut dims = 2 + usize::from(code & 0x8000_0000 != 0) + usize::from(code & 0x4000_0000 != 0);
+    let mut at = 5 + if code & 0x2000_0000 != 0 { 4 } else { 0 };
+    let iso = code & 0x0fff_ffff;
+    dims += match iso / 1000 {
+        0 => 0,
+        1 | 2 => 1,
+        3 => 2,
+        _ => return Err(format!("WKB type {code} is not a simple-feature geometry")),
+    };
+    let count = |at: usize| read_u32(wkb.get(at..).unwrap_or(&[]), little).ok_or(SHORT);
+    let points = |at: usize, n: usize, e: &mut Envelope| -> Result<usize, String> {
+        let end = at + n * dims * 8;
+        if wkb.len() < end {
+            return Err(SHORT.into());
+        }
+        for p in 0..n {
+            let x = read_f64(&wkb[at + p * dims * 8..], little).ok_or(SHORT)?;
+            let y = read_f64(&wkb[at + p * dims * 8 + 8..], little).ok_or(SHORT)?;
+            if !x.is_nan() && !y.is_nan() {
+                e[0] = e[0].min(x);
+                e[1] = e[1].max(x);
+                e[2] = e[2].min(y);
+                e[3] = e[3].max(y);
+            }
+        }
+        Ok(end)
+    };
+    match iso % 1000 {
+        1 => points(at, 1, e),
+        2 => {
+            let n = count(at)? as usize;
+            points(at + 4, n, e)
+        }
+        3 => {
+            let rings = count(at)?;
+            at += 4;
+            for _ in 0..rings {
+                let n = count(at)? as usize;
+                at = points(at + 4, n, e)?;
+            }
+            Ok(at)
+        }
+        4..=7 => {
+            let parts = count(at)?;
+            at += 4;
+            for _ in 0..parts {
+                at += wkb_bounds(wkb.get(at..).ok_or(SHORT)?, e, depth + 1)?;
+            }
+            Ok(at)
+        }
+        other => Err(format!("WKB type {other} is not a simple-feature geometry")),
+    }
+}
+
+fn push_header(out: &mut Vec<u8>, srs_id: i32, envelope: Option<Envelope>, empty: bool) {
+    // Version 0; flags: little-endian header, envelope kind 1 (xy) or 0, empty bit.
+    let flags = 1 | if envelope.is_some() { 0b10 } else { 0 } | if empty { 0b1_0000 } else { 0 };
+    out.extend_from_slice(&[b'G', b'P', 0, flags]);
+    out.extend_from_slice(&srs_id.to_le_bytes());
+    for v in envelope.iter().flatten() {
+        out.extend_from_slice(&v.to_le_bytes());
+    }
+}
+
+/// Appends the blob of a point (no envelope, as the standard recommends for points; an empty
+/// point, with NaN coordinates, when either coordinate is NaN); returns its envelope.
+pub fn encode_point(out: &mut Vec<u8>, srs_id: i32, x: f64, y: f64) -> Option<Envelope> {
+    let empty = x.is_nan() || y.is_nan();
+    push_header(out, srs_id, None, empty);
+    out.push(1);
+    out.extend_from_slice(&1u32.to_le_bytes());
+    let (x, y) = if empty { (f64::NAN, f64::NAN) } else { (x, y) };
+    out.extend_from_slice(&x.to_le_bytes());
+    out.extend_from_slice(&y.to_le_bytes());
+    (!empty).then_some([x, x, y, y])
+}
+
+/// Appends the blob of a multipolygon, with its xy envelope in the header; returns the envelope.
+pub fn encode_multipolygon(
+    out: &mut Vec<u8>,
+    srs_id: i32,
+    shape: &geo_types::MultiPolygon<f64>,
+) -> Option<Envelope> {
+    let mut e = [
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    ];
+    for c in shape.0.iter().flat_map(|p| p.exterior().0.iter()) {
+        e = [e[0].min(c.x), e[1].max(c.x), e[2].min(c.y), e[3].max(c.y)];
+    }
+    let empty = !(e[0] <= e[1] && e[2] <= e[3]);
+    push_header(out, srs_id, (!empty).then_some(e), empty);
+    out.push(1);
+    out.extend_from_slice(&6u32.to_le_bytes());
+    out.extend_from_slice(&(shape.0.len() as u32).to_le_bytes());
+    for polygon in &shape.0 {
+        out.push(1);
+        out.extend_from_slice(&3u32.to_le_bytes());
+        let rings = std::iter::once(polygon.exterior()).chain(polygon.interiors());
+        out.extend_from_slice(&(1 + polygon.interiors().len() as u32).to_le_bytes());
+        for ring in rings {
+            out.extend_from_slice(&(ring.0.len() as u32).to_le_bytes());
+            for c in &ring.0 {
+                out.extend_from_slice(&c.x.to_le_bytes());
+                out.extend_from_slice(&c.y.to_le_bytes());
+            }
+        }
+    }
+    (!empty).then_some(e)
+}
+
+/// Rewrites the srs_id in a blob's header (layers copied between files whose spatial reference
+/// systems are numbered differently). Leaves bytes that are not a blob unchanged.
+pub fn set_srs_id(blob: &mut [u8], srs_id: i32) {
+    if let Some((_, flags)) = header(blob) {
+        let bytes = if flags & 1 == 1 {
+            srs_id.to_le_bytes()
+        } else {
+            srs_id.to_be_bytes()
+        };
+        blob[4..8].copy_from_slice(&bytes);
+    }
+}
+
+/// Registers `ST_MinX`, `ST_MaxX`, `ST_MinY`, `ST_MaxY` and `ST_IsEmpty` on a connection, as
+/// the GeoPackage R-tree extension requires of any writer (§F.3): the triggers GDAL creates on
+/// feature tables call them.
+///
+/// # Errors
+/// SQLite failures.
+pub fn register_functions(connection: &rusqlite::Connection) -> rusqlite::Result<()> {
+    use rusqlite::functions::FunctionFlags;
+    let flags = FunctionFlags::SQLITE_UTF8 | FunctionFlags::SQLITE_DETERMINISTIC;
+    let bound = |k: usize| {
+        move |ctx: &rusqlite::functions::Context<'_>| -> rusqlite::Result<Option<f64>> {
+            let Some(blob) = ctx.get_raw(0).as_blob_or_null()? else {
+                return Ok(None);
+            };
+            envelope(blob)
+                .map(|e| e.map(|e| e[k]))
+                .map_err(|m| rusqlite::Error::UserFunctionError(m.into()))
+        }
+    };
+    connection.create_scalar_function("ST_MinX", 1, flags, bound(0))?;
+    connection.create_scalar_function("ST_MaxX", 1, flags, bound(1))?;
+    connection.create_scalar_function("ST_MinY", 1, flags, bound(2))?;
+    connection.create_scalar_function("ST_MaxY", 1, flags, bound(3))?;
+    connection.create_scalar_function("ST_IsEmpty", 1, flags, |ctx| {
+        let Some(blob) = ctx.get_raw(0).as_blob_or_null()? else {
+            return Ok(None);
+        };
+        envelope(blob)
+            .map(|e| Some(e.is_none()))
+            .map_err(|m| rusqlite::Error::UserFunctionError(m.into()))
+    })?;
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -140,5 +360,53 @@ mod tests {
         );
         assert_eq!(decode_point(b"XX\0\x01\0\0\0\0"), PointBlob::Invalid);
         assert_eq!(decode_point(&blob(1, &[], &[1, 1, 0])), PointBlob::Invalid);
+    }
+
+    #[test]
+    fn encoded_blobs_decode_and_bound() {
+        let mut b = Vec::new();
+        encode_point(&mut b, 4326, 2.5, -3.0);
+        assert_eq!(decode_point(&b), PointBlob::Point(2.5, -3.0));
+        assert_eq!(envelope(&b), Ok(Some([2.5, 2.5, -3.0, -3.0])));
+        b.clear();
+        encode_point(&mut b, 4326, f64::NAN, 1.0);
+        assert_eq!(decode_point(&b), PointBlob::Empty);
+        assert_eq!(envelope(&b), Ok(None));
+        let square = |x0: f64| {
+            geo_types::Polygon::new(
+                vec![(x0, 0.0), (x0 + 1.0, 0.0), (x0 + 1.0, 2.0), (x0, 0.0)].into(),
+                vec![],
+            )
+        };
+        let shape = geo_types::MultiPolygon::new(vec![square(0.0), square(5.0)]);
+        b.clear();
+        encode_multipolygon(&mut b, 100000, &shape);
+        assert_eq!(envelope(&b), Ok(Some([0.0, 6.0, 0.0, 2.0])));
+        // The same geometry without the header envelope: bounds from the WKB walk.
+        let mut bare = vec![b'G', b'P', 0, 1, 0, 0, 0, 0];
+        bare.extend_from_slice(&b[8 + 32..]);
+        assert_eq!(envelope(&bare), Ok(Some([0.0, 6.0, 0.0, 2.0])));
+        set_srs_id(&mut b, 7);
+        assert_eq!(i32::from_le_bytes([b[4], b[5], b[6], b[7]]), 7);
+        assert!(envelope(b"not a blob").is_err());
+        assert!(envelope(&bare[..bare.len() - 3]).is_err());
+    }
+
+    #[test]
+    fn blobs_match_gdal() {
+        // The WKB part of our blob must be byte-identical to GDAL's own WKB writer (an outside
+        // implementation of ISO WKB), and the header must carry flags 0b11 (little endian, xy
+        // envelope) as OGC 12-128r18 §2.1.3 defines them.
+        let square = geo_types::Polygon::new(
+            vec![(0.0, 0.0), (1.0, 0.0), (1.0, 2.0), (0.0, 0.0)].into(),
+            vec![],
+        );
+        let mut b = Vec::new();
+        encode_multipolygon(&mut b, 3035, &geo_types::MultiPolygon::new(vec![square]));
+        let gdal = gdal::vector::Geometry::from_wkt("MULTIPOLYGON(((0 0,1 0,1 2,0 0)))")
+            .and_then(|g| g.wkb())
+            .expect("GDAL writes WKB");
+        assert_eq!(&b[8 + 32..], &gdal[..]);
+        assert_eq!(&b[..4], &[b'G', b'P', 0, 0b11]);
     }
 }

@@ -5,6 +5,7 @@ pub mod blob;
 pub mod crs;
 pub mod raster;
 pub mod read;
+pub mod rtree;
 pub mod stage;
 pub mod weights_table;
 

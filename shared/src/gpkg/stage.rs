@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Duration;
 
-use gdal::vector::{Feature, LayerAccess, LayerOptions, ToGdal};
+use gdal::vector::{LayerAccess, LayerOptions};
 use gdal::vector::{OGRFieldType, OGRwkbGeometryType};
 use gdal::{Dataset, DriverManager};
 use rusqlite::{Connection, OptionalExtension};
@@ -140,6 +140,7 @@ pub struct Staging {
     protected: HashSet<String>,
     layers: Vec<StagedLayer>,
     dataset: Option<Dataset>,
+    sql: Option<Connection>,
     created: bool,
     side_files: Vec<(PathBuf, PathBuf)>,
 }
@@ -216,6 +217,7 @@ impl Staging {
             protected: HashSet::new(),
             layers: Vec::new(),
             dataset: None,
+            sql: None,
             created: false,
             side_files: Vec::new(),
         })
@@ -258,6 +260,7 @@ impl Staging {
     }
 
     fn open_dataset(&mut self) -> Result<()> {
+        self.sql = None;
         if self.dataset.is_none() {
             let dataset = if self.created {
                 let options = gdal::DatasetOptions {
@@ -293,10 +296,72 @@ impl Staging {
         Ok(())
     }
 
+    /// The staging file through plain SQLite (GDAL's handle closed first), with the R-tree
+    /// functions registered. The staging file is private and discarded on failure, so it needs
+    /// neither a rollback journal on disk nor synchronous writes.
+    fn open_sql(&mut self) -> Result<&Connection> {
+        self.close_dataset()?;
+        if self.sql.is_none() {
+            let ctx = "opening the staging GeoPackage";
+            let connection = Connection::open(&self.path).map_err(Error::sqlite(ctx))?;
+            connection
+                .execute_batch("PRAGMA synchronous = OFF; PRAGMA journal_mode = MEMORY;")
+                .map_err(Error::sqlite(ctx))?;
+            super::blob::register_functions(&connection).map_err(Error::sqlite(ctx))?;
+            self.sql = Some(connection);
+        }
+        self.sql
+            .as_ref()
+            .ok_or_else(|| Error::Failed("staging connection missing".into()))
+    }
+
+    /// Creates the empty table `name` through GDAL (system rows, R-tree and its triggers,
+    /// feature-count triggers), then closes GDAL's handle; rows go in through SQLite. Returns
+    /// the layer's srs_id (None without geometry).
+    fn create_table(
+        &mut self,
+        name: &str,
+        ty: OGRwkbGeometryType::Type,
+        srs: Option<&gdal::spatial_ref::SpatialRef>,
+        fields: &[(String, OGRFieldType::Type)],
+    ) -> Result<Option<i32>> {
+        self.open_dataset()?;
+        let dataset = self
+            .dataset
+            .as_mut()
+            .ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
+        let context = format!("creating layer '{name}'");
+        {
+            let spatial = ty != OGRwkbGeometryType::wkbNone;
+            let layer = dataset
+                .create_layer(LayerOptions {
+                    name,
+                    srs: if spatial { srs } else { None },
+                    ty,
+                    options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
+                })
+                .map_err(Error::gdal(context.clone()))?;
+            for (field, kind) in fields {
+                gdal::vector::FieldDefn::new(field, *kind)
+                    .and_then(|d| d.add_to_layer(&layer))
+                    .map_err(Error::gdal(context.clone()))?;
+            }
+        }
+        let connection = self.open_sql()?;
+        connection
+            .query_row(
+                "SELECT srs_id FROM gpkg_geometry_columns WHERE lower(table_name) = lower(?1)",
+                [name],
+                |r| r.get::<_, i32>(0),
+            )
+            .optional()
+            .map_err(Error::sqlite(context))
+    }
+
     /// Starts a vector layer `name` with `fields`, in `srs` (required unless `kind` is None).
     ///
     /// # Errors
-    /// Name problems (see [`Staging::check_name`]) or GDAL failures.
+    /// Name problems (see [`Staging::check_name`]), GDAL or SQLite failures.
     pub fn create_vector(
         &mut self,
         name: &str,
@@ -310,68 +375,70 @@ impl Staging {
             GeometryKind::Point => OGRwkbGeometryType::wkbPoint,
             GeometryKind::MultiPolygon => OGRwkbGeometryType::wkbMultiPolygon,
         };
-        let name_owned = name.to_owned();
-        self.open_dataset()?;
-        let dataset = self
-            .dataset
-            .as_mut()
-            .ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
-        let context = format!("creating layer '{name_owned}'");
-        {
-            let layer = dataset
-                .create_layer(LayerOptions {
-                    name: &name_owned,
-                    srs: if kind == GeometryKind::None {
-                        None
-                    } else {
-                        srs
-                    },
-                    ty,
-                    options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
-                })
-                .map_err(Error::gdal(context.clone()))?;
-            for field in fields {
-                let ogr_type = match field.kind {
-                    FieldKind::Integer => OGRFieldType::OFTInteger64,
-                    FieldKind::Real => OGRFieldType::OFTReal,
-                    FieldKind::Text => OGRFieldType::OFTString,
-                    FieldKind::DateTime => OGRFieldType::OFTDateTime,
-                };
-                let definition = gdal::vector::FieldDefn::new(&field.name, ogr_type)
-                    .map_err(Error::gdal(context.clone()))?;
-                definition
-                    .add_to_layer(&layer)
-                    .map_err(Error::gdal(context.clone()))?;
-            }
+        let schema: Vec<(String, OGRFieldType::Type)> = fields
+            .iter()
+            .map(|f| (f.name.clone(), ogr_type(f.kind)))
+            .collect();
+        let srs_id = self.create_table(name, ty, srs, &schema)?;
+        let spatial = kind != GeometryKind::None;
+        let mut columns: Vec<String> = Vec::new();
+        if spatial {
+            columns.push(q("geom"));
         }
-        // SAFETY: the handle is valid while `dataset` lives; a failure only costs speed.
-        let c_dataset = dataset.c_dataset();
-        unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };
-        let layer = dataset
-            .layer_by_name(&name_owned)
-            .map_err(Error::gdal(context))?;
+        columns.extend(fields.iter().map(|f| q(&f.name)));
+        let sql = format!(
+            "INSERT INTO {} ({}) VALUES ({})",
+            q(name),
+            columns.join(", "),
+            (1..=columns.len())
+                .map(|i| format!("?{i}"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
+        self.open_sql()?;
+        let Staging {
+            sql: connection,
+            layers,
+            ..
+        } = self;
+        let connection = connection
+            .as_ref()
+            .ok_or_else(|| Error::Failed("staging connection missing".into()))?;
+        let context = format!("writing layer '{name}'");
+        connection
+            .execute_batch("BEGIN")
+            .map_err(Error::sqlite(context.clone()))?;
+        let insert = connection
+            .prepare(&sql)
+            .map_err(Error::sqlite(context.clone()))?;
+        let load =
+            BulkLoad::start(connection, name, spatial).map_err(Error::sqlite(context.clone()))?;
         Ok(VectorWriter {
-            layer,
-            c_dataset,
+            connection,
+            insert,
+            srs_id: srs_id.unwrap_or(0),
+            spatial,
+            load,
             kinds: fields.iter().map(|f| f.kind).collect(),
-            name: name_owned,
+            name: name.to_owned(),
             count: 0,
-            staged: &mut self.layers,
-            data_type: if kind == GeometryKind::None {
-                "attributes"
-            } else {
-                "features"
-            },
+            staged: layers,
+            data_type: if spatial { "features" } else { "attributes" },
+            blob: Vec::new(),
+            finished: false,
         })
     }
 
     /// Copies layer `layer` of the GeoPackage `source` into the staged layer `name` — geometry,
-    /// CRS and every field kept — and appends the `extra` columns. Each extra column holds one
-    /// value per feature, aligned with `fids` (the order [`super::read::read_polygons`] returns).
+    /// CRS, feature ids and every field kept — and appends the `extra` columns. Each extra
+    /// column holds one value per feature, aligned with `fids` (the order
+    /// [`super::read::read_polygons`] returns). Rows are copied as stored (SQLite values and
+    /// geometry blobs, the blob's srs_id renumbered if the staging file numbers the CRS
+    /// differently).
     ///
     /// # Errors
     /// Name problems, an extra field that clashes with a field of the source, a feature whose
-    /// fid is not in `fids`, or GDAL failures.
+    /// fid is not in `fids`, GDAL or SQLite failures.
     pub fn copy_with_fields(
         &mut self,
         source: &Path,
@@ -386,15 +453,18 @@ impl Staging {
             layer: layer.to_owned(),
             message,
         };
-        let dataset = super::open_geopackage(source)?;
-        let mut input = dataset
-            .layer_by_name(layer)
-            .map_err(|e| bad(e.to_string()))?;
-        let source_fields: Vec<(String, u32)> = input
-            .defn()
-            .fields()
-            .map(|f| (f.name(), f.field_type()))
-            .collect();
+        let (source_fields, srs, geometry_type) = {
+            let dataset = super::open_geopackage(source)?;
+            let input = dataset
+                .layer_by_name(layer)
+                .map_err(|e| bad(e.to_string()))?;
+            let fields: Vec<(String, OGRFieldType::Type)> = input
+                .defn()
+                .fields()
+                .map(|f| (f.name(), f.field_type()))
+                .collect();
+            (fields, input.spatial_ref(), input.defn().geometry_type())
+        };
         for (field, column) in extra {
             if source_fields
                 .iter()
@@ -419,94 +489,122 @@ impl Staging {
         }
         let index: std::collections::HashMap<i64, usize> =
             fids.iter().enumerate().map(|(i, f)| (*f, i)).collect();
-        let srs = input.spatial_ref();
-        let geometry_type = input.defn().geometry_type();
-        let name_owned = name.to_owned();
-        self.open_dataset()?;
-        let dataset_out = self
-            .dataset
-            .as_mut()
-            .ok_or_else(|| Error::Failed("staging dataset missing".into()))?;
-        let context = format!("copying layer '{layer}' to '{name_owned}'");
-        {
-            let created = dataset_out
-                .create_layer(LayerOptions {
-                    name: &name_owned,
-                    srs: srs.as_ref(),
-                    ty: geometry_type,
-                    options: Some(&["FID=fid", "GEOMETRY_NAME=geom", "SPATIAL_INDEX=YES"]),
-                })
-                .map_err(Error::gdal(context.clone()))?;
-            for (field_name, field_type) in &source_fields {
-                gdal::vector::FieldDefn::new(field_name, *field_type)
-                    .and_then(|d| d.add_to_layer(&created))
-                    .map_err(Error::gdal(context.clone()))?;
-            }
-            for (field, _) in extra {
-                let ogr_type = match field.kind {
-                    FieldKind::Integer => OGRFieldType::OFTInteger64,
-                    FieldKind::Real => OGRFieldType::OFTReal,
-                    FieldKind::Text => OGRFieldType::OFTString,
-                    FieldKind::DateTime => OGRFieldType::OFTDateTime,
-                };
-                gdal::vector::FieldDefn::new(&field.name, ogr_type)
-                    .and_then(|d| d.add_to_layer(&created))
-                    .map_err(Error::gdal(context.clone()))?;
-            }
+        let mut schema = source_fields.clone();
+        schema.extend(
+            extra
+                .iter()
+                .map(|(f, _)| (f.name.clone(), ogr_type(f.kind))),
+        );
+        let srs_id = self.create_table(name, geometry_type, srs.as_ref(), &schema)?;
+
+        // The source's fid and geometry columns, read with SQLite.
+        let reader = super::open_sqlite_read(source)?;
+        let read_ctx = format!("reading layer '{layer}' of {}", source.display());
+        let fid_column: String = reader
+            .query_row(
+                &format!(
+                    "SELECT name FROM pragma_table_info({}) WHERE pk = 1",
+                    sql_text(layer)
+                ),
+                [],
+                |r| r.get(0),
+            )
+            .optional()
+            .map_err(Error::sqlite(read_ctx.clone()))?
+            .ok_or_else(|| bad("has no integer primary key (feature id)".into()))?;
+        let geometry_column: Option<String> = reader
+            .query_row(
+                "SELECT column_name FROM gpkg_geometry_columns WHERE lower(table_name) = lower(?1)",
+                [layer],
+                |r| r.get(0),
+            )
+            .optional()
+            .map_err(Error::sqlite(read_ctx.clone()))?;
+        let mut selected = vec![q(&fid_column)];
+        selected.push(geometry_column.as_deref().map_or("NULL".to_owned(), q));
+        selected.extend(source_fields.iter().map(|(n, _)| q(n)));
+        let mut statement = reader
+            .prepare(&format!("SELECT {} FROM {}", selected.join(", "), q(layer)))
+            .map_err(Error::sqlite(read_ctx.clone()))?;
+
+        let mut columns = vec![q("fid")];
+        if srs_id.is_some() {
+            columns.push(q("geom"));
         }
-        let c_dataset = dataset_out.c_dataset();
-        // SAFETY: the handle is valid while `dataset_out` lives; a failure only costs speed.
-        unsafe { gdal_sys::GDALDatasetStartTransaction(c_dataset, 0) };
-        let output = dataset_out
-            .layer_by_name(&name_owned)
-            .map_err(Error::gdal(context.clone()))?;
+        columns.extend(schema.iter().map(|(n, _)| q(n)));
+        let insert_sql = format!(
+            "INSERT INTO {} ({}) VALUES ({})",
+            q(name),
+            columns.join(", "),
+            (1..=columns.len())
+                .map(|i| format!("?{i}"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
+        let context = format!("copying layer '{layer}' to '{name}'");
+        let connection = self.open_sql()?;
+        connection
+            .execute_batch("BEGIN")
+            .map_err(Error::sqlite(context.clone()))?;
+        let mut insert = connection
+            .prepare(&insert_sql)
+            .map_err(Error::sqlite(context.clone()))?;
+        let mut load = BulkLoad::start(connection, name, srs_id.is_some())
+            .map_err(Error::sqlite(context.clone()))?;
+        let mut rows = statement
+            .query([])
+            .map_err(Error::sqlite(read_ctx.clone()))?;
         let mut count = 0u64;
-        for feature in input.features() {
-            let fid = feature.fid().map(|f| f as i64).unwrap_or(-1);
-            let row = *index
+        let write = |e| Error::Sqlite {
+            context: context.clone(),
+            source: e,
+        };
+        while let Some(row) = rows.next().map_err(Error::sqlite(read_ctx.clone()))? {
+            let fid: i64 = row.get(0).map_err(Error::sqlite(read_ctx.clone()))?;
+            let at = *index
                 .get(&fid)
                 .ok_or_else(|| bad(format!("feature {fid} was not read before copying")))?;
-            let mut copy = Feature::new(output.defn()).map_err(Error::gdal(context.clone()))?;
-            for i in 0..source_fields.len() {
-                if let Some(value) = feature.field(i).map_err(Error::gdal(context.clone()))? {
-                    copy.set_field(i, &value)
-                        .map_err(Error::gdal(context.clone()))?;
+            let mut p = 1;
+            insert.raw_bind_parameter(p, fid).map_err(write)?;
+            p += 1;
+            if let Some(id) = srs_id {
+                let mut geometry: Option<Vec<u8>> =
+                    row.get(1).map_err(Error::sqlite(read_ctx.clone()))?;
+                if let Some(blob) = geometry.as_mut() {
+                    super::blob::set_srs_id(blob, id);
+                    let bounds = super::blob::envelope(blob)
+                        .map_err(|m| bad(format!("feature {fid}: unreadable geometry ({m})")))?;
+                    if let Some(e) = bounds {
+                        load.entries.push((fid, e));
+                    }
                 }
+                insert.raw_bind_parameter(p, geometry).map_err(write)?;
+                p += 1;
             }
-            for (j, (_, column)) in extra.iter().enumerate() {
-                let i = source_fields.len() + j;
-                let result = match column {
-                    ExtraColumn::Integer(v) => match v[row] {
-                        Some(x) => copy.set_field_integer64(i, x),
-                        None => copy.set_field_null(i),
-                    },
-                    ExtraColumn::Real(v) => match v[row] {
-                        Some(x) if x.is_finite() => copy.set_field_double(i, x),
-                        _ => copy.set_field_null(i),
-                    },
-                    ExtraColumn::Text(v) => match v[row].as_deref() {
-                        Some(x) => copy.set_field_string(i, x),
-                        None => copy.set_field_null(i),
-                    },
-                };
-                result.map_err(Error::gdal(context.clone()))?;
+            for k in 0..source_fields.len() {
+                let value: rusqlite::types::Value =
+                    row.get(2 + k).map_err(Error::sqlite(read_ctx.clone()))?;
+                insert.raw_bind_parameter(p, value).map_err(write)?;
+                p += 1;
             }
-            if let Some(geometry) = feature.geometry() {
-                copy.set_geometry(geometry.clone())
-                    .map_err(Error::gdal(context.clone()))?;
+            for (_, column) in extra {
+                match column {
+                    ExtraColumn::Integer(v) => insert.raw_bind_parameter(p, v[at]),
+                    ExtraColumn::Real(v) => {
+                        insert.raw_bind_parameter(p, v[at].filter(|x| x.is_finite()))
+                    }
+                    ExtraColumn::Text(v) => insert.raw_bind_parameter(p, v[at].as_deref()),
+                }
+                .map_err(write)?;
+                p += 1;
             }
-            copy.create(&output).map_err(Error::gdal(context.clone()))?;
+            insert.raw_execute().map_err(write)?;
             count += 1;
         }
-        // SAFETY: as above.
-        let status = unsafe { gdal_sys::GDALDatasetCommitTransaction(c_dataset) };
-        if status != gdal_sys::OGRErr::OGRERR_NONE {
-            return Err(Error::Failed(format!(
-                "committing layer '{name_owned}' failed (OGR error {status})"
-            )));
-        }
+        drop(insert);
+        finish_table(connection, name, &load, count).map_err(write)?;
         self.layers.push(StagedLayer {
-            name: name_owned,
+            name: name.to_owned(),
             data_type: "features",
             count,
         });
@@ -524,6 +622,7 @@ impl Staging {
     ) -> Result<()> {
         self.check_name(name)?;
         self.close_dataset()?;
+        self.sql = None;
         super::raster::write(&self.path, self.created, name, surface)?;
         self.created = true;
         self.layers.push(StagedLayer {
@@ -579,6 +678,7 @@ impl Staging {
         interrupted: &AtomicBool,
     ) -> Result<Vec<Value>> {
         self.close_dataset()?;
+        self.sql = None;
         if self.layers.is_empty() {
             self.publish_side_files()?;
             return Ok(Vec::new());
@@ -642,6 +742,7 @@ impl Staging {
 impl Drop for Staging {
     fn drop(&mut self) {
         self.dataset = None;
+        self.sql = None;
         for (temporary, _) in &self.side_files {
             let _ = std::fs::remove_file(temporary);
         }
@@ -677,65 +778,199 @@ fn remove_stale_staging(directory: &Path, file_name: &str) {
     }
 }
 
-/// Writes the features of one staged layer; [`VectorWriter::finish`] commits it.
+/// The OGR type of a field kind.
+fn ogr_type(kind: FieldKind) -> OGRFieldType::Type {
+    match kind {
+        FieldKind::Integer => OGRFieldType::OFTInteger64,
+        FieldKind::Real => OGRFieldType::OFTReal,
+        FieldKind::Text => OGRFieldType::OFTString,
+        FieldKind::DateTime => OGRFieldType::OFTDateTime,
+    }
+}
+
+/// A string as an SQL literal.
+fn sql_text(text: &str) -> String {
+    format!("'{}'", text.replace('\'', "''"))
+}
+
+/// A table being filled through SQLite. Its per-row insert triggers — the R-tree's and GDAL's
+/// feature count — are dropped for the load (each costs microseconds per row) and restored at
+/// the end, when the R-tree is bulk-loaded ([`super::rtree`]) and the count set once.
+struct BulkLoad {
+    rtree: Option<String>,
+    triggers: Vec<String>,
+    entries: Vec<(i64, super::blob::Envelope)>,
+}
+
+impl BulkLoad {
+    /// Starts the load of `table` (inside the open transaction).
+    fn start(connection: &Connection, table: &str, spatial: bool) -> rusqlite::Result<Self> {
+        let rtree = format!("rtree_{table}_geom");
+        let names = [
+            format!("{rtree}_insert"),
+            format!("trigger_insert_feature_count_{table}"),
+        ];
+        let mut triggers = Vec::new();
+        for name in &names {
+            let found: Option<(String, String)> = connection
+                .query_row(
+                    "SELECT name, sql FROM sqlite_master WHERE type = 'trigger' AND lower(name) = lower(?1)",
+                    [name],
+                    |r| Ok((r.get(0)?, r.get(1)?)),
+                )
+                .optional()?;
+            if let Some((name, sql)) = found {
+                connection.execute_batch(&format!("DROP TRIGGER {}", q(&name)))?;
+                triggers.push(sql);
+            }
+        }
+        let has_rtree: bool = connection.query_row(
+            "SELECT count(*) > 0 FROM sqlite_master WHERE type = 'table' AND lower(name) = lower(?1)",
+            [&rtree],
+            |r| r.get(0),
+        )?;
+        Ok(BulkLoad {
+            rtree: (spatial && has_rtree).then_some(rtree),
+            triggers,
+            entries: Vec::new(),
+        })
+    }
+
+    /// Loads the index and restores the triggers.
+    fn finish(&self, connection: &Connection) -> rusqlite::Result<()> {
+        if let Some(rtree) = &self.rtree {
+            super::rtree::bulk_load(connection, rtree, &self.entries)?;
+        }
+        for sql in &self.triggers {
+            connection.execute_batch(sql)?;
+        }
+        Ok(())
+    }
+}
+
+/// Finishes a table written through SQLite: loads its spatial index, commits, and brings its
+/// system rows up to date — the feature count GDAL keeps in `gpkg_ogr_contents`, and the extent
+/// (exact, from the geometries; the R-tree holds 32-bit bounds) and change time in
+/// `gpkg_contents`.
+fn finish_table(
+    connection: &Connection,
+    name: &str,
+    load: &BulkLoad,
+    count: u64,
+) -> rusqlite::Result<()> {
+    let mut extent: [Option<f64>; 4] = [None; 4];
+    load.finish(connection)?;
+    if load.rtree.is_some() {
+        for (_, e) in &load.entries {
+            extent = [
+                Some(extent[0].map_or(e[0], |v| v.min(e[0]))),
+                Some(extent[1].map_or(e[1], |v| v.max(e[1]))),
+                Some(extent[2].map_or(e[2], |v| v.min(e[2]))),
+                Some(extent[3].map_or(e[3], |v| v.max(e[3]))),
+            ];
+        }
+    }
+    connection.execute_batch("COMMIT")?;
+    connection.execute(
+        "UPDATE gpkg_ogr_contents SET feature_count = ?1 WHERE lower(table_name) = lower(?2)",
+        rusqlite::params![count as i64, name],
+    )?;
+    connection.execute(
+        "UPDATE gpkg_contents SET last_change = strftime('%Y-%m-%dT%H:%M:%fZ', 'now')
+         WHERE lower(table_name) = lower(?1)",
+        [name],
+    )?;
+    if load.rtree.is_some() {
+        connection.execute(
+            "UPDATE gpkg_contents SET min_x = ?1, max_x = ?2, min_y = ?3, max_y = ?4
+             WHERE lower(table_name) = lower(?5)",
+            rusqlite::params![extent[0], extent[1], extent[2], extent[3], name],
+        )?;
+    }
+    Ok(())
+}
+
+/// Writes the rows of one staged layer through SQLite in one transaction;
+/// [`VectorWriter::finish`] commits it.
 pub struct VectorWriter<'a> {
-    layer: gdal::vector::Layer<'a>,
-    c_dataset: gdal_sys::GDALDatasetH,
+    connection: &'a Connection,
+    insert: rusqlite::Statement<'a>,
+    srs_id: i32,
+    spatial: bool,
+    load: BulkLoad,
     kinds: Vec<FieldKind>,
     name: String,
     count: u64,
     staged: &'a mut Vec<StagedLayer>,
     data_type: &'static str,
+    blob: Vec<u8>,
+    finished: bool,
 }
 
 impl VectorWriter<'_> {
     /// Adds one feature.
     ///
     /// # Errors
-    /// GDAL failures, or a value whose type does not match its field.
+    /// SQLite failures, or a shape on a layer without geometry.
     pub fn add(&mut self, shape: Shape<'_>, values: &[FieldData<'_>]) -> Result<()> {
-        let context = || format!("writing layer '{}'", self.name);
-        let mut feature = Feature::new(self.layer.defn()).map_err(Error::gdal(context()))?;
-        for (index, (value, kind)) in values.iter().zip(&self.kinds).enumerate() {
-            let result = match (*value, kind) {
-                (FieldData::Null, _) => feature.set_field_null(index),
-                (FieldData::Real(v), _) if v.is_nan() => feature.set_field_null(index),
-                (FieldData::Integer(v), _) => feature.set_field_integer64(index, v),
-                (FieldData::Real(v), _) => feature.set_field_double(index, v),
-                (FieldData::Text(v), _) => feature.set_field_string(index, v),
-                (FieldData::DateTime(seconds), _) => {
-                    match chrono::DateTime::from_timestamp(seconds, 0) {
-                        // OGR parses the `Z` suffix into time-zone flag 100 (UTC).
-                        Some(t) => feature
-                            .set_field_string(index, &t.format("%Y-%m-%dT%H:%M:%SZ").to_string()),
-                        None => feature.set_field_null(index),
-                    }
+        let fail = |e| Error::Sqlite {
+            context: format!("writing layer '{}'", self.name),
+            source: e,
+        };
+        let mut p = 1;
+        let mut bounds = None;
+        if self.spatial {
+            self.blob.clear();
+            let blob = &mut self.blob;
+            bounds = match shape {
+                Shape::None => None,
+                Shape::Point(x, y) => super::blob::encode_point(blob, self.srs_id, x, y),
+                Shape::Polygon(polygon) => {
+                    let multi = geo_types::MultiPolygon::new(vec![polygon.clone()]);
+                    super::blob::encode_multipolygon(blob, self.srs_id, &multi)
+                }
+                Shape::MultiPolygon(multi) => {
+                    super::blob::encode_multipolygon(blob, self.srs_id, multi)
                 }
             };
-            result.map_err(Error::gdal(context()))?;
+            let geometry = (!matches!(shape, Shape::None)).then_some(self.blob.as_slice());
+            self.insert.raw_bind_parameter(p, geometry).map_err(fail)?;
+            p += 1;
+        } else if !matches!(shape, Shape::None) {
+            return Err(Error::Failed(format!(
+                "layer '{}' has no geometry column",
+                self.name
+            )));
         }
-        let geometry = match shape {
-            Shape::None => None,
-            Shape::Point(x, y) => {
-                let mut g = gdal::vector::Geometry::empty(OGRwkbGeometryType::wkbPoint)
-                    .map_err(Error::gdal(context()))?;
-                g.add_point_2d((x, y));
-                Some(g)
+        for (index, kind) in self.kinds.iter().enumerate() {
+            let value = values.get(index).copied().unwrap_or(FieldData::Null);
+            match (value, kind) {
+                (FieldData::Null, _) => self.insert.raw_bind_parameter(p, rusqlite::types::Null),
+                (FieldData::Real(v), _) if v.is_nan() => {
+                    self.insert.raw_bind_parameter(p, rusqlite::types::Null)
+                }
+                (FieldData::Integer(v), FieldKind::Real) => {
+                    self.insert.raw_bind_parameter(p, v as f64)
+                }
+                (FieldData::Integer(v), _) => self.insert.raw_bind_parameter(p, v),
+                (FieldData::Real(v), _) => self.insert.raw_bind_parameter(p, v),
+                (FieldData::Text(v), _) => self.insert.raw_bind_parameter(p, v),
+                (FieldData::DateTime(seconds), _) => {
+                    // The form GDAL writes for DateTime fields, read back as UTC.
+                    let text = chrono::DateTime::from_timestamp(seconds, 0)
+                        .map(|t| t.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string());
+                    self.insert.raw_bind_parameter(p, text)
+                }
             }
-            Shape::Polygon(p) => {
-                let multi = geo_types::MultiPolygon::new(vec![p.clone()]);
-                Some(multi.to_gdal().map_err(Error::gdal(context()))?)
-            }
-            Shape::MultiPolygon(m) => Some(m.to_gdal().map_err(Error::gdal(context()))?),
-        };
-        if let Some(geometry) = geometry {
-            feature
-                .set_geometry(geometry)
-                .map_err(Error::gdal(context()))?;
+            .map_err(fail)?;
+            p += 1;
         }
-        feature
-            .create(&self.layer)
-            .map_err(Error::gdal(context()))?;
+        self.insert.raw_execute().map_err(fail)?;
+        if let Some(e) = bounds {
+            self.load
+                .entries
+                .push((self.connection.last_insert_rowid(), e));
+        }
         self.count += 1;
         Ok(())
     }
@@ -743,22 +978,30 @@ impl VectorWriter<'_> {
     /// Commits the layer.
     ///
     /// # Errors
-    /// GDAL failures.
-    pub fn finish(self) -> Result<u64> {
-        // SAFETY: the layer's dataset handle is valid for the writer's lifetime.
-        let status = unsafe { gdal_sys::GDALDatasetCommitTransaction(self.c_dataset) };
-        if status != gdal_sys::OGRErr::OGRERR_NONE {
-            return Err(Error::Failed(format!(
-                "committing layer '{}' failed (OGR error {status})",
-                self.name
-            )));
-        }
+    /// SQLite failures.
+    pub fn finish(mut self) -> Result<u64> {
+        self.finished = true;
+        finish_table(self.connection, &self.name, &self.load, self.count).map_err(|e| {
+            Error::Sqlite {
+                context: format!("committing layer '{}'", self.name),
+                source: e,
+            }
+        })?;
         self.staged.push(StagedLayer {
-            name: self.name,
+            name: self.name.clone(),
             data_type: self.data_type,
             count: self.count,
         });
         Ok(self.count)
+    }
+}
+
+impl Drop for VectorWriter<'_> {
+    fn drop(&mut self) {
+        if !self.finished {
+            // An abandoned layer: its rows are dropped; the run fails and the file is removed.
+            let _ = self.connection.execute_batch("ROLLBACK");
+        }
     }
 }
 

@@ -204,9 +204,11 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
         staging,
         interrupted: Interrupt(interrupted),
         extra_inputs: Vec::new(),
+        clock,
     };
     let results = T::run(params, &mut run)?;
     run.progress.finish();
+    run.debug("tool finished; writing provenance and publishing");
     run.check_interrupted()?;
 
     let parameters = {
@@ -233,12 +235,16 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
         run_time_s: clock.elapsed().as_secs_f64(),
         results: results.clone(),
     };
+    let verbose = run.common.verbose && !run.common.quiet;
     let Run {
         staging,
         interrupted,
         ..
     } = run;
     let written = staging.publish(&provenance, interrupted.flag())?;
+    if verbose {
+        eprintln!("[{:7.3} s] published", clock.elapsed().as_secs_f64());
+    }
     Ok(json!({
         "tool": provenance.tool,
         "version": provenance.version,
@@ -326,6 +332,7 @@ pub struct Run {
     extra_inputs: Vec<InputFile>,
     staging: Staging,
     interrupted: Interrupt,
+    clock: Instant,
 }
 
 /// Set once SIGINT or SIGTERM arrives; long loops check it and roll back.
@@ -459,10 +466,15 @@ impl Run {
         }
     }
 
-    /// A log line shown only with `-v`.
+    /// A log line shown only with `-v`, prefixed with the seconds since the run started (so
+    /// `-v` shows where a run spends its time).
     pub fn debug(&self, message: impl AsRef<str>) {
         if self.common.verbose && !self.common.quiet {
-            eprintln!("{}", message.as_ref());
+            eprintln!(
+                "[{:7.3} s] {}",
+                self.clock.elapsed().as_secs_f64(),
+                message.as_ref()
+            );
         }
     }
 

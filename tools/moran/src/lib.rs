@@ -301,6 +301,7 @@ impl Tool for Moran {
         let wanted_refs: Vec<&str> = wanted.iter().map(String::as_str).collect();
         let layer = read_polygons(&input, run.common.layer.as_deref(), &wanted_refs)?;
         run.note_input_layer(&layer.layer);
+        run.debug(format!("read {} areas", layer.fids.len()));
         if let Some(t) = &table {
             run.note_input_layer(&t.table);
         }
@@ -380,6 +381,7 @@ impl Tool for Moran {
         };
         let summary = neighbours.summary();
         let w = neighbours.standardise(style);
+        run.debug(format!("weights ready ({weights_source})"));
         run.progress.set(0.2);
 
         // Compute.
@@ -398,6 +400,7 @@ impl Tool for Moran {
         )
         .map_err(constant_error)?;
         run.check_interrupted()?;
+        run.debug("global Moran's I done");
         run.progress.set(0.4);
         let local = maths::local_moran(
             &values,
@@ -408,6 +411,7 @@ impl Tool for Moran {
         )
         .map_err(constant_error)?;
         run.check_interrupted()?;
+        run.debug("local Moran's I done");
         let p_for_clusters = if params.permutations > 0 {
             &local.p_permutation
         } else {

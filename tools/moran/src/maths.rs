@@ -7,9 +7,8 @@
 //! Scales follow R spdep 1.2: local Ii = (z_i / m2) Σ_j w_ij z_j with m2 = Σ z² / n (esda's `Is`
 //! is (n − 1)/n times this); global I uses spdep's `adjust.n`: n counts areas with neighbours.
 
-use rand::Rng;
 use rayon::prelude::*;
-use stance_core::montecarlo::{mix64, replicate_rng};
+use stance_core::montecarlo::{mix64, Draws};
 use stance_core::weights::SparseWeights;
 
 /// The direction of a test.
@@ -182,7 +181,7 @@ fn cross_product(w: &SparseWeights, z: &[f64]) -> f64 {
 }
 
 /// Global Moran's I of `x` under weights `w`, with `permutations` random relabellings seeded by
-/// `seed` (replicate r uses [`replicate_rng`]`(seed, r)`, so results do not depend on threads).
+/// `seed` (replicate r uses [`Draws`]`::new(seed, r)`, so results do not depend on threads).
 ///
 /// # Errors
 /// [`MoranError`] for non-finite or constant values, or fewer than 4 areas with neighbours.
@@ -221,12 +220,8 @@ pub fn global_moran(
         let replicates: Vec<f64> = (0..permutations as u64)
             .into_par_iter()
             .map(|r| {
-                let mut rng = replicate_rng(seed, r);
                 let mut shuffled = z.clone();
-                for k in (1..shuffled.len()).rev() {
-                    let j = rng.random_range(0..=k as u32) as usize;
-                    shuffled.swap(k, j);
-                }
+                Draws::new(seed, r).shuffle(&mut shuffled);
                 n / m.s0 * cross_product(w, &shuffled) / zz
             })
             .collect();
@@ -281,9 +276,18 @@ pub struct LocalMoran {
 const LOCAL_STREAM: u64 = 0x4C4F_4341_4C5F_4D49;
 
 /// Local Moran's I with analytic conditional moments and conditional-permutation pseudo
-/// p-values: for area i, each of `permutations` draws takes |N(i)| distinct values at random
-/// from the other n − 1 areas (area i keeps its own value). Area i draws from
-/// [`replicate_rng`]`(mix64(seed ^ LOCAL_STREAM), i)`, so results do not depend on threads.
+/// p-values.
+///
+/// Conditional permutation (Anselin 1995): area i keeps its value and its |N(i)| neighbours'
+/// values are replaced by |N(i)| values drawn without replacement from the other n − 1 areas.
+/// As in PySAL esda, one set of random draws serves every area: permutation r draws an ordered
+/// sample q_r of K + 1 distinct areas (K = the largest number of neighbours) and area i takes the
+/// first |N(i)| entries of q_r that are not i itself, which is a uniform draw from the other
+/// areas for every i, so each area's pseudo p is an exact permutation p-value. Sharing the
+/// draws makes the p-values of different areas dependent (as in esda) and makes the test
+/// O(n · R) instead of O(n · R · |N|): with equal weights in a row (every weights method of the
+/// toolbox) the permuted lag is a prefix sum of q_r's values. Permutation r draws from
+/// [`Draws`]`::new(mix64(seed ^ LOCAL_STREAM), r)`, so results do not depend on threads.
 ///
 /// # Errors
 /// [`MoranError`] for non-finite or constant values.
@@ -299,13 +303,12 @@ pub fn local_moran(
     let nf = n as f64;
     let z = centred(x);
     let m2 = z.iter().map(|v| v * v).sum::<f64>() / nf;
-    let stream = mix64(seed ^ LOCAL_STREAM);
-    let rows: Vec<[f64; 7]> = (0..n)
+    let rows: Vec<[f64; 6]> = (0..n)
         .into_par_iter()
         .map(|i| {
             let (js, ws) = w.row(i);
             if js.is_empty() {
-                return [f64::NAN; 7];
+                return [f64::NAN; 6];
             }
             let lag = w.lag(i, &z);
             let ii = z[i] / m2 * lag;
@@ -317,54 +320,157 @@ pub fn local_moran(
                 * (wi2 - wi * wi / (nf - 1.0))
                 * (m2 - z[i] * z[i] / (nf - 1.0));
             let zi = (ii - expected) / variance.sqrt();
-            let p_permutation = if permutations == 0 || n < 2 {
-                f64::NAN
-            } else {
-                let mut rng = replicate_rng(stream, i as u64);
-                let k = js.len().min(n - 1);
-                let mut drawn: Vec<usize> = Vec::with_capacity(k);
-                let (mut at_least, mut at_most) = (0, 0);
-                for _ in 0..permutations {
-                    drawn.clear();
-                    while drawn.len() < k {
-                        // u32 draws: half the generator output of a usize range.
-                        let mut j = rng.random_range(0..(n - 1) as u32) as usize;
-                        if j >= i {
-                            j += 1;
-                        }
-                        if !drawn.contains(&j) {
-                            drawn.push(j);
-                        }
-                    }
-                    let lag_r: f64 = drawn.iter().zip(ws).map(|(j, wj)| wj * z[*j]).sum();
-                    let ii_r = z[i] / m2 * lag_r;
-                    at_least += usize::from(ii_r >= ii);
-                    at_most += usize::from(ii_r <= ii);
-                }
-                permutation_p(at_least, at_most, permutations, alternative)
-            };
-            [
-                ii,
-                expected,
-                variance,
-                zi,
-                normal_p(zi, alternative),
-                p_permutation,
-                lag,
-            ]
+            [ii, expected, variance, zi, normal_p(zi, alternative), lag]
         })
         .collect();
     let column = |c: usize| rows.iter().map(|r| r[c]).collect::<Vec<f64>>();
+    let ii = column(0);
+    let p_permutation = if permutations == 0 || n < 2 {
+        vec![f64::NAN; n]
+    } else {
+        let stream = mix64(seed ^ LOCAL_STREAM);
+        local_permutation_counts(&z, m2, w, &ii, permutations, stream)
+            .into_iter()
+            .zip(&ii)
+            .map(|([at_least, at_most], value)| {
+                if value.is_nan() {
+                    f64::NAN
+                } else {
+                    permutation_p(
+                        at_least as usize,
+                        at_most as usize,
+                        permutations,
+                        alternative,
+                    )
+                }
+            })
+            .collect()
+    };
     Ok(LocalMoran {
-        ii: column(0),
         expected: column(1),
         variance: column(2),
         z: column(3),
         p_analytic: column(4),
-        p_permutation: column(5),
-        lag: column(6),
+        p_permutation,
+        lag: column(5),
+        ii,
         centred: z,
     })
+}
+
+/// Values of the shared draws held at once (bounds memory when some area has very many
+/// neighbours: blocks of permutations are drawn in turn).
+const SHARED_DRAW_VALUES: usize = 1 << 21;
+
+/// An ordered sample of `depth` distinct integers from `0..n`: the first `depth` steps of a
+/// Fisher–Yates shuffle, with the displaced entries kept in a map instead of an array of n.
+fn ordered_sample(n: usize, depth: usize, draws: &mut Draws) -> Vec<u32> {
+    let mut displaced: std::collections::HashMap<u32, u32> =
+        std::collections::HashMap::with_capacity(depth * 2);
+    let mut out = Vec::with_capacity(depth);
+    for m in 0..depth as u32 {
+        let j = m + draws.below(n as u32 - m);
+        let at_j = displaced.get(&j).copied().unwrap_or(j);
+        let at_m = displaced.get(&m).copied().unwrap_or(m);
+        displaced.insert(j, at_m);
+        out.push(at_j);
+    }
+    out
+}
+
+/// Per area, how many permuted Ii were ≥ and ≤ the observed one (see [`local_moran`]).
+fn local_permutation_counts(
+    z: &[f64],
+    m2: f64,
+    w: &SparseWeights,
+    ii: &[f64],
+    permutations: usize,
+    stream: u64,
+) -> Vec<[u32; 2]> {
+    let n = z.len();
+    let most = (0..n).map(|i| w.row(i).0.len()).max().unwrap_or(0);
+    let depth = (most + 1).min(n);
+    let block = (SHARED_DRAW_VALUES / depth).clamp(1, permutations);
+    let mut counts = vec![[0u32; 2]; n];
+    let mut first = 0;
+    while first < permutations {
+        let used = block.min(permutations - first);
+        let samples: Vec<Vec<u32>> = (first..first + used)
+            .into_par_iter()
+            .map(|r| ordered_sample(n, depth, &mut Draws::new(stream, r as u64)))
+            .collect();
+        // Values of each sample and their running sums: prefix[r][m] = Σ_{l<m} values[r][l].
+        let values: Vec<f64> = samples
+            .iter()
+            .flat_map(|q| q.iter().map(|&a| z[a as usize]))
+            .collect();
+        let mut prefix = vec![0.0; used * (depth + 1)];
+        for r in 0..used {
+            for m in 0..depth {
+                prefix[r * (depth + 1) + m + 1] =
+                    prefix[r * (depth + 1) + m] + values[r * depth + m];
+            }
+        }
+        // Where each area was drawn: (permutation, position), grouped by area, in order of r.
+        let mut starts = vec![0u32; n + 1];
+        for q in &samples {
+            for &a in q {
+                starts[a as usize + 1] += 1;
+            }
+        }
+        for a in 0..n {
+            starts[a + 1] += starts[a];
+        }
+        let mut fill = starts.clone();
+        let mut hits = vec![(0u32, 0u32); used * depth];
+        for (r, q) in samples.iter().enumerate() {
+            for (m, &a) in q.iter().enumerate() {
+                hits[fill[a as usize] as usize] = (r as u32, m as u32);
+                fill[a as usize] += 1;
+            }
+        }
+        counts.par_iter_mut().enumerate().for_each(|(i, count)| {
+            let (js, ws) = w.row(i);
+            let k = js.len();
+            if k == 0 || ii[i].is_nan() {
+                return;
+            }
+            let scale = z[i] / m2;
+            let equal = ws.iter().all(|v| *v == ws[0]);
+            let mut own = hits[starts[i] as usize..starts[i + 1] as usize].iter();
+            let mut next = own.next();
+            for r in 0..used {
+                // Position of area i among the first k entries of sample r, if drawn there.
+                let mut skip = usize::MAX;
+                if let Some(&(hr, hm)) = next {
+                    if hr as usize == r {
+                        if (hm as usize) < k {
+                            skip = hm as usize;
+                        }
+                        next = own.next();
+                    }
+                }
+                let lag = if equal {
+                    let row = &prefix[r * (depth + 1)..(r + 1) * (depth + 1)];
+                    ws[0]
+                        * if skip == usize::MAX {
+                            row[k]
+                        } else {
+                            row[k + 1] - z[i]
+                        }
+                } else {
+                    let row = &values[r * depth..(r + 1) * depth];
+                    let taken = row.iter().enumerate().filter(|(m, _)| *m != skip);
+                    taken.zip(ws).map(|((_, v), wj)| wj * v).sum()
+                };
+                let ii_r = scale * lag;
+                count[0] += u32::from(ii_r >= ii[i]);
+                count[1] += u32::from(ii_r <= ii[i]);
+            }
+        });
+        first += used;
+    }
+    counts
 }
 
 /// Cluster type of an area by the quadrant of (z_i, lag_i), both centred on the mean, when its

@@ -82,6 +82,7 @@ impl Tool for Weights {
         run.note_input_layer(&layer.layer);
         let ids = area_ids(&input, &layer, params.id_field.as_deref())?;
         run.progress.set(0.2);
+        run.debug(format!("read {} areas", layer.fids.len()));
         let (polygons, srs) = weights_table::project_areas(&layer, run.common.crs.as_deref())?;
         run.progress.set(0.4);
         let mut neighbours = weights::build(&polygons, method, params.neighbours.snap_m)
@@ -115,7 +116,9 @@ impl Tool for Weights {
         }
         let summary = neighbours.summary();
         let name = run.layer_name("");
+        run.debug("neighbours found; writing the table");
         let rows = weights_table::write(run.output(), &name, &ids, &neighbours)?;
+        run.debug(format!("{rows} links written"));
         run.progress.set(1.0);
         let id_json = |i: usize| match &ids {
             AreaIds::Integer(v) => json!(v[i]),
