@@ -4,6 +4,12 @@
 //!
 //! Work is parallel over centres (rayon); each labelling draws from its own seed, and the
 //! maximum is exact and order-free, so results do not depend on the number of threads.
+//!
+//! The counts matrix (`[location][labelling]`) is far larger than the caches, so centres are
+//! visited along a Hilbert curve and the matrix rows are stored in the same order: neighbouring
+//! centres share most of their neighbours, whose rows are then still cached. A location's row
+//! holds bytes when none of its counts can exceed 255, else u16 or u32. Neither changes a
+//! result: neighbourhoods, their ties and the sums along them are those of the input order.
 
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
@@ -13,12 +19,15 @@ use rayon::prelude::*;
 use stance_core::montecarlo::replicate_rng;
 
 use crate::models::{Side, WindowModel, ORDINAL_CLASSES};
-use crate::windows::{GridIndex, Neighbourhood, WindowLimits};
+use crate::windows::{hilbert_order, GridIndex, Neighbourhood, WindowLimits};
 
 /// The counts of one labelling (0 = the observed data, 1… = random relabellings).
 pub trait Labelling: Sync {
     /// Adds the counts of labelling `replicate` to `out` (location-major, `width` per location).
     fn fill(&self, replicate: usize, out: &mut [u32]);
+    /// Per location (of `locations`), an upper bound on any one count that
+    /// [`Labelling::fill`] adds there.
+    fn count_bounds(&self, locations: usize) -> Vec<u64>;
 }
 
 /// Records on locations, each with a class label; relabelling shuffles the labels among the
@@ -36,6 +45,15 @@ pub struct PointLabels<'a> {
 }
 
 impl Labelling for PointLabels<'_> {
+    fn count_bounds(&self, locations: usize) -> Vec<u64> {
+        // A location never holds more of one class than it holds records.
+        let mut records = vec![0u64; locations];
+        for &location in self.of_point {
+            records[location as usize] += 1;
+        }
+        records
+    }
+
     fn fill(&self, replicate: usize, out: &mut [u32]) {
         let add = |out: &mut [u32], location: u32, label: u8| {
             if self.width == 1 {
@@ -72,6 +90,11 @@ pub struct AreaCases<'a> {
 }
 
 impl Labelling for AreaCases<'_> {
+    fn count_bounds(&self, locations: usize) -> Vec<u64> {
+        // A multinomial draw may put every case on one area.
+        vec![self.cases.iter().map(|c| u64::from(*c)).sum(); locations]
+    }
+
     fn fill(&self, replicate: usize, out: &mut [u32]) {
         if replicate == 0 {
             for (o, c) in out.iter_mut().zip(self.cases) {
@@ -148,6 +171,314 @@ pub struct ScanOutcome {
 #[error("interrupted")]
 pub struct Stopped;
 
+/// One stored count. Rows of locations whose counts fit in a byte are stored as u8, the others
+/// as u16 or u32: the scan reads every row of a neighbourhood once per window, so the width of
+/// a count is the memory traffic of the scan. Implemented for u8, u16 and u32 only (their size
+/// tells them apart in the AVX2 kernel).
+trait Count: Copy + Default + Send + Sync + 'static {
+    /// The largest value the type holds.
+    const LARGEST: u64;
+    /// `value`, known to be ≤ `LARGEST`.
+    fn narrow(value: u32) -> Self;
+    /// The count as u32.
+    fn widen(self) -> u32;
+}
+
+impl Count for u8 {
+    const LARGEST: u64 = u8::MAX as u64;
+    #[inline(always)]
+    fn narrow(value: u32) -> Self {
+        debug_assert!(u64::from(value) <= Self::LARGEST);
+        value as u8
+    }
+    #[inline(always)]
+    fn widen(self) -> u32 {
+        u32::from(self)
+    }
+}
+
+impl Count for u16 {
+    const LARGEST: u64 = u16::MAX as u64;
+    #[inline(always)]
+    fn narrow(value: u32) -> Self {
+        debug_assert!(u64::from(value) <= Self::LARGEST);
+        value as u16
+    }
+    #[inline(always)]
+    fn widen(self) -> u32 {
+        u32::from(self)
+    }
+}
+
+impl Count for u32 {
+    const LARGEST: u64 = u32::MAX as u64;
+    #[inline(always)]
+    fn narrow(value: u32) -> Self {
+        value
+    }
+    #[inline(always)]
+    fn widen(self) -> u32 {
+        self
+    }
+}
+
+/// The counts of one location over a block of labellings: narrow (u8) or wide (`W`).
+#[derive(Clone, Copy)]
+enum Row<'a, W> {
+    Narrow(&'a [u8]),
+    Wide(&'a [W]),
+}
+
+impl<'a, W: Count> Row<'a, W> {
+    fn split_at(self, mid: usize) -> (Self, Self) {
+        match self {
+            Row::Narrow(r) => {
+                let (a, b) = r.split_at(mid);
+                (Row::Narrow(a), Row::Narrow(b))
+            }
+            Row::Wide(r) => {
+                let (a, b) = r.split_at(mid);
+                (Row::Wide(a), Row::Wide(b))
+            }
+        }
+    }
+}
+
+/// The row kernels, with the instruction set chosen once per scan.
+#[derive(Debug, Clone, Copy)]
+struct Kernels {
+    /// Only true when the processor reported AVX2 (set by [`Kernels::detect`] alone).
+    avx2: bool,
+}
+
+impl Kernels {
+    fn detect() -> Self {
+        #[cfg(target_arch = "x86_64")]
+        let avx2 = std::arch::is_x86_feature_detected!("avx2");
+        #[cfg(not(target_arch = "x86_64"))]
+        let avx2 = false;
+        Kernels { avx2 }
+    }
+
+    /// `acc[i] += row[i]`.
+    #[inline(always)]
+    fn add<W: Count>(self, acc: &mut [u32], row: Row<'_, W>) {
+        match row {
+            Row::Narrow(r) => self.add_typed(acc, r),
+            Row::Wide(r) => self.add_typed(acc, r),
+        }
+    }
+
+    #[inline(always)]
+    fn add_typed<T: Count>(self, acc: &mut [u32], row: &[T]) {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: `avx2` is only set when the processor supports AVX2.
+            unsafe { add_avx2(acc, row) };
+            return;
+        }
+        add_portable(acc, row);
+    }
+
+    /// `acc[i] += row[i]`, appending to `out` each `i` whose sum lies outside `[lo, hi]`
+    /// (`lo ≤ hi`).
+    #[inline(always)]
+    fn add_outside<W: Count>(
+        self,
+        acc: &mut [u32],
+        row: Row<'_, W>,
+        (lo, hi): (u32, u32),
+        out: &mut Vec<u32>,
+    ) {
+        match row {
+            Row::Narrow(r) => self.add_outside_typed(acc, r, lo, hi, out),
+            Row::Wide(r) => self.add_outside_typed(acc, r, lo, hi, out),
+        }
+    }
+
+    #[inline(always)]
+    fn add_outside_typed<T: Count>(
+        self,
+        acc: &mut [u32],
+        row: &[T],
+        lo: u32,
+        hi: u32,
+        out: &mut Vec<u32>,
+    ) {
+        #[cfg(target_arch = "x86_64")]
+        if self.avx2 {
+            // SAFETY: `avx2` is only set when the processor supports AVX2.
+            unsafe { add_outside_avx2(acc, row, lo, hi, out) };
+            return;
+        }
+        add_outside_portable(acc, row, lo, hi, 0, out);
+    }
+}
+
+#[inline(always)]
+fn add_portable<T: Count>(acc: &mut [u32], row: &[T]) {
+    for (a, v) in acc.iter_mut().zip(row) {
+        *a += v.widen();
+    }
+}
+
+/// [`Kernels::add_outside`] without explicit vector instructions; positions are offset by
+/// `base`.
+#[inline(always)]
+fn add_outside_portable<T: Count>(
+    acc: &mut [u32],
+    row: &[T],
+    lo: u32,
+    hi: u32,
+    base: u32,
+    out: &mut Vec<u32>,
+) {
+    const LANES: usize = 16;
+    // For lo ≤ hi: c ∉ [lo, hi] ⇔ c − lo (wrapping) > hi − lo, one unsigned compare a lane.
+    let span = hi - lo;
+    let row = &row[..acc.len()];
+    let (acc_chunks, acc_rest) = acc.as_chunks_mut::<LANES>();
+    let (row_chunks, row_rest) = row.as_chunks::<LANES>();
+    for (k, (sums, values)) in acc_chunks.iter_mut().zip(row_chunks).enumerate() {
+        // Add and test every lane (this vectorises), then look closer only on a hit.
+        let mut any = false;
+        for (sum, value) in sums.iter_mut().zip(values) {
+            *sum += value.widen();
+            any |= sum.wrapping_sub(lo) > span;
+        }
+        if any {
+            for (j, sum) in sums.iter().enumerate() {
+                if sum.wrapping_sub(lo) > span {
+                    out.push(base + (k * LANES + j) as u32);
+                }
+            }
+        }
+    }
+    let rest_base = base + (acc_chunks.len() * LANES) as u32;
+    for (j, (sum, value)) in acc_rest.iter_mut().zip(row_rest).enumerate() {
+        *sum += value.widen();
+        if sum.wrapping_sub(lo) > span {
+            out.push(rest_base + j as u32);
+        }
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn add_avx2<T: Count>(acc: &mut [u32], row: &[T]) {
+    add_portable(acc, row);
+}
+
+/// [`Kernels::add_outside`] eight lanes at a time, the lanes outside the band read from a
+/// compare mask.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn add_outside_avx2<T: Count>(acc: &mut [u32], row: &[T], lo: u32, hi: u32, out: &mut Vec<u32>) {
+    use std::arch::x86_64::{
+        __m128i, __m256i, _mm256_add_epi32, _mm256_castsi256_ps, _mm256_cmpgt_epi32,
+        _mm256_cvtepu16_epi32, _mm256_cvtepu8_epi32, _mm256_loadu_si256, _mm256_movemask_ps,
+        _mm256_set1_epi32, _mm256_storeu_si256, _mm256_sub_epi32, _mm256_xor_si256,
+        _mm_loadl_epi64, _mm_loadu_si128,
+    };
+    const LANES: usize = 8;
+    let row = &row[..acc.len()];
+    let vector_lanes = acc.len() / LANES * LANES;
+    let low = _mm256_set1_epi32(lo as i32);
+    // x > span unsigned ⇔ (x ⊕ 2³¹) > (span ⊕ 2³¹) signed.
+    let sign = _mm256_set1_epi32(i32::MIN);
+    let limit = _mm256_set1_epi32(((hi - lo) ^ 0x8000_0000) as i32);
+    for k in (0..vector_lanes).step_by(LANES) {
+        // SAFETY: k + 8 ≤ acc.len() = row.len(), so the loads read (and the store writes) only
+        // inside the slices; all accesses are unaligned. T is u8, u16 or u32 (see `Count`), so
+        // its size names the load: 8 bytes, 16 bytes or 32 bytes from `row[k]`.
+        let mut mask = unsafe {
+            let from = row.as_ptr().add(k);
+            let values: __m256i = match std::mem::size_of::<T>() {
+                1 => _mm256_cvtepu8_epi32(_mm_loadl_epi64(from.cast::<__m128i>())),
+                2 => _mm256_cvtepu16_epi32(_mm_loadu_si128(from.cast::<__m128i>())),
+                _ => _mm256_loadu_si256(from.cast::<__m256i>()),
+            };
+            let slot = acc.as_mut_ptr().add(k).cast::<__m256i>();
+            let sums = _mm256_add_epi32(_mm256_loadu_si256(slot), values);
+            _mm256_storeu_si256(slot, sums);
+            let shifted = _mm256_xor_si256(_mm256_sub_epi32(sums, low), sign);
+            let above = _mm256_cmpgt_epi32(shifted, limit);
+            _mm256_movemask_ps(_mm256_castsi256_ps(above)) as u32
+        };
+        while mask != 0 {
+            out.push(k as u32 + mask.trailing_zeros());
+            mask &= mask - 1;
+        }
+    }
+    add_outside_portable(
+        &mut acc[vector_lanes..],
+        &row[vector_lanes..],
+        lo,
+        hi,
+        vector_lanes as u32,
+        out,
+    );
+}
+
+/// Asks for the cache lines of `row` ahead of their use (a hint; no effect on results).
+#[inline(always)]
+fn prefetch<W>(row: Row<'_, W>) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
+        let (start, bytes) = match row {
+            Row::Narrow(r) => (r.as_ptr().cast::<i8>(), std::mem::size_of_val(r)),
+            Row::Wide(r) => (r.as_ptr().cast::<i8>(), std::mem::size_of_val(r)),
+        };
+        for offset in (0..bytes).step_by(64) {
+            // SAFETY: a prefetch never faults, and `offset` stays inside `row`.
+            unsafe { _mm_prefetch::<_MM_HINT_T0>(start.add(offset)) };
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = row;
+}
+
+/// How many neighbours ahead a row is prefetched: enough to cover a miss to memory while the
+/// rows in between are added.
+const PREFETCH_AHEAD: usize = 4;
+
+/// Marks a wide row in [`Layout::row_of`].
+const WIDE_ROW: u32 = 1 << 31;
+
+/// Where each location's counts live: narrow rows for the locations whose counts fit in a byte,
+/// wide rows for the rest, each kind in the order of a Hilbert curve through the locations.
+struct Layout {
+    /// Per location: its row, with [`WIDE_ROW`] set for a wide one.
+    row_of: Vec<u32>,
+    /// Locations of the narrow rows, in row order.
+    narrow_at: Vec<u32>,
+    /// Locations of the wide rows, in row order.
+    wide_at: Vec<u32>,
+}
+
+impl Layout {
+    fn new(x: &[f64], y: &[f64], bounds: &[u64]) -> Self {
+        let points: Vec<(f64, f64)> = x.iter().copied().zip(y.iter().copied()).collect();
+        let mut layout = Layout {
+            row_of: vec![0; x.len()],
+            narrow_at: Vec::new(),
+            wide_at: Vec::new(),
+        };
+        for location in hilbert_order(&points) {
+            let i = location as usize;
+            if bounds[i] <= u8::LARGEST {
+                layout.row_of[i] = layout.narrow_at.len() as u32;
+                layout.narrow_at.push(location);
+            } else {
+                layout.row_of[i] = layout.wide_at.len() as u32 | WIDE_ROW;
+                layout.wide_at.push(location);
+            }
+        }
+        layout
+    }
+}
+
 struct Worker {
     acc: Vec<u32>,
     max: Vec<f64>,
@@ -155,6 +486,8 @@ struct Worker {
     generation: u64,
     floor: f64,
     hood: Neighbourhood,
+    rows: Vec<u32>,
+    outside: Vec<u32>,
     best: Vec<(usize, CentreBest)>,
     windows: u64,
 }
@@ -170,12 +503,50 @@ pub fn scan<M: WindowModel, L: Labelling>(
     progress: &(dyn Fn(f64) + Sync),
     stop: &AtomicBool,
 ) -> Result<ScanOutcome, Stopped> {
+    scan_with(setup, model, labelling, progress, stop, Kernels::detect())
+}
+
+/// [`scan`] with the row kernels given.
+fn scan_with<M: WindowModel, L: Labelling>(
+    setup: &ScanSetup<'_>,
+    model: &M,
+    labelling: &L,
+    progress: &(dyn Fn(f64) + Sync),
+    stop: &AtomicBool,
+    kernels: Kernels,
+) -> Result<ScanOutcome, Stopped> {
+    let bounds = labelling.count_bounds(setup.x.len());
+    let layout = Layout::new(setup.x, setup.y, &bounds);
+    let widest = layout
+        .wide_at
+        .iter()
+        .map(|&l| bounds[l as usize])
+        .max()
+        .unwrap_or(0);
+    if widest <= u16::LARGEST {
+        scan_stored::<M, L, u16>(setup, model, labelling, &layout, progress, stop, kernels)
+    } else {
+        scan_stored::<M, L, u32>(setup, model, labelling, &layout, progress, stop, kernels)
+    }
+}
+
+/// The scan with wide rows stored as `W`.
+fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
+    setup: &ScanSetup<'_>,
+    model: &M,
+    labelling: &L,
+    layout: &Layout,
+    progress: &(dyn Fn(f64) + Sync),
+    stop: &AtomicBool,
+    kernels: Kernels,
+) -> Result<ScanOutcome, Stopped> {
     let width = M::WIDTH;
-    let locations = setup.x.len();
     let labellings = setup.replicates + 1;
-    let per_labelling = (locations * width * 4).max(1);
+    let per_labelling =
+        ((layout.narrow_at.len() + layout.wide_at.len() * std::mem::size_of::<W>()) * width).max(1);
     let block = (setup.block_bytes / per_labelling).clamp(1, labellings);
     let index = GridIndex::new(setup.x, setup.y);
+    let centre_order = hilbert_order(setup.centres);
     let mut outcome = ScanOutcome {
         best: vec![None; setup.centres.len()],
         replicate_max: vec![0.0; setup.replicates],
@@ -187,14 +558,20 @@ pub fn scan<M: WindowModel, L: Labelling>(
     for b in 0..blocks {
         let first = b * block;
         let used = block.min(labellings - first);
-        let counts = block_counts(labelling, locations, width, first, used);
+        let (narrow, wide) = block_counts::<L, W>(labelling, layout, width, first, used);
         if stop.load(Ordering::Relaxed) {
             return Err(Stopped);
         }
-        let merged = setup
-            .centres
+        let table = Table {
+            narrow: &narrow,
+            wide: &wide,
+            row_of: &layout.row_of,
+            used,
+            has_observed: first == 0,
+            kernels,
+        };
+        let merged = centre_order
             .par_chunks(8)
-            .enumerate()
             .fold(
                 || Worker {
                     acc: vec![0; used * width],
@@ -203,23 +580,23 @@ pub fn scan<M: WindowModel, L: Labelling>(
                     generation: 0,
                     floor: f64::NAN,
                     hood: Neighbourhood::default(),
+                    rows: Vec::new(),
+                    outside: Vec::new(),
                     best: Vec::new(),
                     windows: 0,
                 },
-                |mut worker, (chunk_index, chunk)| {
+                |mut worker, chunk| {
                     if stop.load(Ordering::Relaxed) {
                         return worker;
                     }
-                    for (offset, &(cx, cy)) in chunk.iter().enumerate() {
-                        let centre = chunk_index * 8 + offset;
+                    for &centre in chunk {
+                        let (cx, cy) = setup.centres[centre as usize];
                         scan_centre(
                             setup,
                             model,
                             &index,
-                            &counts,
-                            used,
-                            first == 0,
-                            centre,
+                            &table,
+                            centre as usize,
                             cx,
                             cy,
                             &mut worker,
@@ -261,16 +638,47 @@ pub fn scan<M: WindowModel, L: Labelling>(
     Ok(outcome)
 }
 
-/// Counts of labellings `first…first+used` in location-major layout: `[location][labelling][k]`.
-fn block_counts<L: Labelling>(
+/// The counts of one block of labellings and how to find a location's row.
+struct Table<'a, W> {
+    /// Narrow rows `[row][labelling][k]`.
+    narrow: &'a [u8],
+    /// Wide rows `[row][labelling][k]`.
+    wide: &'a [W],
+    /// Row of each location ([`Layout::row_of`]).
+    row_of: &'a [u32],
+    /// Labellings in the block.
+    used: usize,
+    /// Whether labelling 0 (the observed data) is the block's first.
+    has_observed: bool,
+    kernels: Kernels,
+}
+
+impl<W> Table<'_, W> {
+    /// The row numbered `row` (as in [`Layout::row_of`]).
+    #[inline(always)]
+    fn row(&self, row: u32, stride: usize) -> Row<'_, W> {
+        if row & WIDE_ROW == 0 {
+            let at = row as usize * stride;
+            Row::Narrow(&self.narrow[at..at + stride])
+        } else {
+            let at = (row & !WIDE_ROW) as usize * stride;
+            Row::Wide(&self.wide[at..at + stride])
+        }
+    }
+}
+
+/// Counts of labellings `first…first+used`, as narrow and wide rows (`[row][labelling][k]`).
+fn block_counts<L: Labelling, W: Count>(
     labelling: &L,
-    locations: usize,
+    layout: &Layout,
     width: usize,
     first: usize,
     used: usize,
-) -> Vec<u32> {
+) -> (Vec<u8>, Vec<W>) {
+    let locations = layout.row_of.len();
     let stride = used * width;
-    let mut counts = vec![0u32; locations * stride];
+    let mut narrow = vec![0u8; layout.narrow_at.len() * stride];
+    let mut wide = vec![W::default(); layout.wide_at.len() * stride];
     // A few labellings at a time in parallel, then scattered into place in parallel.
     let batch = rayon::current_num_threads().max(1) * 4;
     let mut start = 0;
@@ -284,36 +692,62 @@ fn block_counts<L: Labelling>(
                 column
             })
             .collect();
-        counts
-            .par_chunks_mut(stride.max(1))
-            .enumerate()
-            .for_each(|(location, row)| {
-                for (j, column) in columns.iter().enumerate() {
-                    let r = start + j;
-                    row[r * width..(r + 1) * width]
-                        .copy_from_slice(&column[location * width..(location + 1) * width]);
-                }
-            });
+        scatter(
+            &columns,
+            &layout.narrow_at,
+            width,
+            start,
+            stride,
+            &mut narrow,
+        );
+        scatter(&columns, &layout.wide_at, width, start, stride, &mut wide);
         start = end;
     }
-    counts
+    (narrow, wide)
+}
+
+/// Copies labellings `start…` (one column each, location-major) into the rows of the locations
+/// `at`.
+fn scatter<T: Count>(
+    columns: &[Vec<u32>],
+    at: &[u32],
+    width: usize,
+    start: usize,
+    stride: usize,
+    rows: &mut [T],
+) {
+    rows.par_chunks_mut(stride.max(1))
+        .zip(at.par_iter())
+        .for_each(|(row, &location)| {
+            let from = location as usize * width;
+            for (j, column) in columns.iter().enumerate() {
+                let r = start + j;
+                for (cell, &value) in row[r * width..(r + 1) * width]
+                    .iter_mut()
+                    .zip(&column[from..from + width])
+                {
+                    *cell = T::narrow(value);
+                }
+            }
+        });
 }
 
 #[allow(clippy::too_many_arguments)]
 #[inline(never)]
-fn scan_centre<M: WindowModel>(
+fn scan_centre<M: WindowModel, W: Count>(
     setup: &ScanSetup<'_>,
     model: &M,
     index: &GridIndex,
-    counts: &[u32],
-    used: usize,
-    has_observed: bool,
+    table: &Table<'_, W>,
     centre: usize,
     cx: f64,
     cy: f64,
     worker: &mut Worker,
 ) {
     let width = M::WIDTH;
+    let used = table.used;
+    let has_observed = table.has_observed;
+    let kernels = table.kernels;
     let stride = used * width;
     worker
         .hood
@@ -341,57 +775,31 @@ fn scan_centre<M: WindowModel>(
         band_cache,
         generation,
         hood,
+        rows,
+        outside,
         windows,
         ..
     } = worker;
+    rows.clear();
+    rows.extend(hood.order.iter().map(|&l| table.row_of[l as usize]));
+    let row_at = |row: u32| table.row(row, stride);
+    for &row in rows.iter().take(PREFETCH_AHEAD) {
+        prefetch(row_at(row));
+    }
+    // Labellings 0…split−1 are never skipped (the observed data, in the first block).
+    let split = first_random.min(used);
     for (step, &location) in hood.order.iter().enumerate() {
-        let row = &counts[location as usize * stride..(location as usize + 1) * stride];
-        let closes = hood.closes_window[step];
-        // The smallest and largest count over the random labellings, taken in the same pass
-        // as the sums (both vectorise): a window whose counts all lie inside the band is
-        // skipped for every labelling at once.
-        let (mut low_seen, mut high_seen) = (u32::MAX, 0u32);
-        if width == 1 && closes {
-            let split = first_random.min(used);
-            for (a, v) in acc[..split].iter_mut().zip(&row[..split]) {
-                *a += *v;
-            }
-            for (a, v) in acc[split..].iter_mut().zip(&row[split..]) {
-                *a += *v;
-                low_seen = low_seen.min(*a);
-                high_seen = high_seen.max(*a);
-            }
-        } else {
-            for (a, v) in acc.iter_mut().zip(row) {
-                *a += *v;
-            }
+        if let Some(&ahead) = rows.get(step + PREFETCH_AHEAD) {
+            prefetch(row_at(ahead));
         }
+        let row = row_at(rows[step]);
         size += setup.weight[location as usize];
-        if !closes {
+        if !hood.closes_window[step] {
+            kernels.add(acc, row);
             continue;
         }
         *windows += 1;
         let window = model.window(size);
-        if has_observed {
-            let (llr, side) = model.llr(&window, &acc[..width]);
-            if llr > 0.0 && best.is_none_or(|b| llr > b.llr) {
-                let mut inside = [0u32; ORDINAL_CLASSES];
-                inside[..width].copy_from_slice(&acc[..width]);
-                best = Some(CentreBest {
-                    llr,
-                    side,
-                    locations: step + 1,
-                    size,
-                    radius_m: hood.distance_m[step],
-                    next_distance_m: hood
-                        .distance_m
-                        .get(step + 1)
-                        .copied()
-                        .unwrap_or(hood.next_distance_m),
-                    inside,
-                });
-            }
-        }
         let band = if width == 1 {
             match model.band_key(&window) {
                 Some(key) => {
@@ -414,20 +822,58 @@ fn scan_centre<M: WindowModel>(
         } else {
             None
         };
-        match band {
-            Some((lo, hi)) if low_seen >= lo && high_seen <= hi => {}
+        // With a band, the pass that adds the row also picks out the random labellings whose
+        // count leaves it; those inside cannot raise their maximum and are skipped.
+        let nonempty_band = band.filter(|(lo, hi)| lo <= hi);
+        match nonempty_band {
             Some((lo, hi)) => {
-                for r in first_random..used {
-                    let c = acc[r];
-                    if c < lo || c > hi {
-                        let (llr, _) = model.llr(&window, &acc[r..r + 1]);
-                        if llr > max[r] {
-                            max[r] = llr;
-                        }
+                let (observed, random) = row.split_at(split);
+                kernels.add(&mut acc[..split], observed);
+                outside.clear();
+                kernels.add_outside(&mut acc[split..], random, (lo, hi), outside);
+            }
+            None => kernels.add(acc, row),
+        }
+        if has_observed {
+            let (llr, side) = model.llr(&window, &acc[..width]);
+            if llr > 0.0 && best.is_none_or(|b| llr > b.llr) {
+                let mut inside = [0u32; ORDINAL_CLASSES];
+                inside[..width].copy_from_slice(&acc[..width]);
+                best = Some(CentreBest {
+                    llr,
+                    side,
+                    locations: step + 1,
+                    size,
+                    radius_m: hood.distance_m[step],
+                    next_distance_m: hood
+                        .distance_m
+                        .get(step + 1)
+                        .copied()
+                        .unwrap_or(hood.next_distance_m),
+                    inside,
+                });
+            }
+        }
+        match (band, nonempty_band) {
+            (_, Some(_)) => {
+                for &offset in outside.iter() {
+                    let r = split + offset as usize;
+                    let (llr, _) = model.llr(&window, &acc[r..r + 1]);
+                    if llr > max[r] {
+                        max[r] = llr;
                     }
                 }
             }
-            None => {
+            (Some(_), None) => {
+                // An empty band: every labelling may beat the floor.
+                for r in first_random..used {
+                    let (llr, _) = model.llr(&window, &acc[r..r + 1]);
+                    if llr > max[r] {
+                        max[r] = llr;
+                    }
+                }
+            }
+            (None, _) => {
                 for r in first_random..used {
                     let (llr, _) = model.llr(&window, &acc[r * width..(r + 1) * width]);
                     if llr > max[r] {
@@ -445,7 +891,7 @@ fn scan_centre<M: WindowModel>(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::models::{Bernoulli, Direction, Ordinal};
+    use crate::models::{Bernoulli, Direction, Ordinal, Poisson};
 
     /// Every window of every centre, evaluated without pruning, for one labelling.
     fn brute_max<M: WindowModel>(setup: &ScanSetup<'_>, model: &M, counts: &[u32]) -> f64 {
@@ -577,6 +1023,283 @@ mod tests {
             let mut column = vec![0u32; x.len() * 3];
             labels.fill(r, &mut column);
             assert_eq!(out.replicate_max[r - 1], brute_max(&setup, &model, &column));
+        }
+    }
+
+    /// The scan done the plain way: labelling by labelling, centres in input order, counts as
+    /// u32 in input numbering, every window scored.
+    fn straightforward<M: WindowModel, L: Labelling>(
+        setup: &ScanSetup<'_>,
+        model: &M,
+        labelling: &L,
+    ) -> ScanOutcome {
+        let width = M::WIDTH;
+        let index = GridIndex::new(setup.x, setup.y);
+        let mut hood = Neighbourhood::default();
+        let mut out = ScanOutcome {
+            best: vec![None; setup.centres.len()],
+            replicate_max: vec![0.0; setup.replicates],
+            windows: 0,
+        };
+        for r in 0..=setup.replicates {
+            let mut counts = vec![0u32; setup.x.len() * width];
+            labelling.fill(r, &mut counts);
+            for (centre, &(cx, cy)) in setup.centres.iter().enumerate() {
+                hood.fill(&index, setup.x, setup.y, setup.weight, cx, cy, setup.limits);
+                let mut inside = [0u32; ORDINAL_CLASSES];
+                let mut size = 0.0;
+                for (step, &l) in hood.order.iter().enumerate() {
+                    for k in 0..width {
+                        inside[k] += counts[l as usize * width + k];
+                    }
+                    size += setup.weight[l as usize];
+                    if !hood.closes_window[step] {
+                        continue;
+                    }
+                    let (llr, side) = model.llr(&model.window(size), &inside[..width]);
+                    if r > 0 {
+                        out.replicate_max[r - 1] = out.replicate_max[r - 1].max(llr);
+                        continue;
+                    }
+                    out.windows += 1;
+                    if llr > 0.0 && out.best[centre].is_none_or(|b| llr > b.llr) {
+                        out.best[centre] = Some(CentreBest {
+                            llr,
+                            side,
+                            locations: step + 1,
+                            size,
+                            radius_m: hood.distance_m[step],
+                            next_distance_m: hood
+                                .distance_m
+                                .get(step + 1)
+                                .copied()
+                                .unwrap_or(hood.next_distance_m),
+                            inside,
+                        });
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    /// Runs [`scan_with`] with every kernel set and on one and two threads, and checks each
+    /// against [`straightforward`], exactly.
+    fn assert_same_as_straightforward<M: WindowModel, L: Labelling>(
+        setup: &ScanSetup<'_>,
+        model: &M,
+        labelling: &L,
+    ) {
+        let expected = straightforward(setup, model, labelling);
+        assert!(expected.best.iter().any(Option::is_some));
+        let stop = AtomicBool::new(false);
+        for kernels in [Kernels::detect(), Kernels { avx2: false }] {
+            for threads in [1, 2] {
+                let pool = rayon::ThreadPoolBuilder::new()
+                    .num_threads(threads)
+                    .build()
+                    .expect("pool");
+                let got = pool
+                    .install(|| scan_with(setup, model, labelling, &|_| {}, &stop, kernels))
+                    .expect("scan");
+                assert_eq!(got.replicate_max, expected.replicate_max, "{kernels:?}");
+                assert_eq!(got.best, expected.best, "{kernels:?}");
+                assert_eq!(got.windows, expected.windows);
+            }
+        }
+    }
+
+    /// Locations on a 16 × 16 grid of integer coordinates (so many share a place or a distance),
+    /// 1–5 records each, and 300 records on location 7 and 256 on location 30: more than a byte
+    /// holds, so those two get wide rows.
+    fn crowded(seed: u64) -> (Vec<f64>, Vec<f64>, Vec<u32>) {
+        use rand::SeedableRng;
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let n = 260;
+        let x: Vec<f64> = (0..n)
+            .map(|_| f64::from(rng.random_range(0..16u32)))
+            .collect();
+        let y: Vec<f64> = (0..n)
+            .map(|_| f64::from(rng.random_range(0..16u32)))
+            .collect();
+        let mut of_point = Vec::new();
+        for location in 0..n as u32 {
+            let records = match location {
+                7 => 300,
+                30 => 256,
+                _ => rng.random_range(1..6),
+            };
+            of_point.extend(std::iter::repeat_n(location, records));
+        }
+        (x, y, of_point)
+    }
+
+    #[test]
+    fn curve_order_and_narrow_rows_give_the_straightforward_results() {
+        use rand::SeedableRng;
+        let (x, y, of_point) = crowded(21);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(22);
+        let binary: Vec<u8> = of_point
+            .iter()
+            .map(|_| u8::from(rng.random::<f64>() < 0.3))
+            .collect();
+        let classes: Vec<u8> = of_point.iter().map(|_| rng.random_range(0..3u8)).collect();
+        let mut weight = vec![0.0; x.len()];
+        for &l in &of_point {
+            weight[l as usize] += 1.0;
+        }
+        let total = of_point.len() as f64;
+        // Centres on the locations and off them.
+        let mut centres: Vec<(f64, f64)> = x.iter().copied().zip(y.iter().copied()).collect();
+        centres.extend((0..40).map(|i| (f64::from(i % 8) * 2.1, f64::from(i / 8) * 3.3)));
+        let labels = PointLabels {
+            of_point: &of_point,
+            labels: &binary,
+            width: 1,
+            seed: 5,
+        };
+        let layout = Layout::new(&x, &y, &labels.count_bounds(x.len()));
+        assert_eq!(layout.wide_at.len(), 2, "locations 7 and 30 need wide rows");
+        let cases = binary.iter().filter(|&&b| b == 1).count() as u64;
+        for (direction, share, max_radius_m, block_bytes) in [
+            (Direction::High, 0.1, f64::INFINITY, 1 << 20),
+            // Small blocks: several passes, the observed data in the first only.
+            (Direction::Both, 0.3, f64::INFINITY, 300 * 5),
+            (Direction::Low, 0.2, 4.5, 1 << 20),
+        ] {
+            let setup = ScanSetup {
+                x: &x,
+                y: &y,
+                weight: &weight,
+                centres: &centres,
+                limits: WindowLimits {
+                    max_weight: share * total,
+                    max_radius_m,
+                },
+                replicates: 15,
+                block_bytes,
+            };
+            let model = Bernoulli::new(of_point.len() as u64, cases, direction);
+            assert_same_as_straightforward(&setup, &model, &labels);
+        }
+        // Ordinal: three counts a location, no band.
+        let setup = ScanSetup {
+            x: &x,
+            y: &y,
+            weight: &weight,
+            centres: &centres,
+            limits: WindowLimits {
+                max_weight: 0.25 * total,
+                max_radius_m: f64::INFINITY,
+            },
+            replicates: 7,
+            block_bytes: 1 << 20,
+        };
+        let mut totals = [0u64; 3];
+        for &c in &classes {
+            totals[c as usize] += 1;
+        }
+        let labels = PointLabels {
+            of_point: &of_point,
+            labels: &classes,
+            width: 3,
+            seed: 6,
+        };
+        assert_same_as_straightforward(&setup, &Ordinal::new(totals, Direction::Both), &labels);
+    }
+
+    #[test]
+    fn poisson_areas_give_the_straightforward_results_with_any_row_width() {
+        use rand::SeedableRng;
+        let (x, y, _) = crowded(31);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(32);
+        let population: Vec<f64> = x.iter().map(|_| rng.random_range(5.0..500.0)).collect();
+        let centres: Vec<(f64, f64)> = x.iter().copied().zip(y.iter().copied()).collect();
+        // A random relabelling may put every case on one area, so the total decides the rows:
+        // at most 255 cases (bytes), a few hundred (u16) and over 65,535 (u32).
+        for (share_with_case, most, rows) in [(0.4, 1u32, 1usize), (1.0, 4, 2), (1.0, 600, 4)] {
+            let cases: Vec<u32> = x
+                .iter()
+                .map(|_| {
+                    if rng.random::<f64>() < share_with_case {
+                        rng.random_range(1..=most)
+                    } else {
+                        0
+                    }
+                })
+                .collect();
+            let total_cases: u64 = cases.iter().map(|&c| u64::from(c)).sum();
+            let row_bytes = match total_cases {
+                0..=255 => 1,
+                256..=65_535 => 2,
+                _ => 4,
+            };
+            assert_eq!(row_bytes, rows, "{total_cases} cases");
+            let total_population: f64 = population.iter().sum();
+            // Real-valued expected counts: the window sizes are sums in neighbour order.
+            let expected: Vec<f64> = population
+                .iter()
+                .map(|p| p * total_cases as f64 / total_population)
+                .collect();
+            let cumulative: Vec<f64> = expected
+                .iter()
+                .scan(0.0, |s, e| {
+                    *s += e;
+                    Some(*s)
+                })
+                .collect();
+            let labelling = AreaCases {
+                cases: &cases,
+                cumulative_expected: &cumulative,
+                seed: 8,
+            };
+            let setup = ScanSetup {
+                x: &x,
+                y: &y,
+                weight: &expected,
+                centres: &centres,
+                limits: WindowLimits {
+                    max_weight: 0.2 * total_cases as f64,
+                    max_radius_m: f64::INFINITY,
+                },
+                replicates: 5,
+                block_bytes: 1 << 20,
+            };
+            let model = Poisson::new(total_cases, Direction::Both);
+            assert_same_as_straightforward(&setup, &model, &labelling);
+        }
+    }
+
+    #[test]
+    fn row_kernels_agree_with_plain_loops() {
+        use rand::SeedableRng;
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(41);
+        fn check<T: Count>(kernels: Kernels, rng: &mut rand_chacha::ChaCha8Rng, top: u32) {
+            for len in 0..45 {
+                let start: Vec<u32> = (0..len).map(|_| rng.random_range(0..40u32)).collect();
+                let row: Vec<T> = (0..len)
+                    .map(|_| T::narrow(rng.random_range(0..=top)))
+                    .collect();
+                let sums: Vec<u32> = start.iter().zip(&row).map(|(a, v)| a + v.widen()).collect();
+                let mut acc = start.clone();
+                kernels.add_typed(&mut acc, &row);
+                assert_eq!(acc, sums);
+                for (lo, hi) in [(0, 0), (3, 20), (20, 20), (0, u32::MAX), (40, top + 40)] {
+                    let mut acc = start.clone();
+                    let mut out = Vec::new();
+                    kernels.add_outside_typed(&mut acc, &row, lo, hi, &mut out);
+                    assert_eq!(acc, sums);
+                    let expected: Vec<u32> = (0..len as u32)
+                        .filter(|&i| sums[i as usize] < lo || sums[i as usize] > hi)
+                        .collect();
+                    assert_eq!(out, expected, "{len} {lo} {hi}");
+                }
+            }
+        }
+        for kernels in [Kernels::detect(), Kernels { avx2: false }] {
+            check::<u8>(kernels, &mut rng, 255);
+            check::<u16>(kernels, &mut rng, 65_535);
+            check::<u32>(kernels, &mut rng, 1 << 30);
         }
     }
 

@@ -73,6 +73,59 @@ fn max(v: &[f64]) -> f64 {
     v.iter().copied().fold(f64::NEG_INFINITY, f64::max)
 }
 
+/// Indices of `points` in the order in which a Hilbert curve over their bounding square visits
+/// them (Hilbert 1891, Math. Ann. 38:459–460), ties by index. Points close along the curve are close in space, so work done in this order keeps
+/// what neighbouring points share in the caches. Coordinates are snapped to a 2¹⁶ × 2¹⁶ grid.
+pub fn hilbert_order(points: &[(f64, f64)]) -> Vec<u32> {
+    const SIDE: u32 = 1 << 16;
+    let (mut x0, mut y0) = (f64::INFINITY, f64::INFINITY);
+    let (mut x1, mut y1) = (f64::NEG_INFINITY, f64::NEG_INFINITY);
+    for &(px, py) in points {
+        x0 = x0.min(px);
+        y0 = y0.min(py);
+        x1 = x1.max(px);
+        y1 = y1.max(py);
+    }
+    let extent = (x1 - x0).max(y1 - y0);
+    // One scale for both axes keeps the curve's cells square.
+    let scale = if extent.is_finite() && extent > 0.0 {
+        f64::from(SIDE - 1) / extent
+    } else {
+        0.0
+    };
+    // `as` saturates (NaN to 0), so every snapped coordinate lies on the grid.
+    let snap = |v: f64, v0: f64| (((v - v0) * scale) as u32).min(SIDE - 1);
+    let mut keyed: Vec<(u64, u32)> = points
+        .iter()
+        .enumerate()
+        .map(|(i, &(px, py))| (hilbert_index(snap(px, x0), snap(py, y0), SIDE), i as u32))
+        .collect();
+    keyed.sort_unstable();
+    keyed.into_iter().map(|(_, i)| i).collect()
+}
+
+/// Position of cell (`x`, `y`) along the Hilbert curve over a `side` × `side` grid (`side` a
+/// power of two).
+fn hilbert_index(mut x: u32, mut y: u32, side: u32) -> u64 {
+    let mut index = 0u64;
+    let mut s = side / 2;
+    while s > 0 {
+        let rx = u32::from(x & s > 0);
+        let ry = u32::from(y & s > 0);
+        index += u64::from(s) * u64::from(s) * u64::from((3 * rx) ^ ry);
+        // Rotate the quadrant so that the curve inside it starts where the parent's enters.
+        if ry == 0 {
+            if rx == 1 {
+                x = side - 1 - x;
+                y = side - 1 - y;
+            }
+            std::mem::swap(&mut x, &mut y);
+        }
+        s /= 2;
+    }
+    index
+}
+
 /// A uniform grid over the locations (compressed rows: the locations of each cell).
 #[derive(Debug, Clone)]
 pub struct GridIndex {
@@ -348,6 +401,32 @@ mod tests {
         assert_eq!(loc.of_point, vec![0, 1, 0, 2]);
         let loc = merge_locations(&[0.0], &[0.0]);
         assert_eq!(loc.of_point, vec![0]);
+    }
+
+    #[test]
+    fn hilbert_curve_visits_a_grid_in_unit_steps() {
+        // On a 2^k × 2^k grid the curve is a path: consecutive cells share an edge.
+        let side = 8u32;
+        let mut cells: Vec<(u64, u32, u32)> = (0..side)
+            .flat_map(|x| (0..side).map(move |y| (hilbert_index(x, y, side), x, y)))
+            .collect();
+        cells.sort_unstable();
+        for (i, pair) in cells.windows(2).enumerate() {
+            assert_eq!(pair[0].0, i as u64);
+            let step = pair[0].1.abs_diff(pair[1].1) + pair[0].2.abs_diff(pair[1].2);
+            assert_eq!(step, 1, "{pair:?}");
+        }
+        // The order is a permutation, ties (equal points) by index, and copes with one point.
+        let points = [(5.0, 5.0), (0.0, 0.0), (5.0, 5.0), (10.0, 0.0), (0.0, 10.0)];
+        let order = hilbert_order(&points);
+        let mut sorted = order.clone();
+        sorted.sort_unstable();
+        assert_eq!(sorted, vec![0, 1, 2, 3, 4]);
+        let first = order.iter().position(|&i| i == 0).expect("present");
+        assert_eq!(order[first + 1], 2);
+        assert_eq!(order[0], 1, "the curve starts at the south-west corner");
+        assert_eq!(hilbert_order(&[(3.0, 4.0)]), vec![0]);
+        assert!(hilbert_order(&[]).is_empty());
     }
 
     #[test]
