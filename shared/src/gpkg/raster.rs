@@ -1,8 +1,14 @@
 //! Float32 surfaces as GeoPackage tiled gridded coverage (OGC 17-066r1), TIFF tiles, nodata −9999.
+//!
+//! GDAL's GeoPackage driver creates each coverage's table and system rows (tile matrix set and
+//! matrices, coverage ancillary row, extensions, spatial reference system); the tiles are then
+//! encoded in parallel as uncompressed single-band Float32 TIFFs (the `tiff` crate) and inserted
+//! with SQLite, with the per-tile statistics of the tile ancillary table. GDAL's own LZW tiles
+//! of kernel surfaces come out larger than the raw floats and take most of a run's write time.
 
 use std::path::Path;
 
-use gdal::raster::{Buffer, RasterCreationOptions};
+use gdal::raster::RasterCreationOptions;
 use gdal::spatial_ref::SpatialRef;
 use gdal::{Dataset, DriverManager};
 
@@ -75,17 +81,123 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
                 "surface '{name}': nodata value was not stored"
             )));
         }
-        let data: Vec<f32> = surface
-            .values
-            .iter()
-            .map(|v| if v.is_finite() { *v } else { NODATA })
-            .collect();
-        let mut buffer = Buffer::new((grid.cols, grid.rows), data);
-        band.write((0, 0), (grid.cols, grid.rows), &mut buffer)
-            .map_err(Error::gdal(ctx()))?;
     }
     dataset.close().map_err(Error::gdal(ctx()))?;
-    Ok(())
+    let connection = rusqlite::Connection::open(path).map_err(Error::sqlite(ctx()))?;
+    write_tiles(&connection, name, surface).map_err(Error::sqlite(ctx()))
+}
+
+/// Side of a tile in cells (GDAL's `BLOCKSIZE`).
+const TILE: usize = 256;
+
+/// Encodes and inserts the tiles of `surface` into the empty coverage table `name` that GDAL
+/// created: at the finest zoom level, placed by the tile matrix set's origin; tiles with no
+/// data are left out (readers fill them with nodata, as GDAL does when it writes).
+fn write_tiles(
+    connection: &rusqlite::Connection,
+    name: &str,
+    surface: &Surface<'_>,
+) -> rusqlite::Result<()> {
+    use rayon::prelude::*;
+    let grid = surface.grid;
+    let (set_min_x, set_max_y): (f64, f64) = connection.query_row(
+        "SELECT min_x, max_y FROM gpkg_tile_matrix_set WHERE lower(table_name) = lower(?1)",
+        [name],
+        |r| Ok((r.get(0)?, r.get(1)?)),
+    )?;
+    let (zoom, matrix_width, matrix_height, tile_width, tile_height): (i64, i64, i64, i64, i64) =
+        connection.query_row(
+            "SELECT zoom_level, matrix_width, matrix_height, tile_width, tile_height FROM gpkg_tile_matrix
+             WHERE lower(table_name) = lower(?1) ORDER BY zoom_level DESC LIMIT 1",
+            [name],
+            |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)),
+        )?;
+    if tile_width != TILE as i64 || tile_height != TILE as i64 {
+        return Err(rusqlite::Error::UserFunctionError(
+            format!("unexpected tile size {tile_width}×{tile_height}").into(),
+        ));
+    }
+    // Cell (0, 0) of the grid sits this many cells right of and below the matrix origin.
+    let (x0, y0) = (grid.x_min, grid.y_max());
+    let offset_col = ((x0 - set_min_x) / grid.cell_m).round() as i64;
+    let offset_row = ((set_max_y - y0) / grid.cell_m).round() as i64;
+    let tiles: Vec<(i64, i64)> = (0..matrix_height)
+        .flat_map(|r| (0..matrix_width).map(move |c| (c, r)))
+        .filter(|&(c, r)| {
+            let first_col = c * TILE as i64 - offset_col;
+            let first_row = r * TILE as i64 - offset_row;
+            first_col < grid.cols as i64
+                && first_row < grid.rows as i64
+                && first_col + TILE as i64 > 0
+                && first_row + TILE as i64 > 0
+        })
+        .collect();
+    type Encoded = (i64, i64, Vec<u8>, [f64; 4]);
+    let encoded: Vec<Option<Encoded>> = tiles
+        .par_iter()
+        .map(|&(c, r)| {
+            let mut cells = vec![NODATA; TILE * TILE];
+            let (mut n, mut sum, mut sum2) = (0u64, 0.0f64, 0.0f64);
+            let (mut low, mut high) = (f64::INFINITY, f64::NEG_INFINITY);
+            for tr in 0..TILE {
+                let row = r * TILE as i64 + tr as i64 - offset_row;
+                if row < 0 || row >= grid.rows as i64 {
+                    continue;
+                }
+                for tc in 0..TILE {
+                    let col = c * TILE as i64 + tc as i64 - offset_col;
+                    if col < 0 || col >= grid.cols as i64 {
+                        continue;
+                    }
+                    let v = surface.values[row as usize * grid.cols + col as usize];
+                    if v.is_finite() && v != NODATA {
+                        cells[tr * TILE + tc] = v;
+                        let v = f64::from(v);
+                        n += 1;
+                        sum += v;
+                        sum2 += v * v;
+                        low = low.min(v);
+                        high = high.max(v);
+                    }
+                }
+            }
+            if n == 0 {
+                return Ok(None);
+            }
+            let mean = sum / n as f64;
+            let std_dev = (sum2 / n as f64 - mean * mean).max(0.0).sqrt();
+            let mut bytes = std::io::Cursor::new(Vec::with_capacity(TILE * TILE * 4 + 512));
+            tiff::encoder::TiffEncoder::new(&mut bytes)
+                .and_then(|mut e| {
+                    e.write_image::<tiff::encoder::colortype::Gray32Float>(
+                        TILE as u32,
+                        TILE as u32,
+                        &cells,
+                    )
+                })
+                .map_err(|e| rusqlite::Error::UserFunctionError(e.to_string().into()))?;
+            Ok(Some((c, r, bytes.into_inner(), [low, high, mean, std_dev])))
+        })
+        .collect::<rusqlite::Result<_>>()?;
+    connection.execute_batch("BEGIN")?;
+    {
+        let mut tile = connection.prepare(&format!(
+            "INSERT INTO {} (zoom_level, tile_column, tile_row, tile_data) VALUES (?1, ?2, ?3, ?4)",
+            super::quote_identifier(name)
+        ))?;
+        let mut ancillary = connection.prepare(
+            "INSERT INTO gpkg_2d_gridded_tile_ancillary (tpudt_name, tpudt_id, scale, offset, min, max, mean, std_dev)
+             VALUES (?1, ?2, 1.0, 0.0, ?3, ?4, ?5, ?6)",
+        )?;
+        for (c, r, bytes, stats) in encoded.into_iter().flatten() {
+            tile.execute(rusqlite::params![zoom, c, r, bytes])?;
+            let id = connection.last_insert_rowid();
+            ancillary.execute(rusqlite::params![
+                name, id, stats[0], stats[1], stats[2], stats[3]
+            ])?;
+        }
+    }
+    connection.execute_batch("COMMIT")
 }
 
 /// A surface read back: its grid, values (nodata as NaN) and WKT of its CRS.

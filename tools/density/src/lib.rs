@@ -256,6 +256,7 @@ impl Tool for Density {
         }
         let layer = read::read_points(&input, layer_arg.as_deref(), &wants, crs_arg.as_deref())?;
         run.note_input_layer(&layer.layer);
+        run.debug(format!("read {} points", layer.x.len()));
         let bad_field = |field: &str, message: String| Error::BadField {
             path: input.clone(),
             layer: layer.layer.clone(),
@@ -1024,6 +1025,7 @@ fn write(
             quantity,
         },
     )?;
+    run.debug(format!("wrote surface '{name}'"));
     run.check_interrupted()?;
     Ok(if max.is_finite() { max } else { 0.0 })
 }
