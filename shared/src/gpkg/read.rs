@@ -281,65 +281,76 @@ pub fn read_points(
         sql.push_str(", ");
         sql.push_str(&q(s));
     }
-    sql.push_str(&format!(" FROM {}", q(&layer)));
-    let mut statement = connection.prepare(&sql).map_err(|e| bad(e.to_string()))?;
-    let mut rows = statement.query([]).map_err(|e| bad(e.to_string()))?;
-
-    let mut fids = Vec::new();
-    let (mut x, mut y) = (Vec::new(), Vec::new());
-    let mut builders: Vec<ColumnBuilder> = fields
-        .iter()
-        .map(|(_, want)| ColumnBuilder::new(*want))
+    sql.push_str(&format!(
+        " FROM {} WHERE {pk} >= ?1 AND {pk} <= ?2",
+        q(&layer),
+        pk = q(&primary_key)
+    ));
+    // Large layers are read in fid ranges on parallel connections (SQLite decodes rows on one
+    // core per connection); the parts are joined in fid order, so the result is the same.
+    let (low, high): (Option<i64>, Option<i64>) = connection
+        .query_row(
+            &format!(
+                "SELECT min({pk}), max({pk}) FROM {}",
+                q(&layer),
+                pk = q(&primary_key)
+            ),
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .map_err(|e| bad(e.to_string()))?;
+    let (low, high) = (low.unwrap_or(0), high.unwrap_or(-1));
+    let span = (high as i128 - low as i128 + 1).max(0);
+    let parts: i128 = if span > 200_000 {
+        rayon::current_num_threads().clamp(1, 4) as i128
+    } else {
+        1
+    };
+    let ranges: Vec<(i64, i64)> = (0..parts)
+        .map(|k| {
+            let a = low as i128 + span * k / parts;
+            let b = low as i128 + span * (k + 1) / parts - 1;
+            (a as i64, b as i64)
+        })
         .collect();
-    while let Some(row) = rows.next().map_err(|e| bad(e.to_string()))? {
-        let fid: i64 = row.get(0).map_err(|e| bad(e.to_string()))?;
-        let geometry = row.get_ref(1).map_err(|e| bad(e.to_string()))?;
-        let point = match geometry {
-            ValueRef::Null => {
-                return Err(bad(format!(
-                    "feature {fid} has no geometry (NULL); every record needs a point"
-                )))
-            }
-            ValueRef::Blob(b) => decode_point(b),
-            _ => PointBlob::Invalid,
-        };
-        match point {
-            PointBlob::Point(px, py) if px.is_finite() && py.is_finite() => {
-                x.push(px);
-                y.push(py);
-            }
-            PointBlob::Point(..) => {
-                return Err(bad(format!(
-                    "feature {fid} has a non-finite coordinate (NaN or infinity)"
-                )))
-            }
-            PointBlob::Empty => {
-                return Err(bad(format!(
-                    "feature {fid} has an empty geometry; every record needs a point"
-                )))
-            }
-            PointBlob::Other(code) => {
-                return Err(bad(format!(
-                    "feature {fid} is not a point (WKB type {code}); expected points"
-                )))
-            }
-            PointBlob::Invalid => {
-                return Err(bad(format!(
-                    "feature {fid} has an unreadable geometry blob"
-                )))
-            }
-        }
-        fids.push(fid);
-        for (i, builder) in builders.iter_mut().enumerate() {
-            let value = row.get_ref(i + 2).map_err(|e| bad(e.to_string()))?;
-            builder.push(value).map_err(|message| Error::BadField {
-                path: path.to_owned(),
-                layer: layer.clone(),
-                field: selected[i].clone(),
-                message: format!("feature {fid}: {message}"),
-            })?;
-        }
+    let bad_field = |i: usize, fid: i64, message: String| Error::BadField {
+        path: path.to_owned(),
+        layer: layer.clone(),
+        field: selected[i].clone(),
+        message: format!("feature {fid}: {message}"),
+    };
+    let mut pieces: Vec<Result<PointRows>> = if parts == 1 {
+        vec![read_point_rows(
+            &connection,
+            &sql,
+            ranges[0],
+            fields,
+            &bad,
+            &bad_field,
+        )]
+    } else {
+        use rayon::prelude::*;
+        ranges
+            .par_iter()
+            .map(|range| {
+                let own = super::open_sqlite_read(path)?;
+                read_point_rows(&own, &sql, *range, fields, &bad, &bad_field)
+            })
+            .collect()
+    };
+    let mut whole = match pieces.is_empty() {
+        true => PointRows::new(fields),
+        false => pieces.remove(0)?,
+    };
+    for piece in pieces {
+        whole.append(piece?);
     }
+    let PointRows {
+        fids,
+        mut x,
+        mut y,
+        builders,
+    } = whole;
     if fids.is_empty() {
         return Err(bad("has no features".into()));
     }
@@ -369,6 +380,101 @@ pub fn read_points(
         srs,
         source_srs,
     })
+}
+
+/// Rows of a point layer as read, before projection.
+struct PointRows {
+    fids: Vec<i64>,
+    x: Vec<f64>,
+    y: Vec<f64>,
+    builders: Vec<ColumnBuilder>,
+}
+
+impl PointRows {
+    fn new(fields: &[(&str, FieldWant)]) -> Self {
+        PointRows {
+            fids: Vec::new(),
+            x: Vec::new(),
+            y: Vec::new(),
+            builders: fields
+                .iter()
+                .map(|(_, want)| ColumnBuilder::new(*want))
+                .collect(),
+        }
+    }
+
+    /// Appends the rows of `later` (which follow these in fid order).
+    fn append(&mut self, later: PointRows) {
+        self.fids.extend(later.fids);
+        self.x.extend(later.x);
+        self.y.extend(later.y);
+        for (mine, theirs) in self.builders.iter_mut().zip(later.builders) {
+            mine.append(theirs);
+        }
+    }
+}
+
+/// Reads and checks the rows with fid in `range` of the prepared point query `sql`.
+fn read_point_rows(
+    connection: &rusqlite::Connection,
+    sql: &str,
+    range: (i64, i64),
+    fields: &[(&str, FieldWant)],
+    bad: &dyn Fn(String) -> Error,
+    bad_field: &dyn Fn(usize, i64, String) -> Error,
+) -> Result<PointRows> {
+    let mut statement = connection.prepare(sql).map_err(|e| bad(e.to_string()))?;
+    let mut rows = statement
+        .query([range.0, range.1])
+        .map_err(|e| bad(e.to_string()))?;
+    let mut out = PointRows::new(fields);
+    while let Some(row) = rows.next().map_err(|e| bad(e.to_string()))? {
+        let fid: i64 = row.get(0).map_err(|e| bad(e.to_string()))?;
+        let geometry = row.get_ref(1).map_err(|e| bad(e.to_string()))?;
+        let point = match geometry {
+            ValueRef::Null => {
+                return Err(bad(format!(
+                    "feature {fid} has no geometry (NULL); every record needs a point"
+                )))
+            }
+            ValueRef::Blob(b) => decode_point(b),
+            _ => PointBlob::Invalid,
+        };
+        match point {
+            PointBlob::Point(px, py) if px.is_finite() && py.is_finite() => {
+                out.x.push(px);
+                out.y.push(py);
+            }
+            PointBlob::Point(..) => {
+                return Err(bad(format!(
+                    "feature {fid} has a non-finite coordinate (NaN or infinity)"
+                )))
+            }
+            PointBlob::Empty => {
+                return Err(bad(format!(
+                    "feature {fid} has an empty geometry; every record needs a point"
+                )))
+            }
+            PointBlob::Other(code) => {
+                return Err(bad(format!(
+                    "feature {fid} is not a point (WKB type {code}); expected points"
+                )))
+            }
+            PointBlob::Invalid => {
+                return Err(bad(format!(
+                    "feature {fid} has an unreadable geometry blob"
+                )))
+            }
+        }
+        out.fids.push(fid);
+        for (i, builder) in out.builders.iter_mut().enumerate() {
+            let value = row.get_ref(i + 2).map_err(|e| bad(e.to_string()))?;
+            builder
+                .push(value)
+                .map_err(|message| bad_field(i, fid, message))?;
+        }
+    }
+    Ok(out)
 }
 
 enum ColumnBuilder {
@@ -431,6 +537,38 @@ impl ColumnBuilder {
             }),
         }
         Ok(())
+    }
+
+    /// Appends a builder of the same kind filled from later rows; text codes are renumbered
+    /// so that values stay in order of first appearance.
+    fn append(&mut self, later: ColumnBuilder) {
+        match (self, later) {
+            (ColumnBuilder::Text(column, index), ColumnBuilder::Text(theirs, _)) => {
+                let map: Vec<u32> = theirs
+                    .values
+                    .into_iter()
+                    .map(|value| match index.get(&value) {
+                        Some(code) => *code,
+                        None => {
+                            let code = column.values.len() as u32;
+                            column.values.push(value.clone());
+                            index.insert(value, code);
+                            code
+                        }
+                    })
+                    .collect();
+                column.codes.extend(theirs.codes.into_iter().map(|c| {
+                    if c == TextColumn::NULL {
+                        c
+                    } else {
+                        map[c as usize]
+                    }
+                }));
+            }
+            (ColumnBuilder::Real(mine), ColumnBuilder::Real(theirs)) => mine.extend(theirs),
+            (ColumnBuilder::DateTime(mine), ColumnBuilder::DateTime(theirs)) => mine.extend(theirs),
+            _ => unreachable!("builders of one field share a kind"),
+        }
     }
 
     fn finish(self) -> Column {
