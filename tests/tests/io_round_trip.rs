@@ -564,7 +564,7 @@ fn large_point_layers_read_in_parallel_ranges_exactly() {
         match i % 7 {
             0 => None,
             // A value that appears only in the last range.
-            _ if i > 240_000 && i % 5 == 0 => Some("late".into()),
+            _ if i > 240_000 && i.is_multiple_of(5) => Some("late".into()),
             k => Some(["oppose", "neutral", "support"][k % 3].to_owned()),
         }
     };
