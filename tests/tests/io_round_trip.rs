@@ -604,3 +604,45 @@ fn large_point_layers_read_in_parallel_ranges_exactly() {
     assert_eq!(stance.values.last().map(String::as_str), Some("late"));
     assert_eq!(stance.values.len(), 4);
 }
+
+/// Two runs write layers in two different custom (non-EPSG) CRSs into one file: the second
+/// CRS gets a new srs_id in the output, and its geometry blobs must carry that id as well
+/// (OGC 12-128r18 requirement 20: a blob's srs_id is its column's). `.ci/validate-all` runs
+/// GDAL's validator on this file in `make test`.
+#[test]
+fn merged_layers_in_a_renumbered_crs_carry_the_new_srs_id_in_their_blobs() {
+    let dir = out_dir("io_srs_merge");
+    let path = dir.join("two_crs.gpkg");
+    let _ = std::fs::remove_file(&path);
+    for (layer, lon) in [("first", -140.0), ("second", -120.0)] {
+        let srs = crs::parse(&format!(
+            "+proj=laea +lat_0=35 +lon_0={lon} +x_0=0 +y_0=0 +datum=WGS84 +units=m +no_defs"
+        ))
+        .expect("custom LAEA");
+        let mut staging = Staging::new(&path, false).expect("staging");
+        let mut writer = staging
+            .create_vector(layer, GeometryKind::Point, Some(&srs), &[])
+            .expect("layer");
+        writer.add(Shape::Point(1.0, 2.0), &[]).expect("add");
+        writer.finish().expect("finish");
+        publish(staging);
+    }
+    let ids = rows(
+        &path,
+        "SELECT table_name, srs_id FROM gpkg_geometry_columns ORDER BY table_name",
+    );
+    assert_ne!(ids[0][1], ids[1][1], "two CRSs, two ids: {ids:?}");
+    for row in &ids {
+        let blob_srs = rows(
+            &path,
+            &format!("SELECT hex(substr(geom, 5, 4)) FROM \"{}\"", row[0]),
+        );
+        let id: i32 = row[1].parse().expect("srs_id");
+        let expected: String = id
+            .to_le_bytes()
+            .iter()
+            .map(|b| format!("{b:02X}"))
+            .collect();
+        assert_eq!(blob_srs[0][0], expected, "layer {}", row[0]);
+    }
+}

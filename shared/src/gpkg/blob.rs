@@ -266,7 +266,7 @@ pub fn set_srs_id(blob: &mut [u8], srs_id: i32) {
 
 /// Registers `ST_MinX`, `ST_MaxX`, `ST_MinY`, `ST_MaxY` and `ST_IsEmpty` on a connection, as
 /// the GeoPackage R-tree extension requires of any writer (§F.3): the triggers GDAL creates on
-/// feature tables call them.
+/// feature tables call them. Also `stance_set_srs(blob, srs_id)` (see [`set_srs_id`]).
 ///
 /// # Errors
 /// SQLite failures.
@@ -287,6 +287,16 @@ pub fn register_functions(connection: &rusqlite::Connection) -> rusqlite::Result
     connection.create_scalar_function("ST_MaxX", 1, flags, bound(1))?;
     connection.create_scalar_function("ST_MinY", 1, flags, bound(2))?;
     connection.create_scalar_function("ST_MaxY", 1, flags, bound(3))?;
+    // The toolbox's own: a blob with its header srs_id replaced (layers merged into a file that
+    // numbers their spatial reference system differently).
+    connection.create_scalar_function("stance_set_srs", 2, flags, |ctx| {
+        let Some(blob) = ctx.get_raw(0).as_blob_or_null()? else {
+            return Ok(None);
+        };
+        let mut blob = blob.to_vec();
+        set_srs_id(&mut blob, ctx.get::<i32>(1)?);
+        Ok(Some(blob))
+    })?;
     connection.create_scalar_function("ST_IsEmpty", 1, flags, |ctx| {
         let Some(blob) = ctx.get_raw(0).as_blob_or_null()? else {
             return Ok(None);

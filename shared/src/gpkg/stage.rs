@@ -1107,6 +1107,7 @@ fn merge(
     };
     let mut connection = Connection::open(target).map_err(sql)?;
     connection.busy_timeout(BUSY_TIMEOUT).map_err(sql)?;
+    super::blob::register_functions(&connection).map_err(sql)?;
     connection
         .execute("ATTACH DATABASE ?1 AS staged", [staged.to_string_lossy()])
         .map_err(sql)?;
@@ -1390,6 +1391,26 @@ fn copy_layer(
         &format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(name)),
         [],
     )?;
+    // Geometry blobs carry the srs_id too (OGC 12-128r18 req. 20); renumber them with the layer.
+    let geometry: Option<(String, i64)> = tx
+        .query_row(
+            "SELECT column_name, srs_id FROM staged.gpkg_geometry_columns WHERE table_name = ?1",
+            [name],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .optional()?;
+    if let Some((column, old)) = geometry {
+        if let Some(new) = srs_map.get(&old).filter(|new| **new != old) {
+            tx.execute(
+                &format!(
+                    "UPDATE main.{0} SET {1} = stance_set_srs({1}, ?1)",
+                    q(name),
+                    q(&column)
+                ),
+                [new],
+            )?;
+        }
+    }
     let sequence: Option<i64> = tx
         .query_row(
             "SELECT seq FROM staged.sqlite_sequence WHERE name = ?1",
