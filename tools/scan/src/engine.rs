@@ -246,18 +246,25 @@ impl<'a, W: Count> Row<'a, W> {
 
 /// The row kernels, with the instruction set chosen once per scan.
 #[derive(Debug, Clone, Copy)]
+// Elsewhere than on x86-64 only the portable kernels exist.
+#[cfg_attr(not(target_arch = "x86_64"), allow(dead_code))]
 struct Kernels {
     /// Only true when the processor reported AVX2 (set by [`Kernels::detect`] alone).
     avx2: bool,
+    /// Only true when the processor reported AVX-512F (set by [`Kernels::detect`] alone).
+    avx512: bool,
 }
 
 impl Kernels {
     fn detect() -> Self {
         #[cfg(target_arch = "x86_64")]
-        let avx2 = std::arch::is_x86_feature_detected!("avx2");
+        let (avx2, avx512) = (
+            std::arch::is_x86_feature_detected!("avx2"),
+            std::arch::is_x86_feature_detected!("avx512f"),
+        );
         #[cfg(not(target_arch = "x86_64"))]
-        let avx2 = false;
-        Kernels { avx2 }
+        let (avx2, avx512) = (false, false);
+        Kernels { avx2, avx512 }
     }
 
     /// `acc[i] += row[i]`.
@@ -306,6 +313,12 @@ impl Kernels {
         out: &mut Vec<u32>,
     ) {
         #[cfg(target_arch = "x86_64")]
+        if self.avx512 {
+            // SAFETY: `avx512` is only set when the processor supports AVX-512F.
+            unsafe { add_outside_avx512(acc, row, lo, hi, out) };
+            return;
+        }
+        #[cfg(target_arch = "x86_64")]
         if self.avx2 {
             // SAFETY: `avx2` is only set when the processor supports AVX2.
             unsafe { add_outside_avx2(acc, row, lo, hi, out) };
@@ -333,32 +346,24 @@ fn add_outside_portable<T: Count>(
     base: u32,
     out: &mut Vec<u32>,
 ) {
-    const LANES: usize = 16;
+    // Runtime-length loops, which the compiler vectorises (fixed-length ones it unrolls into
+    // scalar code): add the whole row, count the lanes outside the band a stretch at a time,
+    // and look lane by lane only in a stretch with a hit.
+    const STRETCH: usize = 64;
+    add_portable(acc, row);
     // For lo ≤ hi: c ∉ [lo, hi] ⇔ c − lo (wrapping) > hi − lo, one unsigned compare a lane.
     let span = hi - lo;
-    let row = &row[..acc.len()];
-    let (acc_chunks, acc_rest) = acc.as_chunks_mut::<LANES>();
-    let (row_chunks, row_rest) = row.as_chunks::<LANES>();
-    for (k, (sums, values)) in acc_chunks.iter_mut().zip(row_chunks).enumerate() {
-        // Add and test every lane (this vectorises), then look closer only on a hit.
-        let mut any = false;
-        for (sum, value) in sums.iter_mut().zip(values) {
-            *sum += value.widen();
-            any |= sum.wrapping_sub(lo) > span;
-        }
-        if any {
+    for (k, sums) in acc.chunks(STRETCH).enumerate() {
+        let hits = sums
+            .iter()
+            .filter(|sum| sum.wrapping_sub(lo) > span)
+            .count();
+        if hits > 0 {
             for (j, sum) in sums.iter().enumerate() {
                 if sum.wrapping_sub(lo) > span {
-                    out.push(base + (k * LANES + j) as u32);
+                    out.push(base + (k * STRETCH + j) as u32);
                 }
             }
-        }
-    }
-    let rest_base = base + (acc_chunks.len() * LANES) as u32;
-    for (j, (sum, value)) in acc_rest.iter_mut().zip(row_rest).enumerate() {
-        *sum += value.widen();
-        if sum.wrapping_sub(lo) > span {
-            out.push(rest_base + j as u32);
         }
     }
 }
@@ -404,6 +409,52 @@ fn add_outside_avx2<T: Count>(acc: &mut [u32], row: &[T], lo: u32, hi: u32, out:
             let shifted = _mm256_xor_si256(_mm256_sub_epi32(sums, low), sign);
             let above = _mm256_cmpgt_epi32(shifted, limit);
             _mm256_movemask_ps(_mm256_castsi256_ps(above)) as u32
+        };
+        while mask != 0 {
+            out.push(k as u32 + mask.trailing_zeros());
+            mask &= mask - 1;
+        }
+    }
+    add_outside_portable(
+        &mut acc[vector_lanes..],
+        &row[vector_lanes..],
+        lo,
+        hi,
+        vector_lanes as u32,
+        out,
+    );
+}
+
+/// [`Kernels::add_outside`] sixteen lanes at a time, the lanes outside the band read from an
+/// unsigned compare mask.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn add_outside_avx512<T: Count>(acc: &mut [u32], row: &[T], lo: u32, hi: u32, out: &mut Vec<u32>) {
+    use std::arch::x86_64::{
+        __m128i, __m256i, __m512i, _mm256_loadu_si256, _mm512_add_epi32, _mm512_cmpgt_epu32_mask,
+        _mm512_cvtepu16_epi32, _mm512_cvtepu8_epi32, _mm512_loadu_si512, _mm512_set1_epi32,
+        _mm512_storeu_si512, _mm512_sub_epi32, _mm_loadu_si128,
+    };
+    const LANES: usize = 16;
+    let row = &row[..acc.len()];
+    let vector_lanes = acc.len() / LANES * LANES;
+    let low = _mm512_set1_epi32(lo as i32);
+    let span = _mm512_set1_epi32((hi - lo) as i32);
+    for k in (0..vector_lanes).step_by(LANES) {
+        // SAFETY: k + 16 ≤ acc.len() = row.len(), so the loads read (and the store writes) only
+        // inside the slices; all accesses are unaligned. T is u8, u16 or u32 (see `Count`), so
+        // its size names the load: 16, 32 or 64 bytes from `row[k]`.
+        let mut mask = unsafe {
+            let from = row.as_ptr().add(k);
+            let values: __m512i = match std::mem::size_of::<T>() {
+                1 => _mm512_cvtepu8_epi32(_mm_loadu_si128(from.cast::<__m128i>())),
+                2 => _mm512_cvtepu16_epi32(_mm256_loadu_si256(from.cast::<__m256i>())),
+                _ => _mm512_loadu_si512(from.cast::<__m512i>()),
+            };
+            let slot = acc.as_mut_ptr().add(k).cast::<__m512i>();
+            let sums = _mm512_add_epi32(_mm512_loadu_si512(slot), values);
+            _mm512_storeu_si512(slot, sums);
+            u32::from(_mm512_cmpgt_epu32_mask(_mm512_sub_epi32(sums, low), span))
         };
         while mask != 0 {
             out.push(k as u32 + mask.trailing_zeros());
@@ -1026,6 +1077,25 @@ mod tests {
         }
     }
 
+    /// Every kernel set this processor can run.
+    fn kernel_sets() -> Vec<Kernels> {
+        let found = Kernels::detect();
+        let mut sets = vec![Kernels {
+            avx2: false,
+            avx512: false,
+        }];
+        if found.avx2 {
+            sets.push(Kernels {
+                avx2: true,
+                avx512: false,
+            });
+        }
+        if found.avx512 {
+            sets.push(found);
+        }
+        sets
+    }
+
     /// The scan done the plain way: labelling by labelling, centres in input order, counts as
     /// u32 in input numbering, every window scored.
     fn straightforward<M: WindowModel, L: Labelling>(
@@ -1093,7 +1163,7 @@ mod tests {
         let expected = straightforward(setup, model, labelling);
         assert!(expected.best.iter().any(Option::is_some));
         let stop = AtomicBool::new(false);
-        for kernels in [Kernels::detect(), Kernels { avx2: false }] {
+        for kernels in kernel_sets() {
             for threads in [1, 2] {
                 let pool = rayon::ThreadPoolBuilder::new()
                     .num_threads(threads)
@@ -1296,7 +1366,7 @@ mod tests {
                 }
             }
         }
-        for kernels in [Kernels::detect(), Kernels { avx2: false }] {
+        for kernels in kernel_sets() {
             check::<u8>(kernels, &mut rng, 255);
             check::<u16>(kernels, &mut rng, 65_535);
             check::<u32>(kernels, &mut rng, 1 << 30);
