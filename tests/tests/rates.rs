@@ -382,3 +382,107 @@ fn a_surface_is_joined_to_the_districts() {
         "{centres} vs {weighted}"
     );
 }
+
+/// An area whose ring crosses itself (a "bow tie") is not a valid polygon under the OGC
+/// simple-features rules (the `geo` crate's validation implements them): the run still rates
+/// every area but warns in one line naming the feature, and counts it in the summary. A valid
+/// square beside it is not reported.
+#[test]
+fn invalid_areas_are_reported_by_feature() {
+    use stance_core::gpkg::crs;
+    use stance_core::gpkg::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Shape, Staging};
+    let dir = out_dir("rates_invalid");
+    let areas = dir.join("areas.gpkg");
+    let _ = std::fs::remove_file(&areas);
+    let srs = crs::parse("EPSG:32610").expect("UTM");
+    let mut staging = Staging::new(&areas, false).expect("staging");
+    let fields = [
+        FieldDef::new("e", FieldKind::Integer),
+        FieldDef::new("b", FieldKind::Integer),
+    ];
+    let mut writer = staging
+        .create_vector("areas", GeometryKind::MultiPolygon, Some(&srs), &fields)
+        .expect("layer");
+    let ring = |points: &[(f64, f64)]| geo_types::Polygon::new(points.to_vec().into(), vec![]);
+    let shapes = [
+        ring(&[
+            (0.0, 0.0),
+            (10.0, 0.0),
+            (10.0, 10.0),
+            (0.0, 10.0),
+            (0.0, 0.0),
+        ]),
+        // Bow tie: 10,0 → 20,10 → 20,0 → 10,10 → 10,0; its first and third edges cross at (15, 5).
+        ring(&[
+            (10.0, 0.0),
+            (20.0, 10.0),
+            (20.0, 0.0),
+            (10.0, 10.0),
+            (10.0, 0.0),
+        ]),
+        ring(&[
+            (20.0, 0.0),
+            (30.0, 0.0),
+            (30.0, 10.0),
+            (20.0, 10.0),
+            (20.0, 0.0),
+        ]),
+    ];
+    for (k, shape) in shapes.iter().enumerate() {
+        writer
+            .add(
+                Shape::Polygon(shape),
+                &[FieldData::Integer(k as i64 + 1), FieldData::Integer(10)],
+            )
+            .expect("add");
+    }
+    writer.finish().expect("finish");
+    staging
+        .publish(
+            &stance_core::gpkg::Provenance {
+                tool: "test".into(),
+                version: "0".into(),
+                parameters: serde_json::json!({}),
+                inputs: vec![],
+                seed: 0,
+                started_at: "2026-01-01T00:00:00Z".into(),
+                run_time_s: 0.0,
+                results: serde_json::json!({}),
+            },
+            &std::sync::atomic::AtomicBool::new(false),
+        )
+        .expect("publish");
+    let ran = run_in(
+        &dir,
+        "stance-rates",
+        &[
+            "--input",
+            "areas.gpkg",
+            "--areas",
+            "areas",
+            "--events-field",
+            "e",
+            "--base-field",
+            "b",
+            "--output",
+            "o.gpkg",
+        ],
+    );
+    let summary = ran.ok();
+    assert_eq!(summary["results"]["invalid_areas"], 1);
+    let warnings: Vec<&str> = ran
+        .stderr
+        .lines()
+        .filter(|l| l.contains("not valid polygons"))
+        .collect();
+    assert_eq!(warnings.len(), 1, "{}", ran.stderr);
+    assert!(
+        warnings[0].contains("1 of the 3 areas") && warnings[0].contains("feature 2"),
+        "{}",
+        warnings[0]
+    );
+    assert_eq!(
+        rows(&dir.join("o.gpkg"), "SELECT count(*) FROM rates")[0][0],
+        "3"
+    );
+}

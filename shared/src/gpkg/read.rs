@@ -687,3 +687,23 @@ pub fn read_polygons(path: &Path, layer: Option<&str>, fields: &[&str]) -> Resul
     }
     Ok(out)
 }
+
+/// Features of `layer` whose geometry is not a valid (multi)polygon in the OGC simple-features
+/// sense — self-intersecting or unclosed rings, holes outside their shell, overlapping parts —
+/// with the first reason for each, as the `geo` crate's validation reports it. Point-in-polygon
+/// answers on such shapes depend on the algorithm, so tools that count points in areas warn.
+pub fn invalid_polygons(layer: &PolygonLayer) -> Vec<(i64, String)> {
+    use geo::algorithm::Validation;
+    use rayon::prelude::*;
+    layer
+        .polygons
+        .par_iter()
+        .zip(&layer.fids)
+        .filter_map(|(shape, fid)| {
+            shape
+                .check_validation()
+                .err()
+                .map(|reason| (*fid, reason.to_string()))
+        })
+        .collect()
+}

@@ -466,6 +466,21 @@ impl Run {
         }
     }
 
+    /// Warns (one line) when polygons of `layer` are not valid and returns how many are not;
+    /// `role` names them in the message ("areas", "mask polygons").
+    pub fn warn_invalid_polygons(&self, layer: &gpkg::read::PolygonLayer, role: &str) -> usize {
+        let invalid = gpkg::read::invalid_polygons(layer);
+        if let Some((fid, reason)) = invalid.first() {
+            self.log(format!(
+                "warning: {} of the {} {role} in layer '{}' are not valid polygons (first: feature {fid}: {reason}); points on them may be assigned oddly, so repair them in your GIS",
+                invalid.len(),
+                layer.fids.len(),
+                layer.layer
+            ));
+        }
+        invalid.len()
+    }
+
     /// A log line shown only with `-v`, prefixed with the seconds since the run started (so
     /// `-v` shows where a run spends its time).
     pub fn debug(&self, message: impl AsRef<str>) {

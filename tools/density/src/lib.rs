@@ -388,6 +388,7 @@ impl Tool for Density {
             Some(mask_layer) => {
                 let polygons = read::read_polygons(&input, Some(mask_layer), &[])?;
                 run.note_input_layer(mask_layer);
+                run.warn_invalid_polygons(&polygons, "mask polygons");
                 Some(project_polygons(&polygons.polygons, &polygons.srs, &srs)?)
             }
         };

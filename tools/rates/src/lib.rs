@@ -413,6 +413,7 @@ impl Tool for Rates {
             area_fields.push(field);
         }
         let areas = read::read_polygons(&areas_path, Some(&params.areas), &area_fields)?;
+        let invalid_areas = run.warn_invalid_polygons(&areas, "areas");
         if areas_path == input {
             run.note_input_layer(&areas.layer);
         } else {
@@ -734,6 +735,7 @@ impl Tool for Rates {
         Ok(json!({
             "layer": name,
             "areas": n,
+            "invalid_areas": invalid_areas,
             "event": event_label,
             "base": base_label,
             "model": match model { Model::Poisson => "poisson", Model::Binomial => "binomial" },

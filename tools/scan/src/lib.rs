@@ -578,6 +578,7 @@ fn read_areas(params: &ScanParams, run: &mut Run, input: &Path) -> Result<Data> 
         &[count_field.as_str(), size_field.as_str()],
     )?;
     run.note_input_layer(&layer.layer);
+    run.warn_invalid_polygons(&layer, "areas");
     let bad = |field: &str, message: String| Error::BadField {
         path: input.to_owned(),
         layer: layer.layer.clone(),
