@@ -644,5 +644,15 @@ fn merged_layers_in_a_renumbered_crs_carry_the_new_srs_id_in_their_blobs() {
             .map(|b| format!("{b:02X}"))
             .collect();
         assert_eq!(blob_srs[0][0], expected, "layer {}", row[0]);
+        // The merged layer's R-tree (its shadow tables copied as they are) passes SQLite's own
+        // consistency check and finds the point.
+        let rtree = format!("rtree_{}_geom", row[0]);
+        let check = rows(&path, &format!("SELECT rtreecheck('{rtree}')"));
+        assert_eq!(check[0][0], "ok", "{rtree}");
+        let found = rows(
+            &path,
+            &format!("SELECT id FROM \"{rtree}\" WHERE minx <= 1.5 AND maxx >= 0.5 AND miny <= 2.5 AND maxy >= 1.5"),
+        );
+        assert_eq!(found, vec![vec!["1".to_owned()]], "{rtree}");
     }
 }

@@ -1437,10 +1437,34 @@ fn copy_layer(
     };
     for (rtree, create) in &rtrees {
         tx.execute_batch(create)?;
-        tx.execute(
-            &format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(rtree)),
-            [],
-        )?;
+        // The R-tree's shadow tables are copied as they are when both files use the same node
+        // size (SQLite derives it from the page size): inserting through the virtual table
+        // would rebuild the tree one row at a time, about 9 µs a row.
+        let node_size = |schema: &str| -> rusqlite::Result<Option<i64>> {
+            tx.query_row(
+                &format!(
+                    "SELECT length(data) FROM {schema}.{} WHERE nodeno = 1",
+                    q(&format!("{rtree}_node"))
+                ),
+                [],
+                |r| r.get(0),
+            )
+            .optional()
+        };
+        let same_nodes = node_size("main")?.is_some() && node_size("main")? == node_size("staged")?;
+        if same_nodes {
+            for suffix in ["_node", "_parent", "_rowid"] {
+                let shadow = q(&format!("{rtree}{suffix}"));
+                tx.execute_batch(&format!(
+                    "DELETE FROM main.{shadow}; INSERT INTO main.{shadow} SELECT * FROM staged.{shadow};"
+                ))?;
+            }
+        } else {
+            tx.execute(
+                &format!("INSERT INTO main.{0} SELECT * FROM staged.{0}", q(rtree)),
+                [],
+            )?;
+        }
     }
     for kind in ["index", "trigger"] {
         let mut s = tx.prepare("SELECT sql FROM staged.sqlite_master WHERE type = ?1 AND tbl_name = ?2 AND sql IS NOT NULL ORDER BY rowid")?;
