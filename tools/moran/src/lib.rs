@@ -188,7 +188,8 @@ impl Tool for Moran {
         expectation, variances under normality and randomisation, z, analytic p and a seeded permutation p; \
         local Moran's I (Anselin 1995) per area on spdep's scale Ii = (z_i/m2) Σ w_ij z_j, m2 = Σz²/n, with its \
         conditional-randomisation expectation, variance and z (Sokal, Oden & Thomson 1998), a \
-        conditional-permutation pseudo p (two-sided: twice the smaller tail, at most 1), adjusted for \
+        conditional-permutation pseudo p (one set of random draws shared by all areas, as in esda; \
+        two-sided: twice the smaller tail, at most 1), adjusted for \
         multiple testing, and a cluster type (high-high, low-low, high-low, low-high by the signs of the \
         centred value and its spatial lag, ≥ 0 counting as high; 'not significant' when the adjusted \
         pseudo p > alpha). Areas without neighbours get NULL statistics and is_island = 1. With \
@@ -564,6 +565,7 @@ impl Tool for Moran {
                 "scale": "spdep: Ii = (z_i / m2) * sum_j w_ij z_j, m2 = sum z^2 / n (esda Is = (n-1)/n * Ii)",
                 "moments": "conditional randomisation, Sokal, Oden & Thomson (1998) eqs. A7-A8",
                 "p_for_clusters": if params.permutations > 0 { "conditional-permutation pseudo p" } else { "analytic p" },
+                "permutation_draws": "shared by all areas (as esda): each draw is an ordered sample of max |N| + 1 other areas, area i takes the first |N(i)| that are not i",
                 "adjust": params.adjust,
                 "alpha": params.alpha,
                 "cluster_counts": counts,
