@@ -39,21 +39,11 @@ fn read_f64(bytes: &[u8], little: bool) -> Option<f64> {
 /// Header: "GP", version, flags (bit 0 byte order, bits 1–3 envelope kind, bit 4 empty),
 /// srs_id, envelope of 0/32/48/48/64 bytes; then WKB (ISO or extended Z/M codes).
 pub fn decode_point(blob: &[u8]) -> PointBlob {
-    if blob.len() < 8 || &blob[..2] != b"GP" {
+    let Some((start, flags)) = header(blob) else {
         return PointBlob::Invalid;
-    }
-    let flags = blob[3];
-    let envelope_len = match (flags >> 1) & 0b111 {
-        0 => 0,
-        1 => 32,
-        2 | 3 => 48,
-        4 => 64,
-        _ => return PointBlob::Invalid,
     };
     let empty = flags & 0b1_0000 != 0;
-    let Some(wkb) = blob.get(8 + envelope_len..) else {
-        return PointBlob::Invalid;
-    };
+    let wkb = &blob[start..];
     let Some(&order) = wkb.first() else {
         return if empty {
             PointBlob::Empty

@@ -386,15 +386,7 @@ impl Staging {
             columns.push(q("geom"));
         }
         columns.extend(fields.iter().map(|f| q(&f.name)));
-        let sql = format!(
-            "INSERT INTO {} ({}) VALUES ({})",
-            q(name),
-            columns.join(", "),
-            (1..=columns.len())
-                .map(|i| format!("?{i}"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        );
+        let sql = insert_statement(name, &columns);
         self.open_sql()?;
         let Staging {
             sql: connection,
@@ -532,15 +524,7 @@ impl Staging {
             columns.push(q("geom"));
         }
         columns.extend(schema.iter().map(|(n, _)| q(n)));
-        let insert_sql = format!(
-            "INSERT INTO {} ({}) VALUES ({})",
-            q(name),
-            columns.join(", "),
-            (1..=columns.len())
-                .map(|i| format!("?{i}"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        );
+        let insert_sql = insert_statement(name, &columns);
         let context = format!("copying layer '{layer}' to '{name}'");
         let connection = self.open_sql()?;
         connection
@@ -786,6 +770,17 @@ fn ogr_type(kind: FieldKind) -> OGRFieldType::Type {
         FieldKind::Text => OGRFieldType::OFTString,
         FieldKind::DateTime => OGRFieldType::OFTDateTime,
     }
+}
+
+/// `INSERT INTO table (columns…) VALUES (?1, ?2, …)` for already quoted column names.
+fn insert_statement(table: &str, columns: &[String]) -> String {
+    let slots: Vec<String> = (1..=columns.len()).map(|i| format!("?{i}")).collect();
+    format!(
+        "INSERT INTO {} ({}) VALUES ({})",
+        q(table),
+        columns.join(", "),
+        slots.join(", ")
+    )
 }
 
 /// A string as an SQL literal.

@@ -184,43 +184,28 @@ trait Count: Copy + Default + Send + Sync + 'static {
     fn widen(self) -> u32;
 }
 
-impl Count for u8 {
-    const LARGEST: u64 = u8::MAX as u64;
-    #[inline(always)]
-    fn narrow(value: u32) -> Self {
-        debug_assert!(u64::from(value) <= Self::LARGEST);
-        value as u8
-    }
-    #[inline(always)]
-    fn widen(self) -> u32 {
-        u32::from(self)
-    }
+/// `Count` for an unsigned type no wider than u32 (the `as` casts are exact: `narrow` is only
+/// given values ≤ `LARGEST`, and widening to u32 is lossless).
+macro_rules! count_type {
+    ($t:ty) => {
+        impl Count for $t {
+            const LARGEST: u64 = <$t>::MAX as u64;
+            #[inline(always)]
+            fn narrow(value: u32) -> Self {
+                debug_assert!(u64::from(value) <= Self::LARGEST);
+                value as $t
+            }
+            #[inline(always)]
+            fn widen(self) -> u32 {
+                u32::from(self)
+            }
+        }
+    };
 }
 
-impl Count for u16 {
-    const LARGEST: u64 = u16::MAX as u64;
-    #[inline(always)]
-    fn narrow(value: u32) -> Self {
-        debug_assert!(u64::from(value) <= Self::LARGEST);
-        value as u16
-    }
-    #[inline(always)]
-    fn widen(self) -> u32 {
-        u32::from(self)
-    }
-}
-
-impl Count for u32 {
-    const LARGEST: u64 = u32::MAX as u64;
-    #[inline(always)]
-    fn narrow(value: u32) -> Self {
-        value
-    }
-    #[inline(always)]
-    fn widen(self) -> u32 {
-        self
-    }
-}
+count_type!(u8);
+count_type!(u16);
+count_type!(u32);
 
 /// The counts of one location over a block of labellings: narrow (u8) or wide (`W`).
 #[derive(Clone, Copy)]
