@@ -116,6 +116,19 @@ pub fn run_in(dir: &Path, name: &str, args: &[&str]) -> Ran {
     }
 }
 
+/// Writes the invented scenario with `points` records and `seed` to `dir/file` through the real
+/// `stance-synth` executable (the fixture most end-to-end tests start from) and returns its
+/// summary; panics if it fails.
+pub fn synth(dir: &Path, file: &str, points: u32, seed: u64) -> Value {
+    let (points, seed) = (points.to_string(), seed.to_string());
+    run_in(
+        dir,
+        "stance-synth",
+        &["--output", file, "--points", &points, "--seed", &seed, "-q"],
+    )
+    .ok()
+}
+
 /// SHA-256 of a file, hex.
 pub fn sha256(path: &Path) -> String {
     let bytes = std::fs::read(path).expect("read file");

@@ -2,19 +2,12 @@
 //! `_diff` and as significant in the tolerance p-values; bad inputs exit 2 with one line.
 
 use stance_core::gpkg::{crs, raster};
-use stance_tests::{out_dir, rows, run_in, tables};
+use stance_tests::{out_dir, rows, run_in, synth, tables};
 
 #[test]
 fn planted_zones_show_in_diff_and_tolerance() {
     let dir = out_dir("density_zones");
-    run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "20000", "--seed", "3", "-q",
-        ],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 20000, 3);
     let summary = run_in(
         &dir,
         "stance-density",
@@ -100,12 +93,7 @@ fn s_path(dir: &std::path::Path) -> std::path::PathBuf {
 #[test]
 fn bad_inputs_exit_2_with_one_line() {
     let dir = out_dir("density_bad");
-    run_in(
-        &dir,
-        "stance-synth",
-        &["--output", "s.gpkg", "--points", "500", "--seed", "4", "-q"],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 500, 4);
     let base = [
         "--input",
         "s.gpkg",

@@ -4,7 +4,7 @@
 use std::path::Path;
 
 use stance_core::gpkg::raster;
-use stance_tests::{out_dir, rows, run_in, tables};
+use stance_tests::{out_dir, rows, run_in, synth, tables};
 
 /// Every layer's rows (vector) or cell values (surfaces), provenance excluded.
 fn contents(path: &Path) -> Vec<(String, Vec<Vec<String>>)> {
@@ -34,21 +34,10 @@ fn contents(path: &Path) -> Vec<(String, Vec<Vec<String>>)> {
         .collect()
 }
 
-fn synth(dir: &Path) {
-    run_in(
-        dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "4000", "--seed", "9", "-q",
-        ],
-    )
-    .ok();
-}
-
 #[test]
 fn density_permutations_do_not_depend_on_threads() {
     let dir = out_dir("determinism_density");
-    synth(&dir);
+    synth(&dir, "s.gpkg", 4000, 9);
     for (file, threads) in [("t1.gpkg", "1"), ("t2.gpkg", "2")] {
         run_in(
             &dir,
@@ -87,7 +76,7 @@ fn density_permutations_do_not_depend_on_threads() {
 #[test]
 fn moran_permutations_do_not_depend_on_threads() {
     let dir = out_dir("determinism_moran");
-    synth(&dir);
+    synth(&dir, "s.gpkg", 4000, 9);
     for (file, threads) in [("t1.gpkg", "1"), ("t2.gpkg", "2")] {
         run_in(
             &dir,

@@ -137,20 +137,7 @@ fn synth_layers_read_back_identically_with_pyogrio() {
         return;
     };
     let dir = stance_tests::out_dir("independent_reader/synth");
-    let summary = stance_tests::run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output",
-            "synth.gpkg",
-            "--points",
-            "2000",
-            "--seed",
-            "7",
-            "-q",
-        ],
-    )
-    .ok();
+    let summary = stance_tests::synth(&dir, "synth.gpkg", 2000, 7);
     let path = dir.join("synth.gpkg");
     let json = read_back(&python, &path);
     let connection = open(&path);

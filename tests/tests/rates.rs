@@ -5,7 +5,7 @@
 use std::path::Path;
 
 use serde_json::Value;
-use stance_tests::{out_dir, provenance, root, rows, run_in, tables};
+use stance_tests::{out_dir, provenance, root, rows, run_in, synth, tables};
 
 /// 1e-9 relative: the bar for analytic values. The output stores f64 and the references
 /// hold 15 significant digits, so the observed agreement is ~1e-14.
@@ -141,14 +141,7 @@ fn nc_sids_counts_on_the_areas_match_spdep_and_esda() {
 #[test]
 fn synth_points_are_counted_once_and_rated_by_district() {
     let dir = out_dir("rates_synth");
-    run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "5000", "--seed", "3", "-q",
-        ],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 5000, 3);
     let summary = run_in(
         &dir,
         "stance-rates",
@@ -260,12 +253,7 @@ fn synth_points_are_counted_once_and_rated_by_district() {
 #[test]
 fn bad_arguments_name_the_problem_and_write_nothing() {
     let dir = out_dir("rates_errors");
-    run_in(
-        &dir,
-        "stance-synth",
-        &["--output", "s.gpkg", "--points", "300", "--seed", "3", "-q"],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 300, 3);
     let base = [
         "--input",
         "s.gpkg",
@@ -315,14 +303,7 @@ fn bad_arguments_name_the_problem_and_write_nothing() {
 #[test]
 fn a_surface_is_joined_to_the_districts() {
     let dir = out_dir("rates_surface");
-    run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "2000", "--seed", "3", "-q",
-        ],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 2000, 3);
     run_in(
         &dir,
         "stance-density",

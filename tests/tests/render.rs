@@ -9,7 +9,7 @@ use stance_core::gpkg::read::read_polygons;
 use stance_core::gpkg::stage::{ExtraColumn, FieldDef, FieldKind, Staging};
 use stance_core::gpkg::{crs, raster, Provenance};
 use stance_core::grid::Grid;
-use stance_tests::{out_dir, run_in, sha256};
+use stance_tests::{out_dir, run_in, sha256, synth};
 
 /// batlow's top colour (Crameri, Scientific colour maps 8.0, last entry of batlow.txt).
 const BATLOW_HIGH: [u8; 3] = [250, 204, 250];
@@ -101,14 +101,7 @@ fn fixture(test: &str) -> PathBuf {
     staging
         .publish(&provenance(), &AtomicBool::new(false))
         .expect("publish");
-    run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "3000", "--seed", "3", "-q",
-        ],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 3000, 3);
     let districts = read_polygons(&path, Some("veldmark_districts"), &[]).expect("districts");
     let clusters: Vec<Option<String>> = districts
         .fids

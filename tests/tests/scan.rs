@@ -4,7 +4,7 @@
 use std::path::Path;
 
 use stance_core::gpkg::crs;
-use stance_tests::{out_dir, rows, run_in, tables};
+use stance_tests::{out_dir, rows, run_in, synth, tables};
 
 /// Planted stance zones of a stance-synth file: (favours, x, y, radius) in the CRS `srs`.
 fn planted_zones(
@@ -119,12 +119,7 @@ fn ordinal_scan_recovers_planted_zones() {
 #[test]
 fn scan_outputs_and_thread_determinism() {
     let dir = out_dir("scan_determinism");
-    run_in(
-        &dir,
-        "stance-synth",
-        &["--output", "s.gpkg", "--points", "800", "--seed", "7", "-q"],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 800, 7);
     let mut outputs = Vec::new();
     for threads in ["1", "2"] {
         let out = format!("t{threads}.gpkg");
@@ -184,14 +179,7 @@ fn poisson_scan_on_areas() {
     // Areas: stance-synth's districts with the count of oppose records in each (spatial join
     // by GDAL's SQLite dialect), population from the districts.
     let dir = out_dir("scan_poisson");
-    run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "3000", "--seed", "5", "-q",
-        ],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 3000, 5);
     let status = std::process::Command::new("ogr2ogr")
         .current_dir(&dir)
         .args([
@@ -241,12 +229,7 @@ fn poisson_scan_on_areas() {
 #[test]
 fn bad_inputs_are_named_and_write_nothing() {
     let dir = out_dir("scan_errors");
-    run_in(
-        &dir,
-        "stance-synth",
-        &["--output", "s.gpkg", "--points", "300", "--seed", "2", "-q"],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 300, 2);
     let base = [
         "--input",
         "s.gpkg",

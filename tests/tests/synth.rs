@@ -1,7 +1,7 @@
 //! stance-synth end to end: the same seed gives identical layers; the planted zones and burst in
 //! the ground-truth layer are where the records show them.
 
-use stance_tests::{out_dir, rows, run_in};
+use stance_tests::{out_dir, rows, run_in, synth};
 
 /// Every layer's rows, geometry blobs as SHA-256 (the provenance records differ by timestamp).
 fn contents(path: &std::path::Path) -> Vec<Vec<Vec<String>>> {
@@ -61,14 +61,7 @@ fn metres(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
 #[test]
 fn planted_zones_and_burst_are_where_the_truth_layer_says() {
     let dir = out_dir("synth_truth");
-    run_in(
-        &dir,
-        "stance-synth",
-        &[
-            "--output", "s.gpkg", "--points", "40000", "--seed", "3", "-q",
-        ],
-    )
-    .ok();
+    synth(&dir, "s.gpkg", 40000, 3);
     let path = dir.join("s.gpkg");
     // Exact coordinates come from the geometry blobs (the R-tree keeps 32-bit floats only).
     let records: Vec<(f64, f64, String, String)> = rows(
