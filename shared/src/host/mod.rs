@@ -206,8 +206,9 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
         extra_inputs: Vec::new(),
         clock,
     };
+    run.progress.phase("reading");
     let results = T::run(params, &mut run)?;
-    run.progress.finish();
+    run.progress.phase("publishing");
     run.debug("tool finished; writing provenance and publishing");
     run.check_interrupted()?;
 
@@ -239,9 +240,11 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
     let Run {
         staging,
         interrupted,
+        progress,
         ..
     } = run;
     let written = staging.publish(&provenance, interrupted.flag())?;
+    progress.finish();
     if verbose {
         eprintln!("[{:7.3} s] published", clock.elapsed().as_secs_f64());
     }
