@@ -1,4 +1,4 @@
-//! Stance classes and the mapping of a field's labels onto them (DESIGN.md, data conventions).
+//! Stance classes and the mapping of a field's labels onto them.
 
 use std::fmt;
 
@@ -118,9 +118,155 @@ impl ClassMap {
     }
 }
 
+/// How a missing (NULL) label is shown in messages, in every tool.
+pub const MISSING_LABEL: &str = "(missing)";
+
+/// `--classes` as given: the user's mapping, or the default recognition when absent.
+///
+/// # Errors
+/// [`crate::Error::Argument`] on `--classes` naming the malformed entry.
+pub fn class_map_option(spec: Option<&str>) -> crate::Result<ClassMap> {
+    match spec {
+        Some(spec) => ClassMap::parse(spec).map_err(|m| crate::Error::argument("--classes", m)),
+        None => Ok(ClassMap::default()),
+    }
+}
+
+/// One stance class named in option `option` (`oppose`, `neutral`, `support` or −1/0/1).
+///
+/// # Errors
+/// [`crate::Error::Argument`] naming the option and the value.
+pub fn parse_class(option: &str, text: &str) -> crate::Result<Stance> {
+    Stance::from_canonical(text).ok_or_else(|| {
+        crate::Error::argument(
+            option,
+            format!(
+                "'{}' is not a stance class; expected oppose, neutral or support",
+                text.trim()
+            ),
+        )
+    })
+}
+
+/// A comma-separated list of classes, or `all`, sorted and without repeats.
+///
+/// # Errors
+/// [`crate::Error::Argument`] for an unknown class or an empty list.
+pub fn parse_class_list(option: &str, text: &str) -> crate::Result<Vec<Stance>> {
+    if text.trim().eq_ignore_ascii_case("all") {
+        return Ok(Stance::ALL.to_vec());
+    }
+    let mut classes = text
+        .split(',')
+        .map(str::trim)
+        .filter(|c| !c.is_empty())
+        .map(|c| parse_class(option, c))
+        .collect::<crate::Result<Vec<_>>>()?;
+    classes.sort();
+    classes.dedup();
+    if classes.is_empty() {
+        return Err(crate::Error::argument(
+            option,
+            "is empty; expected classes such as oppose,support or all",
+        ));
+    }
+    Ok(classes)
+}
+
+/// Classifies a dictionary-encoded label column: the class of every distinct value (by code).
+/// Labels the map does not know, and missing labels, are counted and reported together.
+///
+/// # Errors
+/// The message for the stance field: the unknown values with their counts (at most ten, most
+/// frequent first) and what is recognised.
+pub fn classify_codes(
+    map: &ClassMap,
+    values: &[String],
+    codes: &[u32],
+) -> std::result::Result<Vec<Stance>, String> {
+    let class_of: Vec<Option<Stance>> = values.iter().map(|v| map.classify(v)).collect();
+    let mut unknown: std::collections::BTreeMap<&str, u64> = std::collections::BTreeMap::new();
+    for code in codes {
+        if class_of.get(*code as usize).copied().flatten().is_none() {
+            let label = values
+                .get(*code as usize)
+                .map_or(MISSING_LABEL, String::as_str);
+            *unknown.entry(label).or_default() += 1;
+        }
+    }
+    if unknown.is_empty() {
+        return Ok(class_of
+            .into_iter()
+            .map(|c| c.unwrap_or(Stance::Neutral))
+            .collect());
+    }
+    let mut found: Vec<(&str, u64)> = unknown.into_iter().collect();
+    found.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.cmp(b.0)));
+    let listed: Vec<String> = found
+        .iter()
+        .take(10)
+        .map(|(l, c)| format!("'{l}' ×{c}"))
+        .collect();
+    let more = if found.len() > 10 {
+        format!(" and {} more", found.len() - 10)
+    } else {
+        String::new()
+    };
+    Err(format!(
+        "unknown stance values {}{more}; expected {}; map them with --classes",
+        listed.join(", "),
+        map.describe()
+    ))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_column_is_classified_once_per_distinct_value() {
+        let values = vec!["Support".to_string(), "-1".to_string(), "0".to_string()];
+        let classes = classify_codes(&ClassMap::default(), &values, &[0, 1, 1, 2]).expect("known");
+        assert_eq!(
+            classes,
+            vec![Stance::Support, Stance::Oppose, Stance::Neutral]
+        );
+    }
+
+    #[test]
+    fn unknown_and_missing_labels_are_listed_with_counts_most_frequent_first() {
+        let values = vec!["pro".to_string(), "maybe".to_string(), "oppose".to_string()];
+        let codes = [0, 1, 1, 2, u32::MAX, 1];
+        let message = classify_codes(&ClassMap::default(), &values, &codes).expect_err("unknown");
+        assert!(
+            message.starts_with("unknown stance values 'maybe' ×3, '(missing)' ×1, 'pro' ×1;"),
+            "{message}"
+        );
+        assert!(message.contains("map them with --classes"));
+    }
+
+    #[test]
+    fn class_lists_accept_all_and_refuse_unknown_classes() {
+        assert_eq!(
+            parse_class_list("--at-risk-classes", " all ").expect("all"),
+            Stance::ALL.to_vec()
+        );
+        assert_eq!(
+            parse_class_list("--x", "support, oppose,support").expect("two"),
+            vec![Stance::Oppose, Stance::Support]
+        );
+        let e = parse_class_list("--x", "oppose,maybe").expect_err("unknown");
+        assert!(
+            e.to_string().contains("'maybe' is not a stance class"),
+            "{e}"
+        );
+        assert!(parse_class_list("--x", " , ").is_err());
+        assert!(class_map_option(Some("pro")).is_err());
+        assert_eq!(
+            class_map_option(None).expect("default"),
+            ClassMap::default()
+        );
+    }
 
     #[test]
     fn default_recognition_is_case_insensitive() {

@@ -1,5 +1,5 @@
 //! Same seed, same outputs, whatever `--threads`: every Monte Carlo tool is run with one and two
-//! threads and the layers' contents compared (DESIGN.md, "The contract every tool keeps").
+//! threads and the layers' contents compared (the contract every tool keeps).
 
 use std::path::Path;
 

@@ -1,4 +1,4 @@
-//! The contract every tool keeps (DESIGN.md): `--help`, `--describe`, exit codes, one clear
+//! The contract every tool keeps (DEVELOPERS.md): `--help`, `--describe`, exit codes, one clear
 //! error line, atomic outputs, `--overwrite`, untouched inputs, provenance.
 
 use serde_json::Value;

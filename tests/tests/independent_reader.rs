@@ -273,7 +273,7 @@ fn compare_attributes(connection: &rusqlite::Connection, name: &str, theirs: &Va
                     let ours = std::str::from_utf8(t).expect("UTF-8");
                     let their = their.as_str().unwrap_or_else(|| panic!("{}", context()));
                     if theirs["datetime_as_string"].get(field).is_some() {
-                        // DESIGN.md: date-times are UTC with the `Z` suffix. pyogrio's
+                        // The toolbox writes date-times as UTC with the `Z` suffix. pyogrio's
                         // datetime64 text has no zone; the instant must be the same.
                         let naive = ours.strip_suffix('Z').unwrap_or_else(|| {
                             panic!("{name} fid {fid} {field}: stored '{ours}' lacks the Z suffix")

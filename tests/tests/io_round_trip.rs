@@ -127,7 +127,7 @@ fn points_with_fields_and_utc_times_round_trip_exactly() {
         read_times,
         &times.iter().map(|t| Some(*t)).collect::<Vec<_>>()
     );
-    // Stored as text with the `Z` suffix (UTC), as DESIGN.md requires.
+    // Stored as text with the `Z` suffix (UTC), as the toolbox writes every date-time.
     let stored = rows(&path, "SELECT time_utc FROM pts ORDER BY fid");
     // 1_772_582_767 s = 2026-03-04 (20516 days × 86400 s) + 367 s; GeoPackage DATETIME form.
     assert_eq!(stored[1][0], "2026-03-04T00:06:07.000Z");

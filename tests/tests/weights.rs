@@ -25,7 +25,7 @@ fn lists_from_table(path: &Path, table: &str, n: usize) -> Vec<Vec<u64>> {
     let mut lists = vec![Vec::new(); n];
     for row in rows(
         path,
-        &format!("SELECT focal_id, neighbour_id, weight FROM \"{table}\""),
+        &format!("SELECT area_id, linked_id, weight FROM \"{table}\""),
     ) {
         let focal: usize = row[0].parse().expect("integer id");
         let neighbour: u64 = row[1].parse().expect("integer id");
@@ -98,7 +98,7 @@ fn id_field_islands_and_bad_arguments() {
     .ok();
     let first = rows(
         &dir.join("w.gpkg"),
-        "SELECT focal_id, neighbour_id FROM by_fips ORDER BY fid LIMIT 1",
+        "SELECT area_id, linked_id FROM by_fips ORDER BY fid LIMIT 1",
     );
     assert_eq!(first[0][0], "37009"); // Ashe county, the first feature.
                                       // SID74 repeats values: not usable as ids.

@@ -1,6 +1,7 @@
 //! GeoPackage and CRS I/O (OGC 12-128r18) through GDAL and the system SQLite: the only module
 //! tree of the core that touches files.
 
+pub mod areas;
 pub mod blob;
 pub mod crs;
 pub mod raster;

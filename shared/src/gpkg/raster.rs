@@ -73,8 +73,8 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
         .map_err(Error::gdal(ctx()))?;
     {
         let mut band = dataset.rasterband(1).map_err(Error::gdal(ctx()))?;
-        // GDAL's GeoPackage driver stores the value but may report an error with an empty message
-        // (DESIGN.md); what counts is that the value reads back.
+        // GDAL's GeoPackage driver stores the value but may report an error with an empty
+        // message; what counts is that the value reads back.
         let _ = band.set_no_data_value(Some(f64::from(NODATA)));
         if band.no_data_value() != Some(f64::from(NODATA)) {
             return Err(Error::Failed(format!(

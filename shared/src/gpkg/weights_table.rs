@@ -1,6 +1,6 @@
 //! Spatial weights as a GeoPackage attribute table (OGC 12-128r18, §2.4 attributes): one row
-//! per directed link with `focal_id`, `neighbour_id` and `weight` (1; standardisation is
-//! applied by the tool that uses it), like the "GAL"-style neighbour lists of Anselin (1988).
+//! per directed link with `area_id`, `linked_id` and `weight` (1; standardisation is
+//! applied by the tool that uses it): the neighbour list of Cliff & Ord (1981) in table form.
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -12,10 +12,10 @@ use super::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Shape, Staging,
 use crate::error::{Error, Result};
 use crate::weights::Neighbours;
 
-/// Column of the focal area's id.
-pub const FOCAL_COLUMN: &str = "focal_id";
-/// Column of the neighbour's id.
-pub const NEIGHBOUR_COLUMN: &str = "neighbour_id";
+/// Column of the area whose neighbour the row names.
+pub const AREA_COLUMN: &str = "area_id";
+/// Column of the neighbour (the linked area).
+pub const LINKED_COLUMN: &str = "linked_id";
 /// Column of the weight.
 pub const WEIGHT_COLUMN: &str = "weight";
 
@@ -84,8 +84,8 @@ pub fn write(
         AreaIds::Text(_) => FieldKind::Text,
     };
     let fields = [
-        FieldDef::new(FOCAL_COLUMN, kind),
-        FieldDef::new(NEIGHBOUR_COLUMN, kind),
+        FieldDef::new(AREA_COLUMN, kind),
+        FieldDef::new(LINKED_COLUMN, kind),
         FieldDef::new(WEIGHT_COLUMN, FieldKind::Real),
     ];
     let mut writer = staging.create_vector(name, GeometryKind::None, None, &fields)?;
@@ -173,7 +173,7 @@ pub fn read(path: &Path, table: &str) -> Result<WeightsTable> {
         .query_map([], |r| r.get::<_, String>(1))
         .and_then(|rows| rows.collect())
         .map_err(|e| bad(e.to_string()))?;
-    for wanted in [FOCAL_COLUMN, NEIGHBOUR_COLUMN, WEIGHT_COLUMN] {
+    for wanted in [AREA_COLUMN, LINKED_COLUMN, WEIGHT_COLUMN] {
         if !columns.iter().any(|c| c.eq_ignore_ascii_case(wanted)) {
             return Err(Error::FieldNotFound {
                 path: path.to_owned(),
@@ -189,8 +189,8 @@ pub fn read(path: &Path, table: &str) -> Result<WeightsTable> {
     let mut statement = connection
         .prepare(&format!(
             "SELECT {}, {}, {} FROM {} ORDER BY rowid",
-            q(FOCAL_COLUMN),
-            q(NEIGHBOUR_COLUMN),
+            q(AREA_COLUMN),
+            q(LINKED_COLUMN),
             q(WEIGHT_COLUMN),
             q(&found)
         ))
@@ -207,9 +207,9 @@ pub fn read(path: &Path, table: &str) -> Result<WeightsTable> {
     while let Some(row) = rows.next().map_err(|e| bad(e.to_string()))? {
         row_number += 1;
         let focal = value_text(row.get_ref(0).map_err(|e| bad(e.to_string()))?)
-            .ok_or_else(|| field_error(FOCAL_COLUMN, format!("row {row_number} has no id")))?;
+            .ok_or_else(|| field_error(AREA_COLUMN, format!("row {row_number} has no id")))?;
         let neighbour = value_text(row.get_ref(1).map_err(|e| bad(e.to_string()))?)
-            .ok_or_else(|| field_error(NEIGHBOUR_COLUMN, format!("row {row_number} has no id")))?;
+            .ok_or_else(|| field_error(LINKED_COLUMN, format!("row {row_number} has no id")))?;
         let weight = match row.get_ref(2).map_err(|e| bad(e.to_string()))? {
             ValueRef::Integer(i) => i as f64,
             ValueRef::Real(r) if r.is_finite() => r,
@@ -272,67 +272,4 @@ impl WeightsTable {
         }
         Ok(Neighbours::from_links(ids.len(), links))
     }
-}
-
-/// The areas of `layer` projected to the working CRS (see [`super::crs::working`]; `user_crs`
-/// is `--crs`), for distances and snap tolerances in metres. Contiguity is unaffected: equal
-/// vertices stay equal under one deterministic transformation.
-///
-/// # Errors
-/// [`Error::Crs`] when the working CRS cannot be built or a vertex cannot be projected.
-pub fn project_areas(
-    layer: &super::read::PolygonLayer,
-    user_crs: Option<&str>,
-) -> Result<(
-    Vec<geo_types::MultiPolygon<f64>>,
-    gdal::spatial_ref::SpatialRef,
-)> {
-    let mut xs = Vec::new();
-    let mut ys = Vec::new();
-    for polygon in &layer.polygons {
-        for part in &polygon.0 {
-            for ring in std::iter::once(part.exterior()).chain(part.interiors()) {
-                for c in &ring.0 {
-                    xs.push(c.x);
-                    ys.push(c.y);
-                }
-            }
-        }
-    }
-    let srs = super::crs::working(user_crs, &layer.srs, || {
-        super::crs::lonlat_centre(&layer.srs, &xs, &ys)
-    })?;
-    let mut polygons = layer.polygons.clone();
-    if layer.srs.to_wkt().ok() == srs.to_wkt().ok() {
-        return Ok((polygons, srs));
-    }
-    super::crs::transform(&layer.srs, &srs, &mut xs, &mut ys)?;
-    if xs.iter().chain(&ys).any(|v| !v.is_finite()) {
-        return Err(Error::Crs {
-            definition: super::crs::label(&srs),
-            message: format!(
-                "some vertices of layer '{}' cannot be projected to it",
-                layer.layer
-            ),
-        });
-    }
-    let mut k = 0;
-    for polygon in &mut polygons {
-        for part in &mut polygon.0 {
-            let mut set = |ring: &mut geo_types::LineString<f64>| {
-                for c in &mut ring.0 {
-                    c.x = xs[k];
-                    c.y = ys[k];
-                    k += 1;
-                }
-            };
-            part.exterior_mut(|r| set(r));
-            part.interiors_mut(|rings| {
-                for r in rings {
-                    set(r);
-                }
-            });
-        }
-    }
-    Ok((polygons, srs))
 }

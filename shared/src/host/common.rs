@@ -1,4 +1,4 @@
-//! The options every tool shares (DESIGN.md, "The contract every tool keeps").
+//! The options every tool shares (the contract every tool keeps).
 
 use std::path::PathBuf;
 
@@ -6,7 +6,7 @@ use std::path::PathBuf;
 #[derive(Debug, Clone, clap::Args, serde::Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub struct CommonArgs {
-    /// Input GeoPackage (for stance-import: a CSV file or any vector source GDAL reads).
+    /// Input file (each tool says which kind it reads).
     #[arg(long, value_name = "FILE")]
     pub input: Option<PathBuf>,
 

@@ -83,16 +83,16 @@ pub fn describe<T: Tool>() -> Value {
                     }
                 }
             }
-            let title = description
-                .split(['.', '\n'])
-                .next()
-                .unwrap_or("")
-                .trim()
-                .to_owned();
+            let description = if name == "input" {
+                T::INPUT_DESCRIPTION.to_owned()
+            } else {
+                description
+            };
+            let description = openapi_enums(&mut property, description);
             inputs.insert(
                 name.clone(),
                 json!({
-                    "title": title,
+                    "title": short_title(name),
                     "description": description,
                     "schema": property,
                     "minOccurs": u32::from(required),
@@ -168,4 +168,75 @@ fn typed_default(schema: &Map<String, Value>, text: &str) -> Value {
         }
     }
     json!(text)
+}
+
+/// A short label from an option name: `max-radius-m` → "Max radius (m)".
+fn short_title(name: &str) -> String {
+    let mut words: Vec<&str> = name.split('-').collect();
+    let unit = match words.last() {
+        Some(&"m") => Some("m"),
+        Some(&"mb") => Some("MiB"),
+        Some(&"px") => Some("px"),
+        _ => None,
+    };
+    if unit.is_some() {
+        words.pop();
+    }
+    let mut title = words.join(" ");
+    if let Some(first) = title.get(..1) {
+        title = first.to_uppercase() + &title[1..];
+    }
+    match unit {
+        Some(unit) => format!("{title} ({unit})"),
+        None => title,
+    }
+}
+
+/// Rewrites the schema derive's `oneOf` of `const` items (one per documented enum variant) as
+/// the OpenAPI 3.0 `enum` that OGC API – Processes – Part 1 allows (`schema.yaml` of the
+/// standard's schemas has no `const`), and moves the per-value explanations into the input's
+/// description. Returns the description.
+fn openapi_enums(property: &mut Value, description: String) -> String {
+    let Some(object) = property.as_object_mut() else {
+        return description;
+    };
+    let Some(Value::Array(options)) = object.get("oneOf") else {
+        return description;
+    };
+    let mut values = Vec::new();
+    let mut explained = Vec::new();
+    let mut kind = None;
+    for option in options {
+        let value = option.get("const").or_else(|| {
+            // A variant without its own doc comment comes as {"type": "string", "enum": [v]}.
+            option
+                .get("enum")
+                .and_then(Value::as_array)
+                .filter(|e| e.len() == 1)
+                .map(|e| &e[0])
+        });
+        let Some(value) = value else {
+            return description;
+        };
+        kind = option.get("type").cloned().or(kind);
+        if let (Some(text), Some(doc)) = (
+            value.as_str(),
+            option.get("description").and_then(Value::as_str),
+        ) {
+            explained.push(format!("{text}: {}", doc.trim_end_matches('.')));
+        }
+        values.push(value.clone());
+    }
+    object.remove("oneOf");
+    object.insert("type".into(), kind.unwrap_or_else(|| json!("string")));
+    object.insert("enum".into(), Value::Array(values));
+    if explained.is_empty() {
+        description
+    } else {
+        format!(
+            "{} ({}).",
+            description.trim_end_matches('.'),
+            explained.join("; ")
+        )
+    }
 }

@@ -4,6 +4,7 @@
 mod common;
 pub mod describe;
 pub mod neighbours;
+pub mod ogc;
 mod progress;
 
 use std::ffi::OsString;
@@ -64,6 +65,8 @@ pub trait Tool {
     const DEFAULT_NAME: &'static str;
     /// Whether the tool reads `--input`.
     const INPUT: InputUse;
+    /// What the tool's `--input` is (its `--help` and its description in `--describe`).
+    const INPUT_DESCRIPTION: &'static str = "Input GeoPackage.";
     /// The outputs, for `--describe`.
     fn outputs() -> Vec<OutputDecl>;
     /// Reads, checks, computes and stages its outputs through `run`; returns the key results.
@@ -86,6 +89,7 @@ pub fn command<T: Tool>() -> clap::Command {
                 arg
             }
         })
+        .mut_arg("input", |arg| arg.help(T::INPUT_DESCRIPTION))
         .about(T::TITLE)
         .long_about(format!("{}\n\n{}", T::TITLE, T::DESCRIPTION))
         .version(crate::VERSION)
@@ -118,40 +122,72 @@ pub fn main_with_args<T: Tool>(args: Vec<OsString>) -> ExitCode {
     match execute::<T>(common, &params) {
         Ok(summary) => print_json(&summary),
         Err(error) => {
-            eprintln!("stance-{}: error: {error}", T::ID);
+            print_stderr(&format!("stance-{}: error: {error}", T::ID));
             ExitCode::from(error.exit_code())
         }
     }
 }
 
 fn print_json(value: &Value) -> ExitCode {
+    let text = serde_json::to_string_pretty(value).unwrap_or_else(|_| "{}".into());
+    print_stdout(&format!("{text}\n"))
+}
+
+/// Writes `text` to stdout. A reader that stopped reading (`stance describe | head -1`) is not
+/// an error: the executable ends quietly with exit 0, as other command-line tools do.
+pub fn print_stdout(text: &str) -> ExitCode {
     let mut out = std::io::stdout().lock();
-    let written = serde_json::to_writer_pretty(&mut out, value)
-        .map_err(std::io::Error::from)
-        .and_then(|()| writeln!(out));
-    match written {
+    match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
         Ok(()) => ExitCode::SUCCESS,
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
         Err(_) => ExitCode::from(1),
     }
 }
 
-/// Help and version go to stdout with exit 0; usage errors become one line with exit 2.
+/// Writes one line to stderr, ignoring a closed stderr (a log line is never worth a panic).
+pub fn print_stderr(line: &str) {
+    let _ = writeln!(std::io::stderr().lock(), "{line}");
+}
+
+/// Help and version go to stdout with exit 0; usage errors become one line with exit 2 that
+/// keeps clap's content: the missing arguments, a "did you mean" tip, the possible values.
 fn clap_exit(id: &str, error: clap::Error) -> ExitCode {
     use clap::error::ErrorKind;
     match error.kind() {
         ErrorKind::DisplayHelp
         | ErrorKind::DisplayVersion
         | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => {
-            let _ = error.print();
-            ExitCode::SUCCESS
+            print_stdout(&error.render().to_string())
         }
         _ => {
-            let rendered = error.render().to_string();
-            let first = rendered.lines().next().unwrap_or("bad arguments").trim();
-            let first = first.strip_prefix("error: ").unwrap_or(first);
-            eprintln!("stance-{id}: error: {first} (see --help)");
+            print_stderr(&format!(
+                "stance-{id}: error: {} (see --help)",
+                one_line(&error.render().to_string())
+            ));
             ExitCode::from(2)
         }
+    }
+}
+
+/// clap's rendered error folded into one line: everything before the usage, joined.
+pub fn one_line(rendered: &str) -> String {
+    let mut line = String::new();
+    for part in rendered
+        .lines()
+        .map(str::trim)
+        .take_while(|l| !l.starts_with("Usage:") && !l.starts_with("For more information"))
+        .filter(|l| !l.is_empty())
+    {
+        let part = part.strip_prefix("error: ").unwrap_or(part);
+        if !line.is_empty() {
+            line.push_str(if line.ends_with(':') { " " } else { "; " });
+        }
+        line.push_str(part);
+    }
+    if line.is_empty() {
+        "bad arguments".into()
+    } else {
+        line
     }
 }
 
@@ -164,7 +200,7 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
     let show_gdal = common.verbose && !common.quiet;
     gdal::config::set_error_handler(move |class, number, message| {
         if show_gdal {
-            eprintln!("gdal: {class:?} {number}: {message}");
+            print_stderr(&format!("gdal: {class:?} {number}: {message}"));
         }
     });
     let interrupted = Arc::new(AtomicBool::new(false));
@@ -246,7 +282,10 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
     let written = staging.publish(&provenance, interrupted.flag())?;
     progress.finish();
     if verbose {
-        eprintln!("[{:7.3} s] published", clock.elapsed().as_secs_f64());
+        print_stderr(&format!(
+            "[{:7.3} s] published",
+            clock.elapsed().as_secs_f64()
+        ));
     }
     Ok(json!({
         "tool": provenance.tool,
@@ -465,7 +504,7 @@ impl Run {
     /// A log line on stderr (unless `--quiet`).
     pub fn log(&self, message: impl AsRef<str>) {
         if !self.common.quiet {
-            eprintln!("{}", message.as_ref());
+            print_stderr(message.as_ref());
         }
     }
 
@@ -488,11 +527,11 @@ impl Run {
     /// `-v` shows where a run spends its time).
     pub fn debug(&self, message: impl AsRef<str>) {
         if self.common.verbose && !self.common.quiet {
-            eprintln!(
+            print_stderr(&format!(
                 "[{:7.3} s] {}",
                 self.clock.elapsed().as_secs_f64(),
                 message.as_ref()
-            );
+            ));
         }
     }
 

@@ -54,7 +54,8 @@ impl Progress {
             Mode::Silent
         } else if std::io::stderr().is_terminal() {
             let bar = indicatif::ProgressBar::new(1000);
-            if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:40} {percent:>3}% {msg}")
+            if let Ok(style) =
+                indicatif::ProgressStyle::with_template("{bar:40} {percent:>3}% {msg}")
             {
                 bar.set_style(style);
             }
@@ -132,7 +133,7 @@ impl Progress {
                     .is_none_or(|t| t.elapsed() >= Duration::from_secs(1));
                 if due {
                     let f = f64::from(milli) / 1000.0;
-                    eprintln!("{}", progress_line(f, &state.phase, state.counts));
+                    super::print_stderr(&progress_line(f, &state.phase, state.counts));
                     state.last_line = Some(Instant::now());
                 }
             }
@@ -151,7 +152,7 @@ impl Progress {
         match &self.mode {
             Mode::Silent => {}
             Mode::Bar(bar) => bar.finish_and_clear(),
-            Mode::Lines => eprintln!("{}", progress_line(1.0, "done", None)),
+            Mode::Lines => super::print_stderr(&progress_line(1.0, "done", None)),
         }
     }
 }

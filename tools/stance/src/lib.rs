@@ -49,21 +49,24 @@ pub fn main_with_args(args: Vec<OsString>) -> ExitCode {
     let command = args.get(1).map(|a| a.to_string_lossy().into_owned());
     match command.as_deref() {
         None | Some("-h") | Some("--help") | Some("help") => {
-            println!("stance {} — map stance toward a topic from geolocated records\n\n{USAGE}\n\ntools:", stance_core::VERSION);
+            let mut text = format!(
+                "stance {} — map stance toward a topic from geolocated records\n\n{USAGE}\n\ntools:\n",
+                stance_core::VERSION
+            );
             for t in &tools {
-                println!("  {:<10} {}", t.id, t.title);
+                text.push_str(&format!("  {:<10} {}\n", t.id, t.title));
             }
-            ExitCode::SUCCESS
+            host::print_stdout(&text)
         }
         Some("--version") | Some("-V") => {
-            println!("stance {}", stance_core::VERSION);
-            ExitCode::SUCCESS
+            host::print_stdout(&format!("stance {}\n", stance_core::VERSION))
         }
         Some("list") => {
-            for t in &tools {
-                println!("{}\t{}", t.id, t.title);
-            }
-            ExitCode::SUCCESS
+            let text: String = tools
+                .iter()
+                .map(|t| format!("{}\t{}\n", t.id, t.title))
+                .collect();
+            host::print_stdout(&text)
         }
         Some("describe") => {
             let wanted = args.get(2).map(|a| a.to_string_lossy().into_owned());
@@ -76,11 +79,8 @@ pub fn main_with_args(args: Vec<OsString>) -> ExitCode {
                     None => return unknown(&id, &tools),
                 },
             };
-            println!(
-                "{}",
-                serde_json::to_string_pretty(&value).unwrap_or_default()
-            );
-            ExitCode::SUCCESS
+            let text = serde_json::to_string_pretty(&value).unwrap_or_default();
+            host::print_stdout(&format!("{text}\n"))
         }
         Some(id) => match tools.iter().find(|t| t.id == id) {
             Some(t) => {
@@ -95,9 +95,9 @@ pub fn main_with_args(args: Vec<OsString>) -> ExitCode {
 
 fn unknown(id: &str, tools: &[Entry]) -> ExitCode {
     let ids: Vec<&str> = tools.iter().map(|t| t.id).collect();
-    eprintln!(
+    host::print_stderr(&format!(
         "stance: error: unknown tool '{id}'; expected one of {} ({USAGE})",
         ids.join(", ")
-    );
+    ));
     ExitCode::from(2)
 }

@@ -57,7 +57,7 @@ impl Tool for Weights {
     const DESCRIPTION: &'static str = "Builds the neighbours of every area of a polygon layer: queen or \
         rook contiguity from shared vertices or edges (found through a sorted vertex index, with an optional \
         snap tolerance in metres), the k nearest area centroids, or every centroid within a distance band. \
-        Writes an attribute table <name> with one row per directed link (focal_id, neighbour_id, weight 1); \
+        Writes an attribute table <name> with one row per directed link (area_id, linked_id, weight 1); \
         tools that use it apply row or binary standardisation. The summary gives areas, links, minimum / \
         mean / maximum neighbours, islands by id and connected components.";
     const DEFAULT_NAME: &'static str = "weights";
@@ -68,7 +68,7 @@ impl Tool for Weights {
             id: "weights",
             title: "Neighbour table",
             description:
-                "Attribute table <name>: focal_id, neighbour_id (the area ids: feature ids or \
+                "Attribute table <name>: area_id, linked_id (the area ids: feature ids or \
                 --id-field values), weight (1). Islands have no row.",
             media_type: GEOPACKAGE_MEDIA_TYPE,
         }]
