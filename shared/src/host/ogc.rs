@@ -206,51 +206,6 @@ fn check_schema(schema: &Value, at: &str, problems: &mut Vec<String>) {
         }
         let here = format!("{at}.{key}");
         match key.as_str() {
-            "type" => match value.as_str() {
-                Some(t) if TYPES.contains(&t) => {}
-                _ => problems.push(format!("{here}: expected one of {}", TYPES.join(", "))),
-            },
-            "exclusiveMinimum" | "exclusiveMaximum" | "uniqueItems" | "nullable" | "readOnly"
-            | "writeOnly" | "deprecated" => {
-                if !value.is_boolean() {
-                    problems.push(format!("{here}: expected a boolean"));
-                }
-            }
-            "minimum" | "maximum" => {
-                if !value.is_number() {
-                    problems.push(format!("{here}: expected a number"));
-                }
-            }
-            "multipleOf" => {
-                if !value.as_f64().is_some_and(|v| v > 0.0) {
-                    problems.push(format!("{here}: expected a number > 0"));
-                }
-            }
-            "maxLength" | "minLength" | "maxItems" | "minItems" | "maxProperties"
-            | "minProperties" => {
-                if !value.is_u64() {
-                    problems.push(format!("{here}: expected a non-negative integer"));
-                }
-            }
-            "enum" => {
-                if !value.as_array().is_some_and(|a| !a.is_empty()) {
-                    problems.push(format!("{here}: expected a non-empty array"));
-                }
-            }
-            "required" => {
-                let ok = value
-                    .as_array()
-                    .is_some_and(|a| !a.is_empty() && a.iter().all(Value::is_string));
-                if !ok {
-                    problems.push(format!("{here}: expected a non-empty array of strings"));
-                }
-            }
-            "title" | "description" | "format" | "pattern" | "contentMediaType"
-            | "contentEncoding" | "contentSchema" => {
-                if !value.is_string() {
-                    problems.push(format!("{here}: expected a string"));
-                }
-            }
             "not" | "items" => check_schema(value, &here, problems),
             "allOf" | "oneOf" | "anyOf" => match value.as_array() {
                 Some(items) => {
@@ -268,14 +223,47 @@ fn check_schema(schema: &Value, at: &str, problems: &mut Vec<String>) {
                 }
                 None => problems.push(format!("{here}: expected an object")),
             },
-            "additionalProperties" => {
-                if !value.is_boolean() {
-                    check_schema(value, &here, problems);
+            "additionalProperties" if !value.is_boolean() => {
+                check_schema(value, &here, problems);
+            }
+            other => {
+                if let Some(expected) = keyword_value_problem(other, value) {
+                    problems.push(format!("{here}: expected {expected}"));
                 }
             }
-            _ => {}
         }
     }
+}
+
+/// What the value of a scalar keyword of `schema.yaml` should be, when `value` is not that.
+fn keyword_value_problem(key: &str, value: &Value) -> Option<&'static str> {
+    let (ok, expected) = match key {
+        "type" => (
+            value.as_str().is_some_and(|t| TYPES.contains(&t)),
+            "one of array, boolean, integer, number, object, string",
+        ),
+        "exclusiveMinimum" | "exclusiveMaximum" | "uniqueItems" | "nullable" | "readOnly"
+        | "writeOnly" | "deprecated" => (value.is_boolean(), "a boolean"),
+        "minimum" | "maximum" => (value.is_number(), "a number"),
+        "multipleOf" => (value.as_f64().is_some_and(|v| v > 0.0), "a number > 0"),
+        "maxLength" | "minLength" | "maxItems" | "minItems" | "maxProperties" | "minProperties" => {
+            (value.is_u64(), "a non-negative integer")
+        }
+        "enum" => (
+            value.as_array().is_some_and(|a| !a.is_empty()),
+            "a non-empty array",
+        ),
+        "required" => (
+            value
+                .as_array()
+                .is_some_and(|a| !a.is_empty() && a.iter().all(Value::is_string)),
+            "a non-empty array of strings",
+        ),
+        "title" | "description" | "format" | "pattern" | "contentMediaType" | "contentEncoding"
+        | "contentSchema" => (value.is_string(), "a string"),
+        _ => (true, ""),
+    };
+    (!ok).then_some(expected)
 }
 
 #[cfg(test)]
