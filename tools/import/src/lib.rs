@@ -58,12 +58,10 @@ pub struct ImportParams {
     #[arg(long, value_name = "FIELD")]
     pub quality_field: Option<String>,
 
-    /// Quality levels from best to worst.
-    #[arg(
-        long,
-        value_name = "LEVEL,…",
-        default_value = "coordinates,address,place,region"
-    )]
+    /// Geocoding-quality levels from best to worst: exact (device or surveyed coordinates),
+    /// street (geocoded to a street or address), town (snapped to a town centre), district (known
+    /// only to a district or coarser area).
+    #[arg(long, value_name = "LEVEL,…", default_value = "exact,street,town,district")]
     pub quality_order: String,
 
     /// Keep only records at this quality level or better (needs --quality-field).
@@ -130,7 +128,7 @@ impl Tool for Import {
             .filter(|l| !l.is_empty())
             .collect();
         if quality_order.is_empty() {
-            return Err(Error::argument("--quality-order", "is empty; expected levels from best to worst, e.g. coordinates,address,place,region"));
+            return Err(Error::argument("--quality-order", "is empty; expected levels from best to worst, e.g. exact,street,town,district"));
         }
         let min_quality_index = match &params.min_quality {
             None => None,

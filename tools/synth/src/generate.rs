@@ -15,9 +15,9 @@ pub const REGION_EAST_LON: f64 = -139.8;
 pub const REGION_SOUTH_LAT: f64 = 34.6;
 /// Northern edge of the invented region (degrees latitude).
 pub const REGION_NORTH_LAT: f64 = 35.4;
-/// Longitude that `Quality::Region` records are snapped to.
+/// Longitude that `Quality::District` records are snapped to.
 pub const REGION_CENTRE_LON: f64 = -140.4;
-/// Latitude that `Quality::Region` records are snapped to.
+/// Latitude that `Quality::District` records are snapped to.
 pub const REGION_CENTRE_LAT: f64 = 35.0;
 /// First second of the scenario, 2026-01-01T00:00:00Z.
 pub const TIME_START_UNIX_S: i64 = 1_767_225_600;
@@ -52,9 +52,9 @@ const NEUTRAL_SHARE: f64 = 0.30;
 const DUPLICATE_SHARE: f64 = 0.005;
 /// Share of texts drawn from any stance's templates, so text alone is not a perfect label.
 const OFF_STANCE_TEXT_SHARE: f64 = 0.15;
-/// Cumulative shares of Coordinates, Address and Place; the rest is Region.
+/// Cumulative shares of Exact, Street and Town; the rest is District.
 const QUALITY_CUMULATIVE: [f64; 3] = [0.45, 0.70, 0.95];
-const ADDRESS_JITTER_M: f64 = 60.0;
+const STREET_JITTER_M: f64 = 60.0;
 /// Support-vs-oppose log-odds per degree east of the region centre (±0.9 at the edges).
 const LOG_ODDS_PER_DEGREE_EAST: f64 = 1.5;
 /// Support-vs-oppose log-odds per degree north of the region centre (±0.2 at the edges).
@@ -69,8 +69,8 @@ const TOWN_TABLE: [(&str, f64, f64, u32); 11] = [
     ("Quellport", -140.02, 35.02, 118_000),
     ("Brisselholm", -140.25, 35.22, 34_000),
     ("Ostravel", -140.18, 34.78, 27_000),
-    ("Kelmuir", -140.48, 35.10, 19_500),
-    ("Drovenby", -140.63, 34.84, 12_400),
+    ("Tallowspire", -140.48, 35.10, 19_500),
+    ("Gorrowmere", -140.63, 34.84, 12_400),
     ("Saltrenne", -139.90, 34.70, 8_200),
     ("Varrowfen", -140.78, 35.26, 6_100),
     ("Eskerhollow", -139.88, 35.30, 5_300),
@@ -181,28 +181,28 @@ pub struct Record {
     pub town: usize,
 }
 
-/// Geocoding quality of a record's coordinates.
+/// Geocoding quality of a record's coordinates, best to worst.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Quality {
     /// Device coordinates, exact.
-    Coordinates,
-    /// Geocoded street address, a few tens of metres off.
-    Address,
+    Exact,
+    /// Geocoded to a street, a few tens of metres off.
+    Street,
     /// Snapped to the town centre, so many records share one point.
-    Place,
-    /// Snapped to the region centre.
-    Region,
+    Town,
+    /// Known only to a district or coarser: snapped to the region centre.
+    District,
 }
 
 impl Quality {
-    /// Lower-case name: `coordinates`, `address`, `place` or `region`.
+    /// Lower-case name: `exact`, `street`, `town` or `district`.
     pub fn as_str(self) -> &'static str {
         match self {
-            Quality::Coordinates => "coordinates",
-            Quality::Address => "address",
-            Quality::Place => "place",
-            Quality::Region => "region",
+            Quality::Exact => "exact",
+            Quality::Street => "street",
+            Quality::Town => "town",
+            Quality::District => "district",
         }
     }
 }
@@ -369,8 +369,8 @@ fn planted_zones() -> Vec<PlantedZone> {
     vec![
         zone("Quellport Harbour Front", -139.96, 35.06, 6_000.0, 1),
         zone("Ostravel Flats", -140.17, 34.77, 8_000.0, 1),
-        zone("Kelmuir Ridge", -140.49, 35.12, 9_000.0, -1),
-        zone("Drovenby Moor", -140.64, 34.85, 10_000.0, -1),
+        zone("Tallowspire Ridge", -140.49, 35.12, 9_000.0, -1),
+        zone("Gorrowmere Moor", -140.64, 34.85, 10_000.0, -1),
     ]
 }
 
@@ -711,18 +711,18 @@ impl Sampler<'_> {
             }
             let quality = draw_quality(rng);
             let (lon, lat) = match quality {
-                Quality::Coordinates => (true_lon, true_lat),
-                Quality::Address => {
+                Quality::Exact => (true_lon, true_lat),
+                Quality::Street => {
                     let (lon_per_m, lat_per_m) = degrees_per_metre(true_lat);
                     let dx: f64 = rng.sample(StandardNormal);
                     let dy: f64 = rng.sample(StandardNormal);
                     (
-                        true_lon + dx * ADDRESS_JITTER_M * lon_per_m,
-                        true_lat + dy * ADDRESS_JITTER_M * lat_per_m,
+                        true_lon + dx * STREET_JITTER_M * lon_per_m,
+                        true_lat + dy * STREET_JITTER_M * lat_per_m,
                     )
                 }
-                Quality::Place => (self.towns[town].lon, self.towns[town].lat),
-                Quality::Region => (REGION_CENTRE_LON, REGION_CENTRE_LAT),
+                Quality::Town => (self.towns[town].lon, self.towns[town].lat),
+                Quality::District => (REGION_CENTRE_LON, REGION_CENTRE_LAT),
             };
             if self.allowed(lon, lat) {
                 break (true_lon, true_lat, town, quality, lon, lat);
@@ -833,13 +833,13 @@ impl Sampler<'_> {
 fn draw_quality(rng: &mut ChaCha8Rng) -> Quality {
     let u: f64 = rng.random();
     if u < QUALITY_CUMULATIVE[0] {
-        Quality::Coordinates
+        Quality::Exact
     } else if u < QUALITY_CUMULATIVE[1] {
-        Quality::Address
+        Quality::Street
     } else if u < QUALITY_CUMULATIVE[2] {
-        Quality::Place
+        Quality::Town
     } else {
-        Quality::Region
+        Quality::District
     }
 }
 
@@ -1008,10 +1008,10 @@ mod tests {
         // 0.30 ± 4 standard errors (σ ≈ 0.002 at n = 50 000).
         assert!((neutral - 0.30).abs() < 0.01, "{neutral}");
         for (quality, expected) in [
-            (Quality::Coordinates, 0.45),
-            (Quality::Address, 0.25),
-            (Quality::Place, 0.25),
-            (Quality::Region, 0.05),
+            (Quality::Exact, 0.45),
+            (Quality::Street, 0.25),
+            (Quality::Town, 0.25),
+            (Quality::District, 0.05),
         ] {
             let got = s.records.iter().filter(|r| r.quality == quality).count() as f64 / n;
             assert!(
@@ -1020,10 +1020,10 @@ mod tests {
                 quality.as_str()
             );
         }
-        for r in s.records.iter().filter(|r| r.quality == Quality::Place) {
+        for r in s.records.iter().filter(|r| r.quality == Quality::Town) {
             assert_eq!((r.lon, r.lat), (s.towns[r.town].lon, s.towns[r.town].lat));
         }
-        for r in s.records.iter().filter(|r| r.quality == Quality::Region) {
+        for r in s.records.iter().filter(|r| r.quality == Quality::District) {
             assert_eq!((r.lon, r.lat), (REGION_CENTRE_LON, REGION_CENTRE_LAT));
         }
     }
@@ -1200,9 +1200,9 @@ mod tests {
         assert_eq!(stance_label(-1), "oppose");
         assert_eq!(stance_label(0), "neutral");
         assert_eq!(stance_label(1), "support");
-        assert_eq!(Quality::Coordinates.as_str(), "coordinates");
-        assert_eq!(Quality::Address.as_str(), "address");
-        assert_eq!(Quality::Place.as_str(), "place");
-        assert_eq!(Quality::Region.as_str(), "region");
+        assert_eq!(Quality::Exact.as_str(), "exact");
+        assert_eq!(Quality::Street.as_str(), "street");
+        assert_eq!(Quality::Town.as_str(), "town");
+        assert_eq!(Quality::District.as_str(), "district");
     }
 }
