@@ -11,7 +11,7 @@ fuzz_target!(|data: &[u8]| {
         classes: ClassMap::default(),
         geographic: true,
         uses_time: true,
-        quality_order: Some(vec!["coordinates".into(), "address".into(), "place".into()]),
+        quality_order: Some(vec!["exact".into(), "street".into(), "town".into()]),
         min_quality_index: Some(1),
         drop_duplicates: true,
         max_per_author: Some(2),

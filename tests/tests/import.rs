@@ -9,64 +9,64 @@ const HEADER: &str = "id,lon,lat,stance,time,author,text,quality";
 /// One row per reason, plus good rows; the expected reason is the comment column.
 const ROWS: &[(&str, Option<&str>)] = &[
     (
-        "1,-140.20,35.00,support,2026-03-04T05:06:07Z,a1,first,coordinates",
+        "1,-140.20,35.00,support,2026-03-04T05:06:07Z,a1,first,exact",
         None,
     ),
-    ("2,-140.30,35.10,Oppose,2026-03-05,a2,second,address", None),
+    ("2,-140.30,35.10,Oppose,2026-03-05,a2,second,street", None),
     (
-        "3,,35.10,oppose,2026-03-05,a3,t3,address",
+        "3,,35.10,oppose,2026-03-05,a3,t3,street",
         Some("missing_coordinates"),
     ),
     (
-        "4,abc,35.10,oppose,2026-03-05,a4,t4,address",
+        "4,abc,35.10,oppose,2026-03-05,a4,t4,street",
         Some("missing_coordinates"),
     ),
     (
-        "5,-140.30,95.0,oppose,2026-03-05,a5,t5,address",
+        "5,-140.30,95.0,oppose,2026-03-05,a5,t5,street",
         Some("coordinates_out_of_range"),
     ),
     (
-        "6,-190.0,35.0,oppose,2026-03-05,a6,t6,address",
+        "6,-190.0,35.0,oppose,2026-03-05,a6,t6,street",
         Some("coordinates_out_of_range"),
     ),
     (
-        "7,-140.30,35.20,maybe,2026-03-05,a7,t7,address",
+        "7,-140.30,35.20,maybe,2026-03-05,a7,t7,street",
         Some("unknown_stance"),
     ),
     (
-        "8,-140.30,35.20,,2026-03-05,a8,t8,address",
+        "8,-140.30,35.20,,2026-03-05,a8,t8,street",
         Some("unknown_stance"),
     ),
     (
-        "9,-140.30,35.20,neutral,,a9,t9,address",
+        "9,-140.30,35.20,neutral,,a9,t9,street",
         Some("missing_time"),
     ),
     (
-        "10,-140.30,35.20,neutral,03/05/2026,a10,t10,address",
+        "10,-140.30,35.20,neutral,03/05/2026,a10,t10,street",
         Some("unparseable_time"),
     ),
     (
-        "11,-140.30,35.20,neutral,last tuesday,a11,t11,address",
+        "11,-140.30,35.20,neutral,last tuesday,a11,t11,street",
         Some("unparseable_time"),
     ),
     (
-        "12,-140.30,35.20,neutral,2026-03-05,a12,t12,street",
+        "12,-140.30,35.20,neutral,2026-03-05,a12,t12,rooftop",
         Some("unknown_quality"),
     ),
     (
-        "13,-140.30,35.20,neutral,2026-03-05,a13,t13,region",
+        "13,-140.30,35.20,neutral,2026-03-05,a13,t13,district",
         Some("quality_below_minimum"),
     ),
     (
-        "14,-140.20,35.00,support,2026-03-04T05:06:07Z,a1,first,coordinates",
+        "14,-140.20,35.00,support,2026-03-04T05:06:07Z,a1,first,exact",
         Some("duplicate"),
     ),
     (
-        "15,-140.25,35.05,-1,2026-03-06T10:00:00+02:00,a1,another,place",
+        "15,-140.25,35.05,-1,2026-03-06T10:00:00+02:00,a1,another,town",
         None,
     ),
     (
-        "16,-140.25,35.05,1,2026-03-06,a1,third,place",
+        "16,-140.25,35.05,1,2026-03-06,a1,third,town",
         Some("over_author_cap"),
     ),
 ];
@@ -101,7 +101,7 @@ fn every_bad_row_is_counted_under_its_reason_and_written_to_rejects() {
             "--quality-field",
             "quality",
             "--min-quality",
-            "place",
+            "town",
             "--max-per-author",
             "2",
             "--rejects",
@@ -137,7 +137,7 @@ fn every_bad_row_is_counted_under_its_reason_and_written_to_rejects() {
         results["unparsed_time_examples"]["aaaa aaaaaaa"],
         "last tuesday"
     );
-    assert_eq!(results["unknown_quality_levels"]["street"], 1);
+    assert_eq!(results["unknown_quality_levels"]["rooftop"], 1);
 
     let path = dir.join("o.gpkg");
     assert_eq!(tables(&path), ["records", "rejected"]);
@@ -152,20 +152,20 @@ fn every_bad_row_is_counted_under_its_reason_and_written_to_rejects() {
                 "support".to_owned(),
                 "1".into(),
                 "2026-03-04T05:06:07.000Z".into(),
-                "coordinates".into()
+                "exact".into()
             ],
             vec![
                 "oppose".into(),
                 "-1".into(),
                 "2026-03-05T00:00:00.000Z".into(),
-                "address".into()
+                "street".into()
             ],
             // +02:00 converted to UTC.
             vec![
                 "oppose".into(),
                 "-1".into(),
                 "2026-03-06T08:00:00.000Z".into(),
-                "place".into()
+                "town".into()
             ],
         ]
     );

@@ -321,10 +321,10 @@ mod tests {
             geographic: true,
             uses_time: true,
             quality_order: Some(vec![
-                "coordinates".into(),
-                "address".into(),
-                "place".into(),
-                "region".into(),
+                "exact".into(),
+                "street".into(),
+                "town".into(),
+                "district".into(),
             ]),
             min_quality_index: Some(2),
             drop_duplicates: true,
@@ -339,7 +339,7 @@ mod tests {
             time: Some("2026-03-04T05:06:07Z"),
             author: Some("a1"),
             text: Some("hello"),
-            quality: Some("address"),
+            quality: Some("street"),
         }
     }
 
@@ -439,7 +439,7 @@ mod tests {
             ),
             (
                 RawRecord {
-                    quality: Some("street"),
+                    quality: Some("rooftop"),
                     text: Some("t12"),
                     ..good()
                 },
@@ -447,7 +447,7 @@ mod tests {
             ),
             (
                 RawRecord {
-                    quality: Some("region"),
+                    quality: Some("district"),
                     text: Some("t13"),
                     ..good()
                 },
@@ -472,7 +472,7 @@ mod tests {
                 RawRecord {
                     text: Some("third"),
                     author: Some("a2"),
-                    quality: Some("PLACE"),
+                    quality: Some("TOWN"),
                     ..good()
                 },
                 None,
@@ -491,7 +491,7 @@ mod tests {
         assert_eq!(checker.unknown_labels["maybe"], 1);
         assert_eq!(checker.unknown_labels["(null)"], 1);
         assert_eq!(checker.time_examples["99/99/9999"], "03/04/2026");
-        assert_eq!(checker.unknown_quality["street"], 1);
+        assert_eq!(checker.unknown_quality["rooftop"], 1);
         assert_eq!(kept, 3);
     }
 

@@ -8,7 +8,26 @@ use stance_core::error::{Error, Result};
 use stance_core::gpkg::crs;
 
 use crate::checks::{Location, RawRecord};
-use crate::ImportParams;
+
+/// What to read from a source: its geometry, its CRS and its fields.
+#[derive(Debug, Clone)]
+pub struct Request {
+    /// CSV columns holding the geometry (GDAL sources bring their own).
+    pub geometry: GeometryColumns,
+    /// CRS of the coordinates, when the source's own (or CSV's EPSG:4326) is not it.
+    pub source_crs: Option<String>,
+    /// The fields to read.
+    pub fields: Fields,
+}
+
+/// CSV columns of the geometry: x and y, or WKT; unnamed x/y columns are found by their usual
+/// names.
+#[derive(Debug, Clone)]
+pub struct GeometryColumns {
+    pub x: Option<String>,
+    pub y: Option<String>,
+    pub wkt: Option<String>,
+}
 
 /// Names of the fields to read.
 #[derive(Debug, Clone)]
@@ -83,12 +102,7 @@ pub enum Reader {
 ///
 /// # Errors
 /// Missing file, unknown columns or fields, a source without CRS.
-pub fn open(
-    path: &Path,
-    layer: Option<&str>,
-    params: &ImportParams,
-    fields: &Fields,
-) -> Result<Reader> {
+pub fn open(path: &Path, layer: Option<&str>, request: &Request) -> Result<Reader> {
     let extension = path
         .extension()
         .map(|e| e.to_string_lossy().to_lowercase())
@@ -96,12 +110,12 @@ pub fn open(
     if ["csv", "tsv", "txt"].contains(&extension.as_str()) {
         Ok(Reader::Csv(CsvReader::open(
             path,
-            params,
-            fields,
+            request,
             extension == "tsv",
         )?))
     } else {
-        if params.x_field.is_some() || params.y_field.is_some() || params.wkt_field.is_some() {
+        let columns = &request.geometry;
+        if columns.x.is_some() || columns.y.is_some() || columns.wkt.is_some() {
             return Err(Error::argument(
                 "--x-field/--y-field/--wkt-field",
                 format!(
@@ -110,7 +124,7 @@ pub fn open(
                 ),
             ));
         }
-        Ok(Reader::Gdal(GdalReader::open(path, layer, params, fields)?))
+        Ok(Reader::Gdal(GdalReader::open(path, layer, request)?))
     }
 }
 
@@ -142,6 +156,14 @@ impl Reader {
         }
     }
 
+    /// Number of rows, when the source knows it without reading them (GDAL sources).
+    pub fn rows_total(&self) -> Option<u64> {
+        match self {
+            Reader::Csv(_) => None,
+            Reader::Gdal(r) => Some(r.count),
+        }
+    }
+
     /// Share of the input read so far, for progress.
     pub fn fraction_read(&self) -> f64 {
         match self {
@@ -153,10 +175,10 @@ impl Reader {
 
 /// Reads the source CRS option or a default.
 fn source_srs(
-    params: &ImportParams,
+    source_crs: Option<&str>,
     default: impl FnOnce() -> Result<SpatialRef>,
 ) -> Result<SpatialRef> {
-    match &params.source_crs {
+    match source_crs {
         Some(definition) => crs::parse(definition),
         None => default(),
     }
@@ -184,7 +206,8 @@ pub struct CsvReader {
 }
 
 impl CsvReader {
-    fn open(path: &Path, params: &ImportParams, fields: &Fields, tabs: bool) -> Result<Self> {
+    fn open(path: &Path, request: &Request, tabs: bool) -> Result<Self> {
+        let fields = &request.fields;
         let file = std::fs::File::open(path).map_err(|e| Error::InputFile {
             path: path.to_owned(),
             reason: e.to_string(),
@@ -229,7 +252,8 @@ impl CsvReader {
                 )
             })
         };
-        let geometry = match (&params.wkt_field, &params.x_field, &params.y_field) {
+        let columns = &request.geometry;
+        let geometry = match (&columns.wkt, &columns.x, &columns.y) {
             (Some(wkt), None, None) => Geometry::Wkt(require(wkt)?),
             (Some(_), _, _) => {
                 return Err(Error::argument(
@@ -264,7 +288,7 @@ impl CsvReader {
                 .iter()
                 .map(|k| require(k))
                 .collect::<Result<_>>()?,
-            srs: source_srs(params, crs::wgs84)?,
+            srs: source_srs(request.source_crs.as_deref(), crs::wgs84)?,
             reader,
             row: 0,
         })
@@ -368,64 +392,11 @@ pub struct GdalReader {
 }
 
 impl GdalReader {
-    fn open(
-        path: &Path,
-        layer: Option<&str>,
-        params: &ImportParams,
-        fields: &Fields,
-    ) -> Result<Self> {
-        if !path.exists() {
-            return Err(Error::InputFile {
-                path: path.to_owned(),
-                reason: "no such file".into(),
-            });
-        }
-        let dataset = gdal::Dataset::open_ex(
-            path,
-            gdal::DatasetOptions {
-                open_flags: gdal::GdalOpenFlags::GDAL_OF_READONLY
-                    | gdal::GdalOpenFlags::GDAL_OF_VECTOR,
-                ..Default::default()
-            },
-        )
-        .map_err(|e| Error::InputFile {
-            path: path.to_owned(),
-            reason: format!("GDAL cannot read it as a vector source ({e})"),
-        })?;
+    fn open(path: &Path, layer: Option<&str>, request: &Request) -> Result<Self> {
+        let fields = &request.fields;
+        let dataset = open_vector(path)?;
         let names: Vec<String> = dataset.layers().map(|l| l.name()).collect();
-        let name = match layer {
-            Some(l) => {
-                names
-                    .iter()
-                    .find(|n| *n == l)
-                    .cloned()
-                    .ok_or_else(|| Error::LayerNotFound {
-                        path: path.to_owned(),
-                        layer: l.to_owned(),
-                        available: names.join(", "),
-                    })?
-            }
-            None => match names.as_slice() {
-                [one] => one.clone(),
-                [] => {
-                    return Err(Error::BadLayer {
-                        path: path.to_owned(),
-                        layer: String::new(),
-                        message: "the source has no layers".into(),
-                    })
-                }
-                _ => {
-                    return Err(Error::argument(
-                        "--layer",
-                        format!(
-                            "{} has several layers; name one ({})",
-                            path.display(),
-                            names.join(", ")
-                        ),
-                    ))
-                }
-            },
-        };
+        let name = choose_layer(path, &names, layer)?;
         let owned = dataset
             .into_layer_by_name(&name)
             .map_err(Error::gdal(format!("opening layer '{name}'")))?;
@@ -455,20 +426,8 @@ impl GdalReader {
                 })
         };
         let optional = |f: &Option<String>| f.as_deref().map(require).transpose();
-        let srs = source_srs(params, || {
-            owned
-                .spatial_ref()
-                .map(|mut s| {
-                    s.set_axis_mapping_strategy(
-                        gdal::spatial_ref::AxisMappingStrategy::TraditionalGisOrder,
-                    );
-                    s
-                })
-                .ok_or_else(|| Error::BadLayer {
-                    path: path.to_owned(),
-                    layer: name.clone(),
-                    message: "has no CRS; give the coordinates' CRS with --source-crs".into(),
-                })
+        let srs = source_srs(request.source_crs.as_deref(), || {
+            layer_srs(path, &name, &owned)
         })?;
         let count = owned.feature_count();
         let time = optional(&fields.time)?;
@@ -483,7 +442,7 @@ impl GdalReader {
         Ok(GdalReader {
             typed_time,
             stance: require(&fields.stance)?,
-            time: optional(&fields.time)?,
+            time,
             author: optional(&fields.author)?,
             text: optional(&fields.text)?,
             quality: optional(&fields.quality)?,
@@ -541,4 +500,73 @@ impl GdalReader {
             keep: self.keep.iter().map(|k| get(*k)).collect(),
         })
     }
+}
+
+/// Opens `path` read-only as a vector source.
+fn open_vector(path: &Path) -> Result<gdal::Dataset> {
+    if !path.exists() {
+        return Err(Error::InputFile {
+            path: path.to_owned(),
+            reason: "no such file".into(),
+        });
+    }
+    gdal::Dataset::open_ex(
+        path,
+        gdal::DatasetOptions {
+            open_flags: gdal::GdalOpenFlags::GDAL_OF_READONLY | gdal::GdalOpenFlags::GDAL_OF_VECTOR,
+            ..Default::default()
+        },
+    )
+    .map_err(|e| Error::InputFile {
+        path: path.to_owned(),
+        reason: format!("GDAL cannot read it as a vector source ({e})"),
+    })
+}
+
+/// The layer named by `--layer`, or the only layer of the source.
+fn choose_layer(path: &Path, names: &[String], layer: Option<&str>) -> Result<String> {
+    match (layer, names) {
+        (Some(l), _) => {
+            names
+                .iter()
+                .find(|n| *n == l)
+                .cloned()
+                .ok_or_else(|| Error::LayerNotFound {
+                    path: path.to_owned(),
+                    layer: l.to_owned(),
+                    available: names.join(", "),
+                })
+        }
+        (None, [one]) => Ok(one.clone()),
+        (None, []) => Err(Error::BadLayer {
+            path: path.to_owned(),
+            layer: String::new(),
+            message: "the source has no layers".into(),
+        }),
+        (None, _) => Err(Error::argument(
+            "--layer",
+            format!(
+                "{} has several layers; name one ({})",
+                path.display(),
+                names.join(", ")
+            ),
+        )),
+    }
+}
+
+/// The layer's own CRS, in x = easting/longitude order.
+fn layer_srs(path: &Path, name: &str, layer: &gdal::vector::OwnedLayer) -> Result<SpatialRef> {
+    layer
+        .spatial_ref()
+        .map(|mut s| {
+            s.set_axis_mapping_strategy(
+                gdal::spatial_ref::AxisMappingStrategy::TraditionalGisOrder,
+            );
+            s
+        })
+        .ok_or_else(|| Error::BadLayer {
+            path: path.to_owned(),
+            layer: name.to_owned(),
+            message: "has no CRS; give the coordinates' CRS with --source-crs".into(),
+        })
 }
