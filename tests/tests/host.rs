@@ -179,7 +179,7 @@ fn bad_arguments_exit_2_with_one_line() {
             "--output",
             "o.gpkg",
             "--min-quality",
-            "place",
+            "town",
         ],
     )
     .usage_error(&["--min-quality", "--quality-field"]);
@@ -386,7 +386,7 @@ fn inputs_are_never_modified_and_provenance_is_complete() {
     assert_eq!(record["tool"], "stance-import");
     assert_eq!(record["version"], env!("CARGO_PKG_VERSION"));
     assert_eq!(
-        record["parameters"]["quality-order"], "coordinates,address,place,region",
+        record["parameters"]["quality-order"], "exact,street,town,district",
         "defaults are recorded"
     );
     assert_eq!(record["parameters"]["time-field"], "time_utc");

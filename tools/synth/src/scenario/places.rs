@@ -21,7 +21,7 @@ pub const REGION_CENTRE_LAT: f64 = 35.0;
 const TOWN_TABLE: [(&str, f64, f64, u32); 11] = [
     ("Quellport", -140.02, 35.02, 118_000),
     ("Brisselholm", -140.25, 35.22, 34_000),
-    ("Ostravel", -140.18, 34.78, 27_000),
+    ("Quennisholt", -140.18, 34.78, 27_000),
     ("Tallowspire", -140.48, 35.10, 19_500),
     ("Gorrowmere", -140.63, 34.84, 12_400),
     ("Saltrenne", -139.90, 34.70, 8_200),
@@ -108,7 +108,7 @@ pub fn planted_zones() -> Vec<PlantedZone> {
     };
     vec![
         zone("Quellport Harbour Front", -139.96, 35.06, 6_000.0, 1),
-        zone("Ostravel Flats", -140.17, 34.77, 8_000.0, 1),
+        zone("Quennisholt Flats", -140.17, 34.77, 8_000.0, 1),
         zone("Tallowspire Ridge", -140.49, 35.12, 9_000.0, -1),
         zone("Gorrowmere Moor", -140.64, 34.85, 10_000.0, -1),
     ]
