@@ -67,9 +67,8 @@ impl Tool for Rates {
             description:
                 "Polygon layer <name>: a copy of the area layer (its CRS and fields) with \
                 count_oppose, count_neutral, count_support, count_total (with points), cases, \
-                at_risk, rate_raw, rate_se, rate_eb_global, rate_eb_local, eb_local_prior_mean, \
-                neighbours (their count; these three with local EB), no_one_at_risk (1 where the \
-                population at risk is 0) and, with --surface, surface_mean, surface_min, \
+                at_risk, rate_raw, rate_se, rate_eb_global, rate_eb_local, eb_local_prior_mean \
+                (these two with local EB), no_one_at_risk (1 where the population at risk is 0) and, with --surface, surface_mean, surface_min, \
                 surface_max, surface_cells.",
             media_type: GEOPACKAGE_MEDIA_TYPE,
         }]

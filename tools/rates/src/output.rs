@@ -86,8 +86,6 @@ pub fn fields(rated: &Rated) -> Vec<(FieldDef, ExtraColumn)> {
         );
         let means = local.eb.priors.iter().map(|p| p.map(|p| p.mean));
         add("eb_local_prior_mean", FieldKind::Real, real(means));
-        let sizes = local.neighbours.lists.iter().map(|l| l.len() as i64);
-        add("neighbours", FieldKind::Integer, integer(sizes));
     }
     let nobody = counts.at_risk.iter().map(|b| i64::from(*b <= 0.0));
     add("no_one_at_risk", FieldKind::Integer, integer(nobody));
