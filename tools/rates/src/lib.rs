@@ -90,7 +90,9 @@ impl Tool for Rates {
         run.progress.phase("smoothing");
         let rated = smooth(&config, &areas, &counts, local, run)?;
         run.progress.set(0.6);
-        run.progress.phase("surface");
+        if config.surface.is_some() {
+            run.progress.phase("surface");
+        }
         let rated = Rated {
             surface: surface(&config, &areas, run)?,
             ..rated
