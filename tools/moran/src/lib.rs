@@ -209,7 +209,7 @@ fn neighbours(
         neighbours,
         source: format!("{method:?} built here").to_lowercase(),
         id_field,
-        crs: Some(output::crs_text(&layer.srs)),
+        crs: Some(stance_core::gpkg::crs::summary_text(&layer.srs)),
     })
 }
 

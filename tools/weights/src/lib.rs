@@ -73,7 +73,7 @@ impl Tool for Weights {
             summary: &summary,
             islands_before: &islands_before,
             linked: &linked,
-            crs: output::crs_text(&layer.srs),
+            crs: stance_core::gpkg::crs::summary_text(&layer.srs),
         };
         Ok(output::summary(&name, rows, params, &found))
     }

@@ -49,13 +49,3 @@ pub fn summary(table: &str, rows: u64, params: &crate::WeightsParams, found: &Fo
     })
 }
 
-/// The working CRS for the summary: `EPSG:n` when known, else its PROJ string (the centred
-/// Lambert azimuthal equal-area projection has no name).
-pub fn crs_text(srs: &gdal::spatial_ref::SpatialRef) -> String {
-    let label = stance_core::gpkg::crs::label(srs);
-    if label.eq_ignore_ascii_case("unknown") {
-        srs.to_proj4().map(|p| p.trim().to_owned()).unwrap_or(label)
-    } else {
-        label
-    }
-}
