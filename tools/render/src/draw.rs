@@ -113,7 +113,12 @@ fn draw_map<'a>(root: &Area<'a>, scene: &Scene) -> DrawResult<'a> {
 
 /// One overlay: its lines group by group (ink over a halo, legible on dark and light colours
 /// alike), then its points as ringed markers.
-fn draw_overlay<'a>(root: &Area<'a>, rect: &PixelRect, overlay: &Overlay, s: f64) -> DrawResult<'a> {
+fn draw_overlay<'a>(
+    root: &Area<'a>,
+    rect: &PixelRect,
+    overlay: &Overlay,
+    s: f64,
+) -> DrawResult<'a> {
     for group in &overlay.groups {
         for ring in &group.lines {
             draw_styled(root, rect, ring, group.style, s)?;

@@ -87,9 +87,7 @@ fn group_by_side(rings: Vec<Vec<Vec<(f64, f64)>>>, sides: &[Option<String>]) -> 
         };
         groups[at].lines.extend(feature);
     }
-    groups.sort_by(|a, b| {
-        (side_slot(&a.label), &a.label).cmp(&(side_slot(&b.label), &b.label))
-    });
+    groups.sort_by(|a, b| (side_slot(&a.label), &a.label).cmp(&(side_slot(&b.label), &b.label)));
     groups
 }
 
@@ -110,21 +108,22 @@ pub fn read_overlay(
             let by_side = has_column(path, name, SIDE_FIELD)?;
             let fields: &[&str] = if by_side { &[SIDE_FIELD] } else { &[] };
             let layer = read_polygons(path, Some(name), fields)?;
-            let rings: Vec<Vec<Vec<(f64, f64)>>> = project_rings(&layer.polygons, &layer.srs, map_srs)?
-                .into_iter()
-                .map(|feature| {
-                    feature
-                        .into_iter()
-                        .map(|mut ring| {
-                            // Close the ring so the outline has no gap.
-                            if let Some(first) = ring.first().copied() {
-                                ring.push(first);
-                            }
-                            ring.into_iter().map(to_px).collect()
-                        })
-                        .collect()
-                })
-                .collect();
+            let rings: Vec<Vec<Vec<(f64, f64)>>> =
+                project_rings(&layer.polygons, &layer.srs, map_srs)?
+                    .into_iter()
+                    .map(|feature| {
+                        feature
+                            .into_iter()
+                            .map(|mut ring| {
+                                // Close the ring so the outline has no gap.
+                                if let Some(first) = ring.first().copied() {
+                                    ring.push(first);
+                                }
+                                ring.into_iter().map(to_px).collect()
+                            })
+                            .collect()
+                    })
+                    .collect();
             let groups = if by_side {
                 group_by_side(rings, &layer.fields[0])
             } else {

@@ -379,7 +379,10 @@ mod tests {
     #[test]
     fn deuteranopia_keeps_greys_and_merges_red_and_green() {
         // Each matrix row sums to 1, so greys are fixed points.
-        assert_eq!(Dichromacy::Deuteranopia.simulate(Rgb(128, 128, 128)), Rgb(128, 128, 128));
+        assert_eq!(
+            Dichromacy::Deuteranopia.simulate(Rgb(128, 128, 128)),
+            Rgb(128, 128, 128)
+        );
         // The classic confusion pair: a red and a green of similar lightness become close.
         let (red, green) = (Rgb(200, 80, 60), Rgb(110, 130, 50));
         let before = delta_e(red, green);
@@ -394,7 +397,12 @@ mod tests {
     /// dichromacy.
     fn closest_pair(colours: &[Rgb]) -> f64 {
         let mut closest = f64::INFINITY;
-        for see in [None, Some(Dichromacy::Protanopia), Some(Dichromacy::Deuteranopia), Some(Dichromacy::Tritanopia)] {
+        for see in [
+            None,
+            Some(Dichromacy::Protanopia),
+            Some(Dichromacy::Deuteranopia),
+            Some(Dichromacy::Tritanopia),
+        ] {
             let seen: Vec<Rgb> = colours
                 .iter()
                 .map(|c| see.map_or(*c, |d| d.simulate(*c)))
@@ -413,7 +421,11 @@ mod tests {
         // Threshold: ΔE*ab ≥ 30 for every pair, in normal vision and after each simulation.
         // ΔE ≈ 2.3 is one just-noticeable difference (Sharma 2003); 30 keeps the five classes
         // apart at a glance on small areas, not merely side by side.
-        assert!(closest_pair(&LISA_COLOURS) >= 30.0, "{}", closest_pair(&LISA_COLOURS));
+        assert!(
+            closest_pair(&LISA_COLOURS) >= 30.0,
+            "{}",
+            closest_pair(&LISA_COLOURS)
+        );
         // "Not significant" is no grey (a* and b* of a grey are 0) and no white ("no value").
         let sand = lab(LISA_COLOURS[4]);
         assert!(sand[1].hypot(sand[2]) >= 8.0, "{sand:?}");
@@ -422,7 +434,11 @@ mod tests {
 
     #[test]
     fn side_colours_are_apart_from_each_other_and_from_the_surface_palettes() {
-        assert!(closest_pair(&SIDE_COLOURS) >= 30.0, "{}", closest_pair(&SIDE_COLOURS));
+        assert!(
+            closest_pair(&SIDE_COLOURS) >= 30.0,
+            "{}",
+            closest_pair(&SIDE_COLOURS)
+        );
         // No side colour within ΔE*ab 30 of any anchor of batlow or vik.
         for side in SIDE_COLOURS {
             for anchor in BATLOW.iter().chain(&VIK) {
@@ -442,7 +458,10 @@ mod tests {
         // Each published matrix row sums to 1 (to 6 decimals), so greys stay (±1 for rounding).
         for d in Dichromacy::ALL {
             let g = d.simulate(Rgb(128, 128, 128));
-            assert!(g.0.abs_diff(128) <= 1 && g.1.abs_diff(128) <= 1 && g.2.abs_diff(128) <= 1, "{d:?} {g:?}");
+            assert!(
+                g.0.abs_diff(128) <= 1 && g.1.abs_diff(128) <= 1 && g.2.abs_diff(128) <= 1,
+                "{d:?} {g:?}"
+            );
         }
     }
 

@@ -68,7 +68,12 @@ pub fn surface_scene(
         (true, false) => unit.to_owned(),
         (true, true) => name.to_owned(),
     };
-    let mut scene = base_scene(params, extent, name.to_owned(), Legend::Bar { scale, heading });
+    let mut scene = base_scene(
+        params,
+        extent,
+        name.to_owned(),
+        Legend::Bar { scale, heading },
+    );
     let frame = scene.layout.frame;
     paint_surface(&mut scene.canvas, &frame, &grid, &surface.values, |v| {
         scale.colour(v)

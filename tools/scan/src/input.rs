@@ -252,7 +252,8 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
     let mut cases = Vec::with_capacity(layer.fids.len());
     let mut size = Vec::with_capacity(layer.fids.len());
     for (i, &fid) in layer.fids.iter().enumerate() {
-        let c = parse_count(layer.fields[0][i].as_deref(), fid).map_err(|m| bad(&fields.cases, m))?;
+        let c =
+            parse_count(layer.fields[0][i].as_deref(), fid).map_err(|m| bad(&fields.cases, m))?;
         let s = parse_size(layer.fields[1][i].as_deref(), fid).map_err(|m| bad(&fields.size, m))?;
         if s == 0.0 && c > 0 {
             return Err(bad(

@@ -20,8 +20,8 @@ use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 
 use analysis::{scan_areas, scan_points, ScanResult};
 use input::{read_areas, read_records, Data, DataKind};
-use output::{cluster_row, summary, write_layers, ClusterRow};
 pub use output::circle;
+use output::{cluster_row, summary, write_layers, ClusterRow};
 pub use params::{Config, DirectionChoice, ModelChoice, ScanParams, Subject};
 
 /// The scan tool.
@@ -127,8 +127,11 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
         data.distinct_locations(),
         replicates
     ));
-    run.progress
-        .phase(if replicates > 0 { "replicates" } else { "windows" });
+    run.progress.phase(if replicates > 0 {
+        "replicates"
+    } else {
+        "windows"
+    });
     let progress = &run.progress;
     let report = |fraction: f64| {
         let overall = READ_SHARE + (SCAN_END - READ_SHARE) * fraction;
@@ -141,12 +144,24 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
     };
     let stop = run.interrupt().flag();
     let outcome = match &data.kind {
-        DataKind::Points { labels, model, .. } => {
-            scan_points(&data.x, &data.y, labels, *model, &config.scan, &report, stop)
-        }
-        DataKind::Areas { cases, expected } => {
-            scan_areas(&data.x, &data.y, cases, expected, &config.scan, &report, stop)
-        }
+        DataKind::Points { labels, model, .. } => scan_points(
+            &data.x,
+            &data.y,
+            labels,
+            *model,
+            &config.scan,
+            &report,
+            stop,
+        ),
+        DataKind::Areas { cases, expected } => scan_areas(
+            &data.x,
+            &data.y,
+            cases,
+            expected,
+            &config.scan,
+            &report,
+            stop,
+        ),
     };
     outcome.map_err(|_| Error::Interrupted)
 }

@@ -130,8 +130,7 @@ pub fn cluster_row(config: &Config, data: &Data, scanned: &ScanResult, c: &Clust
             row.records_in = Some(n as u64);
             for (&class, &total) in &totals {
                 let k = inside.get(&class).copied().unwrap_or(0) as f64;
-                row.shares
-                    .push((class, k / n, (total as f64 - k) / rest));
+                row.shares.push((class, k / n, (total as f64 - k) / rest));
             }
             // The class the risk ratio is about: the cases (Bernoulli) or the end of the
             // order the cluster is shifted toward (ordinal).
@@ -383,7 +382,10 @@ pub fn summary(
             s.insert("cases_total".into(), json!(scanned.class_totals[0]));
         }
     }
-    s.insert("crs".into(), json!(stance_core::gpkg::crs::label(&data.srs)));
+    s.insert(
+        "crs".into(),
+        json!(stance_core::gpkg::crs::label(&data.srs)),
+    );
     s.insert("features_analysed".into(), json!(data.fids.len()));
     s.insert("features_excluded".into(), json!(data.excluded));
     s.insert("locations".into(), json!(scanned.x.len()));

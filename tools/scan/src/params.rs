@@ -429,17 +429,18 @@ fn ordinal_roles(
         ));
     }
     let asked = toward.unwrap_or("both").trim().to_ascii_lowercase();
-    let direction = match asked.as_str() {
-        "both" => Direction::Both,
-        "support" => Direction::High,
-        "oppose" => Direction::Low,
-        _ => {
-            return Err(Error::argument(
+    let direction =
+        match asked.as_str() {
+            "both" => Direction::Both,
+            "support" => Direction::High,
+            "oppose" => Direction::Low,
+            _ => return Err(Error::argument(
                 "--toward",
-                format!("'{asked}' is not a side of the ordinal scan; expected support, oppose or both"),
-            ))
-        }
-    };
+                format!(
+                    "'{asked}' is not a side of the ordinal scan; expected support, oppose or both"
+                ),
+            )),
+        };
     Ok((RecordRoles::Ordinal { classes: at_risk }, direction, asked))
 }
 
@@ -488,8 +489,13 @@ mod tests {
         assert_eq!(low.scan.direction, Direction::Low);
         let both = check(&["--case-class", "support", "--toward", "both"]).expect("both");
         assert_eq!(both.scan.direction, Direction::Both);
-        let c = check(&["--case-class", "support", "--at-risk-classes", "oppose,support"])
-            .expect("two classes");
+        let c = check(&[
+            "--case-class",
+            "support",
+            "--at-risk-classes",
+            "oppose,support",
+        ])
+        .expect("two classes");
         assert_eq!(c.scan.direction, Direction::High);
         assert_eq!(
             option_of(&["--at-risk-classes", "oppose,support", "--toward", "neutral"]),
@@ -503,8 +509,14 @@ mod tests {
             option_of(&["--at-risk-classes", "neutral,support"]),
             "--at-risk-classes"
         );
-        assert_eq!(option_of(&["--at-risk-classes", "oppose"]), "--at-risk-classes");
-        assert_eq!(option_of(&["--at-risk-classes", "maybe"]), "--at-risk-classes");
+        assert_eq!(
+            option_of(&["--at-risk-classes", "oppose"]),
+            "--at-risk-classes"
+        );
+        assert_eq!(
+            option_of(&["--at-risk-classes", "maybe"]),
+            "--at-risk-classes"
+        );
         assert_eq!(option_of(&["--case-class", "maybe"]), "--case-class");
     }
 
@@ -516,8 +528,14 @@ mod tests {
         assert_eq!(c.scan.direction, Direction::High);
         let c = check(&["--model", "ordinal", "--toward", "oppose"]).expect("oppose");
         assert_eq!(c.scan.direction, Direction::Low);
-        assert_eq!(option_of(&["--model", "ordinal", "--toward", "neutral"]), "--toward");
-        assert_eq!(option_of(&["--model", "ordinal", "--direction", "high"]), "--direction");
+        assert_eq!(
+            option_of(&["--model", "ordinal", "--toward", "neutral"]),
+            "--toward"
+        );
+        assert_eq!(
+            option_of(&["--model", "ordinal", "--direction", "high"]),
+            "--direction"
+        );
         assert_eq!(option_of(&["--direction", "both"]), "--direction");
         let poisson = [
             "--model",

@@ -330,7 +330,6 @@ pub(super) mod tests {
         sets
     }
 
-
     #[test]
     fn row_kernels_agree_with_plain_loops() {
         use rand::SeedableRng;

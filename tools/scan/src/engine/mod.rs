@@ -616,8 +616,8 @@ fn scan_centre<M: WindowModel, W: Count>(
 
 #[cfg(test)]
 mod tests {
-    use super::*;
     use super::kernels::tests::kernel_sets;
+    use super::*;
     use crate::models::{Bernoulli, Direction, Ordinal, Poisson};
 
     /// Every window of every centre, evaluated without pruning, for one labelling.
