@@ -365,7 +365,7 @@ fn bad_inputs_are_named_and_write_nothing() {
     ])
     .usage_error(&["--toward", "--direction"]);
     // A field whose labels are not stances: the synth's quality field.
-    with(&["--stance-field", "quality"]).usage_error(&["quality", "not a stance class"]);
+    with(&["--stance-field", "quality"]).usage_error(&["quality", "unknown stance values"]);
     // A single class: map every label to oppose.
     with(&["--classes", "oppose=oppose,neutral=oppose,support=oppose"])
         .usage_error(&["stance", "controls"]);
