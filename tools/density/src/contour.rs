@@ -1,145 +1,58 @@
 //! Contour polygons of a thresholded surface by marching squares (Lorensen & Cline 1987,
-//! *SIGGRAPH* 21(4), the 2-D case), saddles resolved by the mean of the four corners.
+//! *SIGGRAPH* 21(4), the 2-D case): rings traced by the `contour` crate with linear
+//! interpolation along cell edges, nested here.
 
-use std::collections::HashMap;
-
+use contour::ContourBuilder;
 use geo_types::{Coord, LineString, Polygon};
 use stance_core::grid::Grid;
+
+/// Rings enclosing less than this fraction of a cell are left out: they are the degenerate
+/// rings (a point or a line walked back and forth) around cells exactly at the level.
+pub const MIN_RING_CELLS: f64 = 1e-6;
 
 /// Polygons around the cells where `values ≤ level`, in the grid's coordinates (m).
 ///
 /// Vertices lie on the segments between cell centres where the linearly interpolated value
-/// equals `level`; NaN cells take the value `outside` (> `level`) and so does a frame of cells
-/// around the grid, so every contour closes. Exteriors run counter-clockwise, holes clockwise.
+/// equals `level`; NaN cells take the value `outside` (> `level`). Contours that reach the edge
+/// of the grid close along the grid's outer border. Exteriors run counter-clockwise, holes
+/// clockwise.
 pub fn polygons_at_or_below(
     grid: &Grid,
     values: &[f64],
     level: f64,
     outside: f64,
 ) -> Vec<Polygon<f64>> {
-    let outside = (outside - level).max(f64::MIN_POSITIVE);
-    let width = grid.cols + 2;
-    let height = grid.rows + 2;
-    // s ≤ 0 inside; the frame and NaN cells take `outside`.
-    let s = |r: usize, c: usize| -> f64 {
-        if r == 0 || c == 0 || r > grid.rows || c > grid.cols {
-            return outside;
-        }
-        let v = values[(r - 1) * grid.cols + (c - 1)];
-        if v.is_nan() {
-            outside
-        } else {
-            v - level
-        }
-    };
-    let node = |r: usize, c: usize| -> (f64, f64) {
-        (
-            grid.x_min + (c as f64 - 0.5) * grid.cell_m,
-            grid.y_max() - (r as f64 - 0.5) * grid.cell_m,
-        )
-    };
-    // Edge ids: 2·(r·width + c) for the edge to the east of node (r, c), +1 for the edge south.
-    let point_on_edge = |id: usize| -> Coord<f64> {
-        let n = id / 2;
-        let (r, c) = (n / width, n % width);
-        let (r1, c1) = if id & 1 == 0 { (r, c + 1) } else { (r + 1, c) };
-        let (s0, s1) = (s(r, c), s(r1, c1));
-        let t = if s0 == s1 {
-            0.5
-        } else {
-            (s0 / (s0 - s1)).clamp(0.0, 1.0)
-        };
-        let (x0, y0) = node(r, c);
-        let (x1, y1) = node(r1, c1);
-        Coord {
-            x: x0 + t * (x1 - x0),
-            y: y0 + t * (y1 - y0),
-        }
-    };
-    let mut segments: Vec<[usize; 2]> = Vec::new();
-    for r in 0..height - 1 {
-        for c in 0..width - 1 {
-            let (tl, tr, br, bl) = (s(r, c), s(r, c + 1), s(r + 1, c + 1), s(r + 1, c));
-            let case = (usize::from(tl <= 0.0) << 3)
-                | (usize::from(tr <= 0.0) << 2)
-                | (usize::from(br <= 0.0) << 1)
-                | usize::from(bl <= 0.0);
-            if case == 0 || case == 15 {
-                continue;
-            }
-            let top = 2 * (r * width + c);
-            let bottom = 2 * ((r + 1) * width + c);
-            let left = 2 * (r * width + c) + 1;
-            let right = 2 * (r * width + c + 1) + 1;
-            let centre_inside = (tl + tr + br + bl) / 4.0 <= 0.0;
-            let mut push = |a: usize, b: usize| segments.push([a, b]);
-            match case {
-                1 | 14 => push(left, bottom),
-                2 | 13 => push(bottom, right),
-                3 | 12 => push(left, right),
-                4 | 11 => push(top, right),
-                6 | 9 => push(top, bottom),
-                7 | 8 => push(left, top),
-                5 => {
-                    if centre_inside {
-                        push(top, left);
-                        push(right, bottom);
-                    } else {
-                        push(top, right);
-                        push(left, bottom);
-                    }
-                }
-                10 => {
-                    if centre_inside {
-                        push(top, right);
-                        push(left, bottom);
-                    } else {
-                        push(left, top);
-                        push(bottom, right);
-                    }
-                }
-                _ => {}
-            }
-        }
+    if grid.cols == 0 || grid.rows == 0 || values.len() != grid.len() {
+        return Vec::new();
     }
-    // Every crossed edge is shared by exactly two segments (the frame closes all contours).
-    let mut by_edge: HashMap<usize, Vec<usize>> = HashMap::new();
-    for (k, seg) in segments.iter().enumerate() {
-        for e in seg {
-            by_edge.entry(*e).or_default().push(k);
-        }
-    }
-    let mut used = vec![false; segments.len()];
-    let mut rings: Vec<Vec<Coord<f64>>> = Vec::new();
-    for start in 0..segments.len() {
-        if used[start] {
-            continue;
-        }
-        used[start] = true;
-        let first_edge = segments[start][0];
-        let mut edge = segments[start][1];
-        let mut ring = vec![point_on_edge(first_edge)];
-        let mut current = start;
-        while edge != first_edge {
-            ring.push(point_on_edge(edge));
-            let next = by_edge
-                .get(&edge)
-                .and_then(|list| list.iter().copied().find(|k| *k != current && !used[*k]));
-            let Some(next) = next else { break };
-            used[next] = true;
-            let [a, b] = segments[next];
-            edge = if a == edge { b } else { a };
-            current = next;
-        }
-        if ring.len() >= 3 {
-            ring.push(ring[0]);
-            rings.push(ring);
-        }
-    }
+    // The crate encloses values ≥ its threshold: negate (exact in floating point). Cell (r, c)
+    // sits at (c + ½, r + ½) in its frame, row 0 the northern row.
+    let negated: Vec<f64> = values
+        .iter()
+        .map(|v| if v.is_nan() { -outside } else { -v })
+        .collect();
+    let builder = ContourBuilder::new(grid.cols, grid.rows, true)
+        .x_origin(grid.x_min)
+        .x_step(grid.cell_m)
+        .y_origin(grid.y_max())
+        .y_step(-grid.cell_m);
+    let Ok(lines) = builder.lines(&negated, &[-level]) else {
+        return Vec::new();
+    };
+    let min_area2 = 2.0 * MIN_RING_CELLS * grid.cell_m * grid.cell_m;
+    let rings: Vec<Vec<Coord<f64>>> = lines
+        .into_iter()
+        .flat_map(|line| line.into_inner().0 .0)
+        .filter_map(|ring| {
+            let mut ring = ring.0;
+            ring.dedup();
+            (ring.len() >= 4 && signed_area2(&ring).abs() >= min_area2).then_some(ring)
+        })
+        .collect();
     assemble(rings)
 }
 
-/// Twice the signed area (positive counter-clockwise).
+/// Twice the signed area (positive counter-clockwise) of a closed ring.
 fn signed_area2(ring: &[Coord<f64>]) -> f64 {
     ring.windows(2)
         .map(|w| w[0].x * w[1].y - w[1].x * w[0].y)
@@ -174,6 +87,11 @@ fn bounds(ring: &[Coord<f64>]) -> Bounds {
 
 /// Nests non-crossing rings: depth = number of rings enclosing a ring; even depths are
 /// exteriors, odd depths holes of the deepest enclosing exterior.
+///
+/// Kept by hand rather than the crate's own polygons: the crate gives each hole to the first
+/// polygon whose exterior contains or touches a point of it, and on the demo's p-value grid
+/// (552 × 455 cells) that put one hole outside its shell, where rings touch at cells exactly at
+/// the level.
 fn assemble(rings: Vec<Vec<Coord<f64>>>) -> Vec<Polygon<f64>> {
     let boxes: Vec<Bounds> = rings.iter().map(|r| bounds(r)).collect();
     let probe = |k: usize| rings[k][0];
@@ -269,5 +187,71 @@ mod tests {
         );
         let none = polygons_at_or_below(&grid(5, 5), &[f64::NAN; 25], 0.5, 1.0);
         assert!(none.is_empty());
+    }
+
+    #[test]
+    fn a_cell_exactly_at_the_level_gives_no_degenerate_ring() {
+        // The centre cell equals the level and its neighbours are above: the interpolated
+        // crossings all fall on its centre, a ring of zero area, which is left out.
+        let mut v = vec![1.0; 9];
+        v[4] = 0.5;
+        assert!(polygons_at_or_below(&grid(3, 3), &v, 0.5, 1.0).is_empty());
+        // Just below the level it is a real (small) diamond: half-diagonals 0.1 → area 0.02.
+        v[4] = 0.5 - 0.5 / 9.0;
+        let polygons = polygons_at_or_below(&grid(3, 3), &v, 0.5, 1.0);
+        assert_eq!(polygons.len(), 1);
+        assert_relative_eq!(area_m2(&polygons[0]), 0.02, max_relative = 1e-9);
+    }
+
+    #[test]
+    fn islands_in_holes_keep_their_own_holes() {
+        // 13 × 13 cells, Chebyshev distance d from the centre cell; inside (0 ≤ 0.5) where
+        // d = 1 or d ∈ {4, 5}: an outer annulus and, inside its hole, an island with a hole.
+        // Crossings lie half-way between centres (values 0 and 1, level 0.5), so each square
+        // of side s cells has its four corners cut by triangles of legs ½: area s² − ½.
+        // Outer: (11² − ½) − (7² − ½) = 72; island: (3² − ½) − ½ (a one-cell diamond) = 8.
+        let v: Vec<f64> = (0..169)
+            .map(|k| {
+                let (r, c) = (k / 13, k % 13);
+                let d = (r as i64 - 6).abs().max((c as i64 - 6).abs());
+                if d == 1 || d == 4 || d == 5 {
+                    0.0
+                } else {
+                    1.0
+                }
+            })
+            .collect();
+        let mut polygons = polygons_at_or_below(&grid(13, 13), &v, 0.5, 1.0);
+        polygons.sort_by(|a, b| area_m2(b).total_cmp(&area_m2(a)));
+        assert_eq!(polygons.len(), 2);
+        assert_eq!(polygons[0].interiors().len(), 1);
+        assert_eq!(polygons[1].interiors().len(), 1);
+        assert_relative_eq!(area_m2(&polygons[0]), 72.0, max_relative = 1e-12);
+        assert_relative_eq!(area_m2(&polygons[1]), 8.0, max_relative = 1e-12);
+        for p in &polygons {
+            assert!(
+                signed_area2(&p.exterior().0) > 0.0,
+                "exterior counter-clockwise"
+            );
+            assert!(signed_area2(&p.interiors()[0].0) < 0.0, "hole clockwise");
+        }
+    }
+
+    #[test]
+    fn crossings_are_interpolated_and_nan_is_outside() {
+        // One row of three cells 0, 0.4, NaN at level 0.1 (NaN → outside = 1): only the first
+        // cell is inside. East, the contour crosses between centres 0.5 and 1.5 at
+        // 0.5 + 0.1/0.4 = 0.75; west, north and south it closes on the grid's border (x = 0,
+        // y = 1, y = 0) half-way along the cell. A kite of diagonals 0.75 and 1: area 0.375.
+        let v = [0.0, 0.4, f64::NAN];
+        let polygons = polygons_at_or_below(&grid(3, 1), &v, 0.1, 1.0);
+        assert_eq!(polygons.len(), 1);
+        let xs: Vec<f64> = polygons[0].exterior().0.iter().map(|c| c.x).collect();
+        let max_x = xs.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+        assert_relative_eq!(max_x, 0.75, max_relative = 1e-12);
+        assert_relative_eq!(area_m2(&polygons[0]), 0.375, max_relative = 1e-12);
+        // The NaN cell alone, at a level above every number: NaN stays outside.
+        let only_nan = polygons_at_or_below(&grid(3, 1), &[2.0, 2.0, f64::NAN], 0.1, 1.0);
+        assert!(only_nan.is_empty());
     }
 }

@@ -84,6 +84,7 @@ impl Tool for Density {
     fn run(params: &DensityParams, run: &mut Run) -> Result<Value> {
         let config = params.check()?;
         run.progress.phase("reading");
+        run.progress.set(0.0);
         let input = run.input()?.to_owned();
         let records = input::read_records(params, &config, run, &input)?;
         let mask = match &params.mask_layer {
@@ -91,6 +92,7 @@ impl Tool for Density {
             None => None,
         };
         run.progress.phase("bandwidth");
+        run.progress.set(0.0);
         let plan = plan::plan(&config, run, &records.points(), mask.as_deref())?;
         run.progress.set(0.1);
         let (slices, missing) = slice::group(config.slice, records.times.as_deref(), records.len());
@@ -117,8 +119,7 @@ impl Tool for Density {
             let (summary, seconds) = surfaces::slice_surfaces(&context, run, slice)?;
             summaries.push(summary);
             compute_s += seconds;
-            run.progress
-                .set(0.1 + 0.9 * (index + 1) as f64 / slices.len() as f64);
+            run.progress.set(context.fraction(index, 1.0));
         }
         run.debug(format!("class estimates compute_s: {compute_s:.3}"));
         Ok(output::summary(&config, &records, &plan, &summaries))

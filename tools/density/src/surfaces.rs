@@ -35,6 +35,20 @@ pub struct Context<'a> {
     pub slices: usize,
 }
 
+impl Context<'_> {
+    /// Fraction of the run done at `within` (0..=1) of slice `index`: the first tenth is
+    /// reading and planning, the rest is shared equally by the slices.
+    pub fn fraction(&self, index: usize, within: f64) -> f64 {
+        0.1 + 0.9 * (index as f64 + within) / self.slices as f64
+    }
+
+    /// Names the phase and shows it at `within` of slice `index`.
+    fn enter(&self, run: &Run, phase: &str, index: usize, within: f64) {
+        run.progress.phase(phase);
+        run.progress.set(self.fraction(index, within));
+    }
+}
+
 /// One slice: its key (empty for all records), its position and its records.
 #[derive(Debug, Clone, Copy)]
 pub struct SliceRef<'a> {
@@ -68,7 +82,7 @@ pub fn slice_surfaces(
     slice: SliceRef<'_>,
 ) -> Result<(SliceSummary, f64)> {
     run.check_interrupted()?;
-    run.progress.phase("surfaces");
+    context.enter(run, "surfaces", slice.index, 0.0);
     let (config, records) = (context.config, context.records);
     let target = Target {
         grid: &context.plan.grid,
@@ -231,7 +245,7 @@ fn tolerance_outputs(
         clock.elapsed().as_secs_f64()
     ));
 
-    run.progress.phase("writing");
+    context.enter(run, "writing", slice.index, 1.0);
     let target = Target {
         grid,
         srs: &context.records.srs,
@@ -268,7 +282,7 @@ fn relabel(
     observed: &[f64],
     floor: f64,
 ) -> Result<PValues> {
-    run.progress.phase("tolerance");
+    context.enter(run, "tolerance", slice.index, 0.0);
     let points = context.records.points();
     let pooled_sum: Vec<f64> = compared
         .sum_a
@@ -288,12 +302,13 @@ fn relabel(
         permutations,
         seed: replicate_seed(run.common.seed, slice.index as u64),
     };
-    let slices = context.slices as f64;
-    let base = 0.1 + 0.9 * slice.index as f64 / slices;
-    let span = 0.9 / slices;
     let progress = &run.progress;
+    let (start, end) = (
+        context.fraction(slice.index, 0.0),
+        context.fraction(slice.index, 1.0),
+    );
     let done = |n: usize| {
-        let fraction = base + span * n as f64 / permutations as f64;
+        let fraction = start + (end - start) * n as f64 / permutations as f64;
         progress.set_counted(fraction, n as u64, permutations as u64);
     };
     tolerance::relabelling_p_values(&job, run.interrupt().flag(), &done).ok_or(Error::Interrupted)
