@@ -27,17 +27,17 @@ demo: build
 	@rm -f $(OUT)/demo.gpkg
 	$(BIN)/stance import --input $(SAMPLE)/veldmark_records.csv --output $(OUT)/demo.gpkg --name records \
 	  --time-field time --author-field author --text-field text \
-	  --quality-field quality --min-quality place --max-per-author 40 --rejects records_rejected \
+	  --quality-field quality --min-quality town --max-per-author 40 --rejects records_rejected \
 	  > $(OUT)/import.json
 	$(BIN)/stance density --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name density \
 	  --bandwidth cv --compare support,oppose -q > $(OUT)/density.json
-	@for s in oppose neutral support diff sqrtdiff share logrr logrr_p logrr_p_lower; do \
-	  overlay=""; case $$s in diff|logrr|logrr_p|logrr_p_lower) overlay="--overlay density_tolerance";; esac; \
+	@for s in oppose neutral support diff sqrtdiff share log_ratio log_ratio_p_upper log_ratio_p_lower; do \
+	  overlay=""; case $$s in diff|log_ratio*) overlay="--overlay density_tolerance";; esac; \
 	  $(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_$$s $$overlay \
 	    --title "Veldmark levy debate: density_$$s" --png $(OUT)/density_$$s.png -q > /dev/null || exit 1; \
 	done
 	$(BIN)/stance scan --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name scan \
-	  --model ordinal --direction both --max-radius-m 12000 --centres-cell-m 2000 --replicates 199 \
+	  --model ordinal --toward both --max-radius-m 12000 --centres-cell-m 2000 --replicates 199 \
 	  --report-p 0.05 -q > $(OUT)/scan.json
 	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_diff \
 	  --overlay scan_clusters --title "Veldmark: ordinal scan clusters (p < 0.05) over support - oppose density" \
@@ -45,7 +45,7 @@ demo: build
 	$(BIN)/stance weights --input $(SAMPLE)/veldmark.gpkg --layer veldmark_districts --id-field code \
 	  --output $(OUT)/demo.gpkg --name district_weights -q > $(OUT)/weights.json
 	$(BIN)/stance rates --input $(OUT)/demo.gpkg --layer records --areas veldmark_districts \
-	  --areas-file $(SAMPLE)/veldmark.gpkg --event oppose --base all --id-field code \
+	  --areas-file $(SAMPLE)/veldmark.gpkg --case-class oppose --at-risk-classes all --id-field code \
 	  --weights district_weights --weights-file $(OUT)/demo.gpkg --surface density_diff \
 	  --output $(OUT)/demo.gpkg --name district_rates -q > $(OUT)/rates.json
 	$(BIN)/stance moran --input $(OUT)/demo.gpkg --layer district_rates --field rate_eb_global \
@@ -54,8 +54,9 @@ demo: build
 	  --field rate_eb_global --title "Veldmark: opposition share per district, empirical Bayes" \
 	  --png $(OUT)/district_rates.png -q > /dev/null
 	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas district_moran \
-	  --field cluster_type --categorical --title "Veldmark: local Moran's I clusters of opposition share" \
+	  --field cluster --categorical --title "Veldmark: local Moran's I clusters of opposition share" \
 	  --png $(OUT)/district_clusters.png -q > /dev/null
+	@tools/serve/demo.sh $(BIN)/stance $(OUT)
 	@echo "wrote $(OUT)/demo.gpkg:"; ogrinfo -q $(OUT)/demo.gpkg | sed 's/^/  /'
 	@echo "previews: $$(ls $(OUT)/*.png | tr '\n' ' ')"
 	@echo "summaries: $$(ls $(OUT)/*.json | tr '\n' ' ')"

@@ -489,57 +489,14 @@ fn snapped_groups(xs: &[f64], ys: &[f64], snap: f64) -> Vec<u32> {
     (0..xs.len() as u32).map(|v| find(&mut parent, v)).collect()
 }
 
-/// Area-weighted centroid of a multipolygon (holes subtract), by the shoelace formula;
-/// the mean of the exterior vertices when the area is zero.
+/// Area-weighted centroid of a multipolygon (holes subtract), from the `geo` crate (the same
+/// definition the scan uses); a zero-area shape gets the centroid of its outline, an empty one
+/// NaN.
 pub fn centroid(polygon: &MultiPolygon<f64>) -> (f64, f64) {
-    let (mut a, mut cx, mut cy) = (0.0, 0.0, 0.0);
-    // Shift to the first vertex so large projected coordinates do not cancel.
-    let origin = polygon
-        .0
-        .first()
-        .and_then(|p| p.exterior().0.first())
-        .map(|c| (c.x, c.y))
-        .unwrap_or((0.0, 0.0));
-    for p in &polygon.0 {
-        for (k, ring) in std::iter::once(p.exterior())
-            .chain(p.interiors())
-            .enumerate()
-        {
-            let mut ring_a = 0.0;
-            let (mut ring_x, mut ring_y) = (0.0, 0.0);
-            for w in ring.0.windows(2) {
-                let (x0, y0) = (w[0].x - origin.0, w[0].y - origin.1);
-                let (x1, y1) = (w[1].x - origin.0, w[1].y - origin.1);
-                let cross = x0 * y1 - x1 * y0;
-                ring_a += cross;
-                ring_x += (x0 + x1) * cross;
-                ring_y += (y0 + y1) * cross;
-            }
-            // Exterior counts positive and holes negative whatever their orientation.
-            let sign = if (k == 0) == (ring_a >= 0.0) {
-                1.0
-            } else {
-                -1.0
-            };
-            a += sign * ring_a;
-            cx += sign * ring_x;
-            cy += sign * ring_y;
-        }
-    }
-    if a.abs() > 0.0 {
-        (origin.0 + cx / (3.0 * a), origin.1 + cy / (3.0 * a))
-    } else {
-        let points: Vec<_> = polygon
-            .0
-            .iter()
-            .flat_map(|p| p.exterior().0.iter())
-            .collect();
-        let m = points.len().max(1) as f64;
-        (
-            points.iter().map(|c| c.x).sum::<f64>() / m,
-            points.iter().map(|c| c.y).sum::<f64>() / m,
-        )
-    }
+    use geo::Centroid;
+    polygon
+        .centroid()
+        .map_or((f64::NAN, f64::NAN), |p| (p.x(), p.y()))
 }
 
 type IndexedPoint = GeomWithData<[f64; 2], u32>;

@@ -27,7 +27,8 @@ def make(path, rows, cols, seed):
             corners = [(r, c), (r, c + 1), (r + 1, c + 1), (r + 1, c)]
             polygons.append(Polygon([(xs[a, b], ys[a, b]) for a, b in corners]))
             values.append(np.sin(r / 7.0) + np.cos(c / 9.0) + rng.normal(0.0, 1.0))
-    frame = geopandas.GeoDataFrame({"value": values}, geometry=polygons, crs="EPSG:3035")
+    frame = geopandas.GeoSeries(polygons, crs="EPSG:3035").to_frame("geometry")
+    frame.insert(0, "value", values)
     frame.to_file(path, layer="areas", driver="GPKG", engine="pyogrio")
 
 

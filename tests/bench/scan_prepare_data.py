@@ -19,8 +19,7 @@ _, first = np.unique(xy, axis=0, return_index=True)
 sites = xy[np.sort(first)[:20000]]
 _, nearest = cKDTree(sites).query(xy)
 xy = sites[nearest]
-records = gpd.GeoDataFrame({"stance": records["stance"].to_numpy()},
-                           geometry=gpd.points_from_xy(xy[:, 0], xy[:, 1]), crs=records.crs)
+records = records.set_geometry(gpd.points_from_xy(xy[:, 0], xy[:, 1], crs=records.crs))
 records.to_file(out_gpkg, layer="records", driver="GPKG")
 np.savez(out_npz, x=xy[:, 0], y=xy[:, 1], labels=(records["stance"].to_numpy() == "oppose").astype(np.int8))
 print(f"{len(records)} records on {len(np.unique(xy, axis=0))} distinct locations")

@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Benchmark: stance-scan (Bernoulli, cases = oppose, direction high) against a NumPy + Numba
+# Benchmark: stance-scan (Bernoulli, case class oppose, toward oppose) against a NumPy + Numba
 # parallel peer of the same statistic (tests/bench/scan_peer_numba.py) on 100,000 stance-synth
 # records at 20,000 distinct locations, max share 0.1 and 0.5, 999 replicates. Prints the time
 # of each whole run, windows evaluated per second per core, the ratio, both maximum LLRs, and
@@ -22,7 +22,7 @@ fi
 for share in $SHARES; do
   rm -f "$work/scan_out.gpkg"
   /usr/bin/time -f '%e %M' -o "$work/time_ours" $bin/stance-scan --input "$work/scan_bench.gpkg" --layer records \
-    --output "$work/scan_out.gpkg" --cases oppose --max-share "$share" --replicates "$R" --max-clusters 1 -q \
+    --output "$work/scan_out.gpkg" --case-class oppose --max-share "$share" --replicates "$R" --max-clusters 1 -q \
     > "$work/ours.json"
   /usr/bin/time -f '%e %M' -o "$work/time_peer" $PY tests/bench/scan_peer_numba.py "$work/scan_bench.npz" "$share" "$R" \
     > "$work/peer.json"
@@ -36,7 +36,7 @@ t_peer, m_peer = map(float, open(f"{work}/time_peer").read().split())
 res = ours["results"]
 w = res["windows_per_labelling"] * (R + 1)
 wp = peer["windows_per_labelling"] * (R + 1)
-llr = res["clusters"][0]["log_likelihood_ratio"]
+llr = res["clusters"][0]["llr"]
 print(f"max share {share}, {res['locations']} locations, {res['features_analysed']} records, {R} replicates, {cores} cores")
 print(f"  stance-scan : whole run {t_ours:8.2f} s (scan {res['scan_time_s']:.2f} s), "
       f"{w / res['scan_time_s'] / cores:.3e} windows/s/core, peak {m_ours / 1024:.0f} MiB, max LLR {llr:.9f}")

@@ -496,7 +496,7 @@ fn bad_inputs_exit_2_with_one_line_and_change_nothing() {
                 "veldmark_records",
                 "--areas",
                 "nope",
-                "--event",
+                "--case-class",
                 "oppose",
                 "--output",
                 "out.gpkg",

@@ -656,3 +656,30 @@ fn merged_layers_in_a_renumbered_crs_carry_the_new_srs_id_in_their_blobs() {
         assert_eq!(found, vec![vec!["1".to_owned()]], "{rtree}");
     }
 }
+
+/// A vector layer in a CRS the output does not have yet, published into a GeoPackage that holds
+/// a gridded coverage: GDAL gave that output the CRS WKT extension (its column
+/// `definition_12_063` is NOT NULL, OGC 12-128r18 annex F.10), which the staged file lacks; the
+/// new CRS row must get 'undefined' there, and the file must stay valid.
+#[test]
+fn a_new_crs_joins_an_output_that_holds_a_coverage() {
+    let dir = stance_tests::out_dir("new_crs_after_coverage");
+    let _ = std::fs::remove_file(dir.join("c.gpkg"));
+    stance_tests::synth(&dir, "c.gpkg", 2000, 4);
+    let common = ["--input", "c.gpkg", "--layer", "veldmark_records", "--output", "c.gpkg"];
+    let density = stance_tests::run_in(&dir, "stance-density", &[&common[..], &["-q"]].concat());
+    assert_eq!(density.code, 0, "{}", density.stderr);
+    let scan = stance_tests::run_in(
+        &dir,
+        "stance-scan",
+        &[&common[..], &["--crs", "EPSG:32608", "--replicates", "9", "--max-share", "0.2", "-q"]].concat(),
+    );
+    assert_eq!(scan.code, 0, "{}", scan.stderr);
+    let path = dir.join("c.gpkg");
+    let rows = stance_tests::rows(
+        &path,
+        "SELECT s.organization_coordsys_id, s.definition_12_063 FROM gpkg_spatial_ref_sys s \
+         JOIN gpkg_geometry_columns g ON g.srs_id = s.srs_id WHERE g.table_name = 'scan_clusters'",
+    );
+    assert_eq!(rows, vec![vec!["32608".to_string(), "undefined".to_string()]]);
+}

@@ -152,14 +152,18 @@ fn global_and_local_match_spdep_and_esda() {
                     "99",
                 ],
             );
-            let g = &summary["results"]["global_morans_i"];
+            let g = &summary["results"]["global"];
             let get = |k: &str| g[k].as_f64().expect(k);
             // R spdep 1.2-7 moran.test(randomisation = TRUE / FALSE).
             let r = &spdep[format!("global_queen_{key}")][spdep_global];
             close(get("i"), r["i"].as_f64().expect("i"), "I vs spdep");
-            close(get("expected"), r["expected"].as_f64().expect("E"), "E[I]");
             close(
-                get("variance_randomisation"),
+                get("expected_i"),
+                r["expected"].as_f64().expect("E"),
+                "E[I]",
+            );
+            close(
+                get("variance_i_randomisation"),
                 r["variance"].as_f64().expect("V"),
                 "Var_R",
             );
@@ -171,7 +175,7 @@ fn global_and_local_match_spdep_and_esda() {
             );
             let normal = &spdep[format!("global_queen_{key}")]["normality_greater"];
             close(
-                get("variance_normality"),
+                get("variance_i_normality"),
                 normal["variance"].as_f64().expect("V"),
                 "Var_N",
             );
@@ -182,7 +186,7 @@ fn global_and_local_match_spdep_and_esda() {
             let e = &esda[format!("global_queen_{key}")];
             close(get("i"), e["i"].as_f64().expect("i"), "I vs esda");
             close(
-                get("variance_normality"),
+                get("variance_i_normality"),
                 e["variance_normality"].as_f64().expect("VN"),
                 "VN esda",
             );
@@ -216,13 +220,7 @@ fn global_and_local_match_spdep_and_esda() {
             let got = local_fields(
                 &dir.join("out.gpkg"),
                 &name,
-                &[
-                    "local_morans_i",
-                    "local_morans_i_expected",
-                    "local_morans_i_variance",
-                    "local_morans_i_z",
-                    "p_analytic",
-                ],
+                &["local_i", "expected_i", "variance_i", "z", "p_analytic"],
             );
             for (c, field) in ["ii", "expected", "variance", "z"].iter().enumerate() {
                 for (i, expected) in numbers(&l[*field]).into_iter().enumerate() {
@@ -262,17 +260,15 @@ fn empirical_bayes_index_matches_spdep_and_esda() {
         &input,
         "eb",
         &[
-            "--events-field",
+            "--case-field",
             "SID74",
-            "--base-field",
+            "--at-risk-field",
             "BIR74",
             "--permutations",
             "99",
         ],
     );
-    let i = summary["results"]["global_morans_i"]["i"]
-        .as_f64()
-        .expect("I");
+    let i = summary["results"]["global"]["i"].as_f64().expect("I");
     // spdep 1.2-7 EBImoran.mc(SID74, BIR74, nb2listw(queen)) statistic; esda Moran_Rate(adjusted=True).
     close(
         i,
@@ -332,7 +328,11 @@ fn permutation_inference_behaves() {
         "rate",
         &["--field", "rate74", "--adjust", "none"],
     );
-    let got = local_fields(&dir.join("out.gpkg"), "rate", &["p_pseudo", "p_analytic"]);
+    let got = local_fields(
+        &dir.join("out.gpkg"),
+        "rate",
+        &["p_permutation", "p_analytic"],
+    );
     let pseudo: Vec<f64> = got[0].iter().map(|v| v.expect("p")).collect();
     let analytic: Vec<f64> = got[1].iter().map(|v| v.expect("p")).collect();
     let rho = spearman(&pseudo, &analytic);
@@ -345,7 +345,7 @@ fn permutation_inference_behaves() {
     for k in 1..=5 {
         let name = format!("random_{k}");
         moran(&dir, &input, &name, &["--field", &name, "--adjust", "none"]);
-        let p = local_fields(&dir.join("out.gpkg"), &name, &["p_pseudo"]);
+        let p = local_fields(&dir.join("out.gpkg"), &name, &["p_permutation"]);
         below += p[0].iter().filter(|v| v.expect("p") < 0.05).count();
         total += p[0].len();
     }
@@ -386,15 +386,88 @@ fn weights_table_threads_constant_field_and_islands() {
     );
     assert_eq!(from_table["results"]["weights"]["id_field"], "FIPS");
     let on_the_fly = moran(&dir, &input, "f", &["--field", "rate74"]);
-    let fields = ["local_morans_i", "p_pseudo", "p_pseudo_adjusted"];
+    let fields = ["local_i", "p_permutation", "p_adjusted", "neighbours"];
     assert_eq!(
         local_fields(&dir.join("out.gpkg"), "t", &fields),
         local_fields(&dir.join("out.gpkg"), "f", &fields)
     );
     assert_eq!(
-        from_table["results"]["global_morans_i"]["p_permutation"],
-        on_the_fly["results"]["global_morans_i"]["p_permutation"]
+        from_table["results"]["global"]["p_permutation"],
+        on_the_fly["results"]["global"]["p_permutation"]
     );
+    // The same table in another file, through --weights-file.
+    run_in(
+        &dir,
+        "stance-weights",
+        &[
+            "--input",
+            input_s,
+            "--output",
+            "w_other.gpkg",
+            "--id-field",
+            "FIPS",
+            "--name",
+            "w_fips",
+            "-q",
+        ],
+    )
+    .ok();
+    let other = dir.join("w_other.gpkg");
+    let from_file = moran(
+        &dir,
+        &input,
+        "o",
+        &[
+            "--field",
+            "rate74",
+            "--weights",
+            "w_fips",
+            "--weights-file",
+            other.to_str().expect("utf-8"),
+        ],
+    );
+    assert_eq!(from_file["results"]["weights"]["id_field"], "FIPS");
+    assert_eq!(
+        local_fields(&dir.join("out.gpkg"), "o", &fields),
+        local_fields(&dir.join("out.gpkg"), "f", &fields)
+    );
+    run_in(
+        &dir,
+        "stance-moran",
+        &[
+            "--input",
+            input_s,
+            "--output",
+            "c.gpkg",
+            "--field",
+            "rate74",
+            "--weights-file",
+            other.to_str().expect("utf-8"),
+        ],
+    )
+    .usage_error(&["--weights-file", "--weights"]);
+    // Holm (1979) step-down never exceeds Bonferroni and never goes below the raw p.
+    for method in ["bonferroni", "holm"] {
+        moran(
+            &dir,
+            &input,
+            method,
+            &["--field", "rate74", "--adjust", method, "--seed", "3"],
+        );
+    }
+    let bonferroni = local_fields(&dir.join("out.gpkg"), "bonferroni", &["p_adjusted"]);
+    let holm = local_fields(
+        &dir.join("out.gpkg"),
+        "holm",
+        &["p_adjusted", "p_permutation"],
+    );
+    let mut smaller = 0;
+    for ((b, h), raw) in bonferroni[0].iter().zip(&holm[0]).zip(&holm[1]) {
+        let (b, h, raw) = (b.expect("p"), h.expect("p"), raw.expect("p"));
+        assert!(raw <= h && h <= b, "raw {raw}, Holm {h}, Bonferroni {b}");
+        smaller += usize::from(h < b);
+    }
+    assert!(smaller > 0, "Holm equals Bonferroni everywhere");
     // --threads 1 and 2 give identical outputs.
     let one = moran(
         &dir,
@@ -420,12 +493,7 @@ fn weights_table_threads_constant_field_and_islands() {
             })
             .expect("object")
     );
-    let all = [
-        "local_morans_i",
-        "p_pseudo",
-        "p_pseudo_adjusted",
-        "local_morans_i_z",
-    ];
+    let all = ["local_i", "p_permutation", "p_adjusted", "z"];
     assert_eq!(
         local_fields(&dir.join("out.gpkg"), "th1", &all),
         local_fields(&dir.join("out.gpkg"), "th2", &all)
@@ -459,12 +527,13 @@ fn weights_table_threads_constant_field_and_islands() {
     let got = local_fields(
         &dir.join("out.gpkg"),
         "band",
-        &["is_island", "local_morans_i", "p_pseudo"],
+        &["is_island", "local_i", "p_permutation", "neighbours"],
     );
-    for ((flag, ii), p) in got[0].iter().zip(&got[1]).zip(&got[2]) {
+    for (((flag, ii), p), count) in got[0].iter().zip(&got[1]).zip(&got[2]).zip(&got[3]) {
         let island = *flag == Some(1.0);
         assert_eq!(island, ii.is_none());
         assert_eq!(island, p.is_none());
+        assert_eq!(island, *count == Some(0.0));
     }
     assert_eq!(
         got[0].iter().filter(|v| **v == Some(1.0)).count() as u64,

@@ -59,9 +59,9 @@ fn nc_sids_counts_on_the_areas_match_spdep_and_esda() {
         &nc,
         "--areas",
         "nc.gpkg",
-        "--events-field",
+        "--case-field",
         "SID74",
-        "--base-field",
+        "--at-risk-field",
         "BIR74",
         "--output",
         "o.gpkg",
@@ -85,8 +85,8 @@ fn nc_sids_counts_on_the_areas_match_spdep_and_esda() {
     let local = column(&out, "poisson", "rate_eb_local");
     assert_close(
         &local,
-        &numbers(&spdep, "local_geoda"),
-        "spdep EBlocal(geoda = TRUE)",
+        &numbers(&spdep, "local_marshall"),
+        "spdep EBlocal, spread around the local mean (make_rates.R)",
     );
     assert_close(
         &local,
@@ -152,7 +152,7 @@ fn synth_points_are_counted_once_and_rated_by_district() {
             "veldmark_records",
             "--areas",
             "veldmark_districts",
-            "--event",
+            "--case-class",
             "oppose",
             "--output",
             "o.gpkg",
@@ -172,14 +172,18 @@ fn synth_points_are_counted_once_and_rated_by_district() {
         "every point counted once or reported outside"
     );
     assert_eq!(results["model"], "binomial");
-    // Shares: base = all records, so count_total = base_count and events ≤ base.
+    // Shares: every record is at risk, so count_total = at_risk and cases ≤ at_risk.
     assert_eq!(
         column(&out, "rates", "count_total"),
-        column(&out, "rates", "base_count")
+        column(&out, "rates", "at_risk")
+    );
+    assert_eq!(
+        column(&out, "rates", "cases"),
+        column(&out, "rates", "count_oppose")
     );
     // Districts without records have no raw rate, are flagged, and take the prior mean.
     let raw = column(&out, "rates", "rate_raw");
-    let flags = column(&out, "rates", "base_zero_flag");
+    let flags = column(&out, "rates", "no_one_at_risk");
     let global = column(&out, "rates", "rate_eb_global");
     let mean = results["global_eb"]["prior_mean"].as_f64().expect("mean");
     for i in 0..raw.len() {
@@ -207,7 +211,7 @@ fn synth_points_are_counted_once_and_rated_by_district() {
         1
     );
 
-    // Per head: the unpopulated district (population 0) is the one zero-base area.
+    // Per head: the unpopulated district (population 0) is the one area with no one at risk.
     let summary = run_in(
         &dir,
         "stance-rates",
@@ -218,9 +222,9 @@ fn synth_points_are_counted_once_and_rated_by_district() {
             "veldmark_records",
             "--areas",
             "veldmark_districts",
-            "--event",
+            "--case-class",
             "support",
-            "--population-field",
+            "--at-risk-field",
             "population",
             "--output",
             "o.gpkg",
@@ -237,10 +241,13 @@ fn synth_points_are_counted_once_and_rated_by_district() {
         .map(|r| r[0].parse().expect("fid"))
         .collect();
     assert_eq!(zero.len(), 1);
-    assert_eq!(results["zero_base_areas"], serde_json::json!(zero));
+    assert_eq!(
+        results["areas_with_no_one_at_risk"],
+        serde_json::json!(zero)
+    );
     let flagged = rows(
         &out,
-        "SELECT fid, rate_raw, rate_eb_global FROM per_head WHERE base_zero_flag = 1",
+        "SELECT fid, rate_raw, rate_eb_global FROM per_head WHERE no_one_at_risk = 1",
     );
     assert_eq!(flagged.len(), 1);
     assert_eq!(flagged[0][1], "NULL");
@@ -267,21 +274,25 @@ fn bad_arguments_name_the_problem_and_write_nothing() {
     run_in(
         &dir,
         "stance-rates",
-        &[&base[..], &["--event", "maybe"]].concat(),
+        &[&base[..], &["--case-class", "maybe"]].concat(),
     )
-    .usage_error(&["--event", "maybe"]);
-    run_in(
-        &dir,
-        "stance-rates",
-        &[&base[..], &["--event", "oppose", "--base", "support"]].concat(),
-    )
-    .usage_error(&["--base", "oppose"]);
+    .usage_error(&["--case-class", "maybe"]);
     run_in(
         &dir,
         "stance-rates",
         &[
             &base[..],
-            &["--event", "oppose", "--population-field", "nope"],
+            &["--case-class", "oppose", "--at-risk-classes", "support"],
+        ]
+        .concat(),
+    )
+    .usage_error(&["--at-risk-classes", "oppose"]);
+    run_in(
+        &dir,
+        "stance-rates",
+        &[
+            &base[..],
+            &["--case-class", "oppose", "--at-risk-field", "nope"],
         ]
         .concat(),
     )
@@ -289,9 +300,19 @@ fn bad_arguments_name_the_problem_and_write_nothing() {
     run_in(
         &dir,
         "stance-rates",
-        &[&base[..], &["--events-field", "population"]].concat(),
+        &[&base[..], &["--case-field", "population"]].concat(),
     )
-    .usage_error(&["--base-field"]);
+    .usage_error(&["--at-risk-field"]);
+    run_in(
+        &dir,
+        "stance-rates",
+        &[
+            &base[..],
+            &["--case-class", "oppose", "--weights-file", "s.gpkg"],
+        ]
+        .concat(),
+    )
+    .usage_error(&["--weights-file", "--weights"]);
     assert!(
         !dir.join("o.gpkg").exists() || !tables(&dir.join("o.gpkg")).contains(&"rates".to_owned())
     );
@@ -329,7 +350,7 @@ fn a_surface_is_joined_to_the_districts() {
             "veldmark_records",
             "--areas",
             "veldmark_districts",
-            "--event",
+            "--case-class",
             "oppose",
             "--surface",
             "density_diff",
@@ -441,9 +462,9 @@ fn invalid_areas_are_reported_by_feature() {
             "areas.gpkg",
             "--areas",
             "areas",
-            "--events-field",
+            "--case-field",
             "e",
-            "--base-field",
+            "--at-risk-field",
             "b",
             "--output",
             "o.gpkg",

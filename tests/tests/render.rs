@@ -9,7 +9,7 @@ use stance_core::gpkg::read::read_polygons;
 use stance_core::gpkg::stage::{ExtraColumn, FieldDef, FieldKind, Staging};
 use stance_core::gpkg::{crs, raster, Provenance};
 use stance_core::grid::Grid;
-use stance_tests::{out_dir, run_in, sha256, synth};
+use stance_tests::{out_dir, rows, run_in, sha256, synth};
 
 /// batlow's top colour (Crameri, Scientific colour maps 8.0, last entry of batlow.txt).
 const BATLOW_HIGH: [u8; 3] = [250, 204, 250];
@@ -17,11 +17,11 @@ const BATLOW_HIGH: [u8; 3] = [250, 204, 250];
 const VIK_LOW: [u8; 3] = [0, 18, 97];
 /// The LISA palette of stance-render, in its order high-high, low-low, high-low, low-high, ns.
 const LISA: [[u8; 3]; 5] = [
-    [0xa6, 0x3d, 0x00],
-    [0x2d, 0x1e, 0x6b],
-    [0xf5, 0xb8, 0x41],
-    [0xa9, 0x9b, 0xe0],
-    [0xdc, 0xdc, 0xdc],
+    [0x99, 0x3d, 0x0b],
+    [0x0a, 0x33, 0x40],
+    [0xf0, 0xb0, 0x4a],
+    [0x2e, 0x8f, 0x8c],
+    [0xe8, 0xe0, 0xcc],
 ];
 
 fn provenance() -> Provenance {
@@ -366,6 +366,94 @@ fn districts_are_classed_by_a_numeric_field_and_by_lisa_cluster_type() {
         ],
     );
     assert_eq!(ran.ok()["results"]["palette"], "Okabe–Ito");
+}
+
+#[test]
+fn scan_clusters_are_drawn_by_the_side_they_lean_to() {
+    let path = fixture("render_scan");
+    let dir = path.parent().expect("dir").to_owned();
+    // Bernoulli clusters of oppose on both sides, in a file of their own (adding them to the
+    // fixture, whose CRS table carries the coverage extension's column, fails in shared/ today).
+    run_in(
+        &dir,
+        "stance-scan",
+        &[
+            "--input",
+            "s.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--output",
+            "scan.gpkg",
+            "--toward",
+            "both",
+            "--max-share",
+            "0.1",
+            "--max-clusters",
+            "8",
+            "--replicates",
+            "19",
+            "-q",
+        ],
+    )
+    .ok();
+    let scan = dir.join("scan.gpkg");
+    let sides: Vec<String> = rows(
+        &scan,
+        "SELECT DISTINCT leans_to FROM scan_clusters ORDER BY 1",
+    )
+    .into_iter()
+    .map(|r| r[0].clone())
+    .collect();
+    assert!(!sides.is_empty());
+    for side in &sides {
+        assert!(side == "oppose" || side == "neutral+support", "{side}");
+    }
+    let ran = run_in(
+        &dir,
+        "stance-render",
+        &[
+            "--input",
+            "scan.gpkg",
+            "--output",
+            "scan.gpkg",
+            "--areas",
+            "scan_clusters",
+            "--field",
+            "llr",
+            "--overlay",
+            "scan_clusters",
+            "--png",
+            "scan.png",
+            "-q",
+        ],
+    );
+    let results = ran.ok()["results"].clone();
+    // One legend entry per side present, each in its own colour and line.
+    let lines = results["overlay_lines"].as_array().expect("overlay lines");
+    let mut labels: Vec<&str> = lines
+        .iter()
+        .map(|l| l["label"].as_str().expect("label"))
+        .collect();
+    labels.sort_unstable();
+    assert_eq!(labels, sides.iter().map(String::as_str).collect::<Vec<_>>());
+    // The side colours of stance-render (plum toward support, green toward oppose, yellow for
+    // any other side such as joined control classes), each drawn on the page.
+    let (_, rgb) = pixels(&dir.join("scan.png"));
+    for line in lines {
+        let (label, colour) = (
+            line["label"].as_str().expect("label"),
+            line["colour"].as_str().expect("colour"),
+        );
+        let wanted = match label {
+            "oppose" => ([0x1a, 0x96, 0x41], "dashed"),
+            _ => ([0xff, 0xe0, 0x00], "dash-dot"),
+        };
+        let hex = format!("#{:02x}{:02x}{:02x}", wanted.0[0], wanted.0[1], wanted.0[2]);
+        assert_eq!(colour, hex);
+        assert_eq!(line["line"], wanted.1);
+        let n = rgb.iter().filter(|p| **p == wanted.0).count();
+        assert!(n > 50, "{label}: {n} pixels of {colour}");
+    }
 }
 
 #[test]

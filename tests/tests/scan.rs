@@ -76,7 +76,7 @@ fn ordinal_scan_recovers_planted_zones() {
                 out.to_str().expect("path"),
                 "--model",
                 "ordinal",
-                "--direction",
+                "--toward",
                 "both",
                 "--max-radius-m",
                 "12000",
@@ -91,13 +91,16 @@ fn ordinal_scan_recovers_planted_zones() {
         )
         .ok();
         let srs = clusters_srs(&out, "scan_clusters");
+        // A circle's centre is the middle of its bounding box (the R-tree's, rounded outward
+        // to f32: well under a metre here).
         let clusters = rows(
             &out,
-            "SELECT direction, centre_x_m, centre_y_m, p_value FROM scan_clusters ORDER BY rank",
+            "SELECT c.leans_to, (r.minx + r.maxx) / 2, (r.miny + r.maxy) / 2, c.p_monte_carlo \
+             FROM scan_clusters c JOIN rtree_scan_clusters_geom r ON r.id = c.fid ORDER BY c.cluster_no",
         );
         let mut found_here = 0;
         for (favours, zx, zy, radius) in planted_zones(&synth, &srs) {
-            let wanted = format!("toward_{favours}");
+            let wanted = favours;
             let found = clusters.iter().any(|c| {
                 let (x, y, p): (f64, f64, f64) = (
                     c[1].parse().expect("x"),
@@ -121,6 +124,7 @@ fn scan_outputs_and_thread_determinism() {
     let dir = out_dir("scan_determinism");
     synth(&dir, "s.gpkg", 800, 7);
     let mut outputs = Vec::new();
+    let mut summaries = Vec::new();
     for threads in ["1", "2"] {
         let out = format!("t{threads}.gpkg");
         let summary = run_in(
@@ -133,9 +137,9 @@ fn scan_outputs_and_thread_determinism() {
                 "veldmark_records",
                 "--output",
                 &out,
-                "--cases",
+                "--case-class",
                 "support",
-                "--direction",
+                "--toward",
                 "both",
                 "--max-share",
                 "0.2",
@@ -155,23 +159,78 @@ fn scan_outputs_and_thread_determinism() {
             .expect("clusters")
             .is_empty());
         outputs.push(dir.join(out));
+        summaries.push(summary);
     }
-    let clusters = "SELECT rank, direction, centre_x_m, centre_y_m, radius_m, locations, records, cases, \
-        expected_cases, relative_risk, log_likelihood_ratio, p_value, p_value_gumbel FROM scan_clusters ORDER BY rank";
-    let members = "SELECT feature_id, cluster_rank FROM scan_members ORDER BY feature_id";
+    let clusters =
+        "SELECT cluster_no, leans_to, radius_m, records_in, share_in_oppose, share_out_oppose, \
+        share_in_neutral, share_out_neutral, share_in_support, share_out_support, risk_ratio, llr, \
+        p_monte_carlo, p_gumbel, replicates FROM scan_clusters ORDER BY cluster_no";
+    let members = "SELECT feature_id, cluster_no FROM scan_members ORDER BY feature_id";
     assert_eq!(rows(&outputs[0], clusters), rows(&outputs[1], clusters));
     assert_eq!(rows(&outputs[0], members), rows(&outputs[1], members));
     assert_eq!(tables(&outputs[0]), vec!["scan_clusters", "scan_members"]);
-    // Every member lies in its cluster's circle (records are read back from the input).
+    // The layer's fields, in order, are the summary's keys.
+    let summary_keys: Vec<String> = summaries[0]["results"]["clusters"][0]
+        .as_object()
+        .expect("cluster")
+        .keys()
+        .cloned()
+        .collect();
+    let layer_fields: Vec<String> = rows(
+        &outputs[0],
+        "SELECT name FROM pragma_table_info('scan_clusters')",
+    )
+    .into_iter()
+    .map(|r| r[0].clone())
+    .filter(|n| n != "fid" && n != "geom")
+    .collect();
+    assert_eq!(summary_keys, layer_fields);
+    // Both sides: the case class, or the control classes joined by '+'.
+    for side in rows(&outputs[0], "SELECT DISTINCT leans_to FROM scan_clusters") {
+        assert!(
+            side[0] == "support" || side[0] == "oppose+neutral",
+            "{side:?}"
+        );
+    }
+    // Every member lies in its cluster's circle, and the shares inside are those of the
+    // members' stance labels, counted here from the input records (exact fractions of small
+    // integers; tolerance 1e-12 for the division).
     let first = rows(
         &outputs[0],
-        "SELECT rank, records, cases FROM scan_clusters WHERE rank = 1",
+        "SELECT records_in, share_in_oppose, share_in_neutral, share_in_support, risk_ratio, \
+         share_out_support FROM scan_clusters WHERE cluster_no = 1",
     );
-    let member_count = rows(
+    let member_ids: Vec<String> = rows(
         &outputs[0],
-        "SELECT count(*) FROM scan_members WHERE cluster_rank = 1",
+        "SELECT feature_id FROM scan_members WHERE cluster_no = 1",
+    )
+    .into_iter()
+    .map(|r| r[0].clone())
+    .collect();
+    assert_eq!(first[0][0], member_ids.len().to_string());
+    let stances = rows(
+        &dir.join("s.gpkg"),
+        &format!(
+            "SELECT stance FROM veldmark_records WHERE fid IN ({})",
+            member_ids.join(",")
+        ),
     );
-    assert_eq!(first[0][1], member_count[0][0]);
+    let n = member_ids.len() as f64;
+    for (k, class) in ["oppose", "neutral", "support"].iter().enumerate() {
+        let count = stances.iter().filter(|s| s[0] == *class).count() as f64;
+        let share: f64 = first[0][1 + k].parse().expect("share");
+        assert!(
+            (share - count / n).abs() < 1e-12,
+            "{class}: {share} vs {count}/{n}"
+        );
+    }
+    // Risk ratio = case share inside / case share outside (Kulldorff 1997's relative risk).
+    let (share_in, share_out, rr): (f64, f64, f64) = (
+        first[0][3].parse().expect("in"),
+        first[0][5].parse().expect("out"),
+        first[0][4].parse().expect("rr"),
+    );
+    assert!((rr - share_in / share_out).abs() < 1e-12 * rr.abs());
 }
 
 #[test]
@@ -202,9 +261,9 @@ fn poisson_scan_on_areas() {
             "poisson",
             "--areas",
             "areas",
-            "--count-field",
+            "--case-field",
             "oppose_count",
-            "--population-field",
+            "--at-risk-field",
             "population",
             "--max-share",
             "0.2",
@@ -217,13 +276,44 @@ fn poisson_scan_on_areas() {
     let results = &summary["results"];
     assert_eq!(results["model"], "poisson");
     let top = &results["clusters"][0];
-    assert!(top["log_likelihood_ratio"].as_f64().expect("llr") > 0.0);
-    assert!(top["population"].as_f64().expect("population") > 0.0);
-    let members = rows(
-        &dir.join("out.gpkg"),
-        "SELECT count(*) FROM scan_members WHERE cluster_rank = 1",
+    assert!(top["llr"].as_f64().expect("llr") > 0.0);
+    assert!(top["records_in"].is_null());
+    assert!(top["leans_to"] == "high");
+    assert_eq!(results["direction"], "high");
+    // Cases and expected cases inside, recomputed here from the member areas: observed = the
+    // sum of their counts; expected = C · (their population) / (all population)
+    // (Kulldorff 1997, §5). Tolerance 1e-9 relative: sums of a few hundred doubles.
+    let out = dir.join("out.gpkg");
+    let members: Vec<String> = rows(
+        &out,
+        "SELECT feature_id FROM scan_members WHERE cluster_no = 1",
+    )
+    .into_iter()
+    .map(|r| r[0].clone())
+    .collect();
+    let inside = rows(
+        &dir.join("areas.gpkg"),
+        &format!(
+            "SELECT sum(oppose_count), sum(population) FROM areas WHERE fid IN ({})",
+            members.join(",")
+        ),
     );
-    assert_eq!(members[0][0], top["locations"].to_string());
+    let all = rows(
+        &dir.join("areas.gpkg"),
+        "SELECT sum(oppose_count), sum(population) FROM areas",
+    );
+    let number = |s: &str| s.parse::<f64>().expect("number");
+    let (o, p_in) = (number(&inside[0][0]), number(&inside[0][1]));
+    let (c, p_all) = (number(&all[0][0]), number(&all[0][1]));
+    assert_eq!(top["cases_in"].as_f64(), Some(o));
+    assert_eq!(results["cases_total"].as_f64(), Some(c));
+    let e = c * p_in / p_all;
+    let expected_in = top["expected_in"].as_f64().expect("expected");
+    assert!((expected_in - e).abs() < 1e-9 * e, "{expected_in} vs {e}");
+    // Risk ratio (O/E) / ((C − O)/(C − E)).
+    let rr = (o / e) / ((c - o) / (c - e));
+    let got = top["risk_ratio"].as_f64().expect("rr");
+    assert!((got - rr).abs() < 1e-9 * rr, "{got} vs {rr}");
 }
 
 #[test]
@@ -248,9 +338,32 @@ fn bad_inputs_are_named_and_write_nothing() {
     };
     with(&["--max-share", "0.7"]).usage_error(&["--max-share", "0.7", "(0, 0.5]"]);
     with(&["--max-share", "0"]).usage_error(&["--max-share"]);
-    with(&["--cases", "maybe"]).usage_error(&["--cases", "maybe"]);
-    with(&["--cases", "support", "--controls", "support"]).usage_error(&["--controls", "support"]);
+    with(&["--case-class", "maybe"]).usage_error(&["--case-class", "maybe"]);
+    with(&["--case-class", "support", "--at-risk-classes", "support"])
+        .usage_error(&["--at-risk-classes", "support"]);
+    with(&[
+        "--case-class",
+        "support",
+        "--at-risk-classes",
+        "oppose,neutral",
+    ])
+    .usage_error(&["--at-risk-classes", "case class"]);
+    with(&["--direction", "high"]).usage_error(&["--direction", "--toward"]);
+    with(&["--model", "ordinal", "--toward", "neutral"]).usage_error(&["--toward", "neutral"]);
     with(&["--model", "poisson"]).usage_error(&["--areas"]);
+    with(&[
+        "--model",
+        "poisson",
+        "--areas",
+        "veldmark_districts",
+        "--case-field",
+        "population",
+        "--at-risk-field",
+        "population",
+        "--toward",
+        "oppose",
+    ])
+    .usage_error(&["--toward", "--direction"]);
     // A field whose labels are not stances: the synth's quality field.
     with(&["--stance-field", "quality"]).usage_error(&["quality", "not a stance class"]);
     // A single class: map every label to oppose.
@@ -266,5 +379,6 @@ fn bad_inputs_are_named_and_write_nothing() {
     assert!(!dir.join("out.gpkg").exists());
     // No replicates is allowed: clusters come without p-values.
     let summary = with(&["--replicates", "0", "--max-clusters", "2"]).ok();
-    assert!(summary["results"]["clusters"][0]["p_value"].is_null());
+    assert!(summary["results"]["clusters"][0]["p_monte_carlo"].is_null());
+    assert_eq!(summary["results"]["clusters"][0]["replicates"], 0);
 }

@@ -66,6 +66,8 @@ fn queen_and_rook_match_spdep_and_libpysal_on_nc() {
         assert_eq!(spdep[format!("{method}_links")], links);
         assert_eq!(pysal[format!("{method}_links")], links);
         assert_eq!(results["areas"], 100);
+        // spdep card(): 4.90 and 4.62 neighbours per county on average.
+        assert_eq!(results["mean_neighbours"], f64::from(links) / 100.0);
         assert_eq!(results["connected_components"], 1);
         assert_eq!(results["symmetric"], true);
         let expected: Vec<Vec<u64>> =

@@ -118,6 +118,17 @@ pub fn working(
     laea_centred(lon, lat)
 }
 
+/// The CRS for summaries: `EPSG:n` when known, else its PROJ string (the centred Lambert
+/// azimuthal equal-area projection has no name).
+pub fn summary_text(srs: &SpatialRef) -> String {
+    let name = label(srs);
+    if name.eq_ignore_ascii_case("unknown") {
+        srs.to_proj4().map(|p| p.trim().to_owned()).unwrap_or(name)
+    } else {
+        name
+    }
+}
+
 /// Transforms coordinates in place from `from` to `to`.
 ///
 /// # Errors

@@ -20,17 +20,12 @@ pub enum MethodArg {
     Distance,
 }
 
-fn default_method() -> MethodArg {
-    MethodArg::Queen
-}
-
 /// `--method`, `--k`, `--max-distance-m`, `--snap-m`.
 #[derive(Debug, Clone, clap::Args, serde::Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "kebab-case")]
 pub struct NeighbourArgs {
     /// How neighbours are defined.
     #[arg(long, value_enum, default_value_t = MethodArg::Queen)]
-    #[serde(default = "default_method")]
     pub method: MethodArg,
 
     /// Number of nearest neighbours (with --method knn).
@@ -43,7 +38,6 @@ pub struct NeighbourArgs {
 
     /// Vertices closer than this are one boundary point (closes digitising gaps), in metres.
     #[arg(long, value_name = "METRES", default_value_t = 0.0)]
-    #[serde(default)]
     pub snap_m: f64,
 }
 

@@ -4,8 +4,10 @@
 //! permutation tests, and the Empirical Bayes standardised rate (Assunção & Reis 1999,
 //! Stat. Med. 18(16)).
 //!
-//! Scales follow R spdep 1.2: local Ii = (z_i / m2) Σ_j w_ij z_j with m2 = Σ z² / n (esda's `Is`
-//! is (n − 1)/n times this); global I uses spdep's `adjust.n`: n counts areas with neighbours.
+//! Scales: local I_i = (z_i / m2) Σ_j w_ij z_j with m2 = Σ z² / n, the n-divisor scale of
+//! Anselin (1995, eq. 7 with m2 as the variance); the (n − 1)-divisor scale is (n − 1)/n times
+//! this. In the global I, n counts the areas with neighbours (islands carry no weight in S0).
+//! The reference checks (tests/) compare both with R spdep and PySAL esda.
 
 use rayon::prelude::*;
 use stance_core::montecarlo::{mix64, Draws};
@@ -20,6 +22,17 @@ pub enum Alternative {
     Greater,
     /// Negative association (dispersion).
     Less,
+}
+
+/// How the permutation tests are run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Inference {
+    /// Random relabellings (0 = none).
+    pub permutations: usize,
+    /// Seed of the relabellings (replicate r uses its own stream, so threads do not matter).
+    pub seed: u64,
+    /// Direction of the tests.
+    pub alternative: Alternative,
 }
 
 /// Errors of the statistics.
@@ -136,7 +149,7 @@ pub struct GlobalMoran {
     pub expected: f64,
     /// Var[I] under normality (Cliff & Ord 1981, eq. 2.33).
     pub variance_normality: f64,
-    /// Var[I] under randomisation (Cliff & Ord 1981, eq. 2.34; spdep `moran.test` default).
+    /// Var[I] under randomisation (Cliff & Ord 1981, eq. 2.34).
     pub variance_randomisation: f64,
     /// (I − E[I]) / √Var_normality.
     pub z_normality: f64,
@@ -170,7 +183,7 @@ fn check_values(x: &[f64]) -> Result<(), MoranError> {
     Ok(())
 }
 
-/// Values centred on their mean (over every area, islands included, as spdep).
+/// Values centred on their mean (over every area, islands included).
 fn centred(x: &[f64]) -> Vec<f64> {
     let mean = x.iter().sum::<f64>() / x.len() as f64;
     x.iter().map(|v| v - mean).collect()
@@ -182,6 +195,10 @@ fn cross_product(w: &SparseWeights, z: &[f64]) -> f64 {
 
 /// Permutations whose cross products are computed in one pass over the weights.
 const BLOCK: usize = 8;
+
+/// Global permutations between two progress reports (a multiple of [`BLOCK`], so the blocks,
+/// and the values, are the same as without reports).
+const PROGRESS_STEP: usize = 64 * BLOCK;
 
 /// Σ_i z_π(i) Σ_j w_ij z_π(j) for the permutations π of `replicates` (at most [`BLOCK`]; replicate
 /// r shuffles with [`Draws`]`::new(seed, r)`). The permuted values are interleaved so that one
@@ -228,13 +245,18 @@ fn block_cross_products(
 ///
 /// # Errors
 /// [`MoranError`] for non-finite or constant values, or fewer than 4 areas with neighbours.
+/// `progress` is told how many permutations are done, now and then.
 pub fn global_moran(
     x: &[f64],
     w: &SparseWeights,
-    permutations: usize,
-    seed: u64,
-    alternative: Alternative,
+    inference: &Inference,
+    progress: &dyn Fn(usize),
 ) -> Result<GlobalMoran, MoranError> {
+    let Inference {
+        permutations,
+        seed,
+        alternative,
+    } = *inference;
     check_values(x)?;
     let with_neighbours = (0..w.len()).filter(|&i| !w.row(i).0.is_empty()).count();
     if with_neighbours < 4 {
@@ -261,15 +283,20 @@ pub fn global_moran(
         (f64::NAN, f64::NAN)
     } else {
         let indices: Vec<u64> = (0..permutations as u64).collect();
-        let replicates: Vec<f64> = indices
-            .par_chunks(BLOCK)
-            .flat_map_iter(|chunk| {
-                block_cross_products(w, &z, chunk, seed)
-                    .into_iter()
-                    .take(chunk.len())
-                    .map(|c| n / m.s0 * c / zz)
-            })
-            .collect();
+        let mut replicates: Vec<f64> = Vec::with_capacity(permutations);
+        for part in indices.chunks(PROGRESS_STEP) {
+            replicates.extend(
+                part.par_chunks(BLOCK)
+                    .flat_map_iter(|chunk| {
+                        block_cross_products(w, &z, chunk, seed)
+                            .into_iter()
+                            .take(chunk.len())
+                            .map(|c| n / m.s0 * c / zz)
+                    })
+                    .collect::<Vec<f64>>(),
+            );
+            progress(replicates.len());
+        }
         let at_least = replicates.iter().filter(|v| **v >= i).count();
         let at_most = replicates.iter().filter(|v| **v <= i).count();
         (
@@ -298,8 +325,8 @@ pub fn global_moran(
 /// Local Moran's I of every area; islands hold NaN.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LocalMoran {
-    /// Ii = (z_i / m2) Σ_j w_ij z_j, m2 = Σ z² / n (spdep's scale).
-    pub ii: Vec<f64>,
+    /// I_i = (z_i / m2) Σ_j w_ij z_j, m2 = Σ z² / n (the n-divisor scale).
+    pub local_i: Vec<f64>,
     /// E[Ii] under conditional randomisation: −z_i² W_i / ((n − 1) m2).
     pub expected: Vec<f64>,
     /// Var[Ii] under conditional randomisation:
@@ -325,24 +352,29 @@ const LOCAL_STREAM: u64 = 0x4C4F_4341_4C5F_4D49;
 ///
 /// Conditional permutation (Anselin 1995): area i keeps its value and its |N(i)| neighbours'
 /// values are replaced by |N(i)| values drawn without replacement from the other n − 1 areas.
-/// As in PySAL esda, one set of random draws serves every area: permutation r draws an ordered
+/// One set of random draws serves every area: permutation r draws an ordered
 /// sample q_r of K + 1 distinct areas (K = the largest number of neighbours) and area i takes the
 /// first |N(i)| entries of q_r that are not i itself, which is a uniform draw from the other
 /// areas for every i, so each area's pseudo p is an exact permutation p-value. Sharing the
-/// draws makes the p-values of different areas dependent (as in esda) and makes the test
+/// draws makes the p-values of different areas dependent and makes the test
 /// O(n · R) instead of O(n · R · |N|): with equal weights in a row (every weights method of the
 /// toolbox) the permuted lag is a prefix sum of q_r's values. Permutation r draws from
 /// [`Draws`]`::new(mix64(seed ^ LOCAL_STREAM), r)`, so results do not depend on threads.
 ///
 /// # Errors
 /// [`MoranError`] for non-finite or constant values.
+/// `progress` is told how many permutations are done, now and then.
 pub fn local_moran(
     x: &[f64],
     w: &SparseWeights,
-    permutations: usize,
-    seed: u64,
-    alternative: Alternative,
+    inference: &Inference,
+    progress: &dyn Fn(usize),
 ) -> Result<LocalMoran, MoranError> {
+    let Inference {
+        permutations,
+        seed,
+        alternative,
+    } = *inference;
     check_values(x)?;
     let n = x.len();
     let nf = n as f64;
@@ -374,7 +406,7 @@ pub fn local_moran(
         vec![f64::NAN; n]
     } else {
         let stream = mix64(seed ^ LOCAL_STREAM);
-        local_permutation_counts(&z, m2, w, &ii, permutations, stream)
+        local_permutation_counts(&z, m2, w, &ii, (permutations, stream), progress)
             .into_iter()
             .zip(&ii)
             .map(|([at_least, at_most], value)| {
@@ -398,7 +430,7 @@ pub fn local_moran(
         p_analytic: column(4),
         p_permutation,
         lag: column(5),
-        ii,
+        local_i: ii,
         centred: z,
     })
 }
@@ -424,18 +456,22 @@ fn ordered_sample(n: usize, depth: usize, draws: &mut Draws) -> Vec<u32> {
 }
 
 /// Per area, how many permuted Ii were ≥ and ≤ the observed one (see [`local_moran`]).
+/// `replicates` is (permutations, random stream). Permutation r draws its sample from its own
+/// stream, so the block size (bounded for memory and for progress reports) changes nothing.
 fn local_permutation_counts(
     z: &[f64],
     m2: f64,
     w: &SparseWeights,
     ii: &[f64],
-    permutations: usize,
-    stream: u64,
+    (permutations, stream): (usize, u64),
+    progress: &dyn Fn(usize),
 ) -> Vec<[u32; 2]> {
     let n = z.len();
     let most = (0..n).map(|i| w.row(i).0.len()).max().unwrap_or(0);
     let depth = (most + 1).min(n);
-    let block = (SHARED_DRAW_VALUES / depth).clamp(1, permutations);
+    let block = (SHARED_DRAW_VALUES / depth)
+        .min(permutations.div_ceil(10))
+        .clamp(1, permutations);
     let mut counts = vec![[0u32; 2]; n];
     let mut first = 0;
     while first < permutations {
@@ -514,6 +550,7 @@ fn local_permutation_counts(
             }
         });
         first += used;
+        progress(first);
     }
     counts
 }
@@ -535,7 +572,7 @@ pub fn cluster_type(centred: f64, lag: f64, p: f64, alpha: f64) -> Option<&'stat
     })
 }
 
-/// Assunção–Reis (1999) Empirical Bayes standardised rates, as spdep `EBImoran.mc`:
+/// Assunção–Reis (1999) Empirical Bayes standardised rates:
 /// p_i = e_i / b_i, β = Σe / Σb, α = Σ b_i (p_i − β)² / Σb − β / (Σb / n) (set to 0 when
 /// negative, Marshall 1991), v_i = α + β / b_i, z_i = (p_i − β) / √v_i.
 ///
@@ -618,8 +655,18 @@ mod tests {
         // Lags (row): −2, (−3 − 1)/2 = −2, (−2 + 6)/2 = 2, −1.
         // Ii = z·lag/m2: 6/12.5 = 0.48, 4/12.5 = 0.32, −2/12.5 = −0.16, −6/12.5 = −0.48.
         let (x, w) = path();
-        let l = local_moran(&x, &w, 0, 1, Alternative::TwoSided).expect("valid");
-        for (g, e) in l.ii.iter().zip([0.48, 0.32, -0.16, -0.48]) {
+        let l = local_moran(
+            &x,
+            &w,
+            &Inference {
+                permutations: 0,
+                seed: 1,
+                alternative: Alternative::TwoSided,
+            },
+            &|_| {},
+        )
+        .expect("valid");
+        for (g, e) in l.local_i.iter().zip([0.48, 0.32, -0.16, -0.48]) {
             assert_relative_eq!(*g, e, max_relative = 1e-14);
         }
         // E[I0] = −z0² W0 / ((n−1) m2) = −9 / 37.5 = −0.24.
@@ -649,7 +696,17 @@ mod tests {
     fn global_moran_on_a_path_by_hand() {
         // Row weights: S0 = 4, n = 4; Σ z·lag = 6 + 4 − 2 − 6 = 2 → I = (4/4) · 2/50 = 0.04.
         let (x, w) = path();
-        let g = global_moran(&x, &w, 99, 7, Alternative::Greater).expect("valid");
+        let g = global_moran(
+            &x,
+            &w,
+            &Inference {
+                permutations: 99,
+                seed: 7,
+                alternative: Alternative::Greater,
+            },
+            &|_| {},
+        )
+        .expect("valid");
         assert_relative_eq!(g.i, 0.04, max_relative = 1e-14);
         assert_relative_eq!(g.expected, -1.0 / 3.0, max_relative = 1e-14);
         assert!(g.p_permutation > 0.0 && g.p_permutation <= 1.0);
@@ -659,20 +716,57 @@ mod tests {
     fn constant_nan_and_islands() {
         let (_, w) = path();
         assert_eq!(
-            global_moran(&[2.0; 4], &w, 0, 1, Alternative::Greater),
+            global_moran(
+                &[2.0; 4],
+                &w,
+                &Inference {
+                    permutations: 0,
+                    seed: 1,
+                    alternative: Alternative::Greater
+                },
+                &|_| {}
+            ),
             Err(MoranError::Constant(2.0))
         );
-        assert!(local_moran(&[1.0, f64::NAN, 2.0, 3.0], &w, 0, 1, Alternative::Greater).is_err());
+        assert!(local_moran(
+            &[1.0, f64::NAN, 2.0, 3.0],
+            &w,
+            &Inference {
+                permutations: 0,
+                seed: 1,
+                alternative: Alternative::Greater
+            },
+            &|_| {}
+        )
+        .is_err());
         let island = Neighbours {
             lists: vec![vec![1], vec![0, 2], vec![1], vec![]],
         }
         .standardise(Standardisation::Row);
-        let l = local_moran(&[1.0, 2.0, 3.0, 4.0], &island, 9, 1, Alternative::TwoSided)
-            .expect("valid");
-        assert!(l.ii[3].is_nan() && l.p_permutation[3].is_nan());
-        assert!(l.ii[0].is_finite());
+        let l = local_moran(
+            &[1.0, 2.0, 3.0, 4.0],
+            &island,
+            &Inference {
+                permutations: 9,
+                seed: 1,
+                alternative: Alternative::TwoSided,
+            },
+            &|_| {},
+        )
+        .expect("valid");
+        assert!(l.local_i[3].is_nan() && l.p_permutation[3].is_nan());
+        assert!(l.local_i[0].is_finite());
         assert_eq!(
-            global_moran(&[1.0, 2.0, 3.0, 4.0], &island, 0, 1, Alternative::Greater),
+            global_moran(
+                &[1.0, 2.0, 3.0, 4.0],
+                &island,
+                &Inference {
+                    permutations: 0,
+                    seed: 1,
+                    alternative: Alternative::Greater
+                },
+                &|_| {}
+            ),
             Err(MoranError::TooFew(3))
         );
     }
@@ -701,8 +795,28 @@ mod tests {
                 .expect("pool")
                 .install(|| {
                     (
-                        local_moran(&x, &w, 199, 5, Alternative::TwoSided).expect("valid"),
-                        global_moran(&x, &w, 199, 5, Alternative::TwoSided).expect("valid"),
+                        local_moran(
+                            &x,
+                            &w,
+                            &Inference {
+                                permutations: 199,
+                                seed: 5,
+                                alternative: Alternative::TwoSided,
+                            },
+                            &|_| {},
+                        )
+                        .expect("valid"),
+                        global_moran(
+                            &x,
+                            &w,
+                            &Inference {
+                                permutations: 199,
+                                seed: 5,
+                                alternative: Alternative::TwoSided,
+                            },
+                            &|_| {},
+                        )
+                        .expect("valid"),
                     )
                 })
         };

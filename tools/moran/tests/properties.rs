@@ -4,7 +4,7 @@
 
 use proptest::prelude::*;
 use stance_core::weights::{Neighbours, Standardisation};
-use stance_moran::maths::{global_moran, Alternative};
+use stance_moran::maths::{global_moran, Alternative, Inference};
 
 /// A rook lattice of `cols × rows` cells: a fixed, connected neighbour structure.
 fn lattice(cols: usize, rows: usize) -> Neighbours {
@@ -38,7 +38,7 @@ proptest! {
         let style = if row_standardised { Standardisation::Row } else { Standardisation::Binary };
         let mean = values.iter().sum::<f64>() / 20.0;
         prop_assume!(values.iter().any(|v| (v - mean).abs() > 1e-6));
-        let original = global_moran(&values, &nb.standardise(style), 0, 1, Alternative::TwoSided).expect("moran");
+        let original = global_moran(&values, &nb.standardise(style), &Inference { permutations: 0, seed: 1, alternative: Alternative::TwoSided }, &|_| {}).expect("moran");
         // Area `old` becomes area new_of[old].
         let mut new_of = [0u32; 20];
         for (new, old) in order.iter().enumerate() {
@@ -50,7 +50,7 @@ proptest! {
             .collect();
         let relabelled = Neighbours::from_links(20, links);
         let permuted: Vec<f64> = order.iter().map(|old| values[*old]).collect();
-        let again = global_moran(&permuted, &relabelled.standardise(style), 0, 1, Alternative::TwoSided).expect("moran");
+        let again = global_moran(&permuted, &relabelled.standardise(style), &Inference { permutations: 0, seed: 1, alternative: Alternative::TwoSided }, &|_| {}).expect("moran");
         // 1e-12 relative: the same sums in another order differ only by rounding.
         let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * (1.0 + a.abs().max(b.abs()));
         prop_assert!(close(original.i, again.i), "I {} vs {}", original.i, again.i);

@@ -24,13 +24,14 @@
 //! its raw rate and standard error are undefined (`None`), and its smoothed rate is the prior
 //! mean. (spdep returns NaN for the whole vector in that case; esda divides by zero.)
 //!
-//! **Local variant.** The neighbourhood of i is i and its neighbours. The local prior mean mᵢ,
-//! spread s²ᵢ and mean base b̄ᵢ are the formulas above over that neighbourhood, with each
-//! neighbour's spread measured around **area i's** local mean: s²ᵢ = Σⱼ bⱼ (rⱼ − mᵢ)² / Σⱼ bⱼ.
-//! This is esda's `Spatial_Empirical_Bayes` and spdep's `EBlocal(…, geoda = TRUE)` (GeoDa's
-//! spatial EB). spdep's default (`geoda = FALSE`) instead sums each neighbour's spread around
-//! its *own* local mean, (rⱼ − mⱼ)², which is not Marshall's estimator and differs by up to 69 %
-//! on the North Carolina SIDS data; it is not implemented here.
+//! **Local variant** (Marshall 1991, §4). The neighbourhood of i is i and its neighbours. The
+//! local prior mean mᵢ, spread s²ᵢ and mean base b̄ᵢ are the formulas above over that
+//! neighbourhood, with each neighbour's spread measured around **area i's** local mean:
+//! s²ᵢ = Σⱼ bⱼ (rⱼ − mᵢ)² / Σⱼ bⱼ. The reference checks compare it with esda's
+//! `Spatial_Empirical_Bayes` and with spdep's `EBlocal` in the variant chosen by its last
+//! argument (tests/reference/make_rates.R). spdep's default variant instead sums each
+//! neighbour's spread around its *own* local mean, (rⱼ − mⱼ)², which is not Marshall's estimator
+//! and differs by up to 69 % on the North Carolina SIDS data; it is not implemented here.
 
 use stance_core::weights::Neighbours;
 
@@ -213,9 +214,8 @@ impl LocalEb {
     }
 }
 
-/// Local empirical Bayes smoothing (Marshall 1991, local; esda `Spatial_Empirical_Bayes`,
-/// spdep `EBlocal(geoda = TRUE)`): the prior of area i is estimated on i and its neighbours,
-/// with the spread measured around i's local mean (see the module docs).
+/// Local empirical Bayes smoothing (Marshall 1991, local): the prior of area i is estimated on
+/// i and its neighbours, with the spread measured around i's local mean (see the module docs).
 ///
 /// An island's neighbourhood is itself: m = rᵢ, so it keeps its raw rate.
 ///

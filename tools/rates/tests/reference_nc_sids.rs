@@ -1,5 +1,6 @@
 //! Empirical Bayes on the North Carolina SIDS counties (SID74 over BIR74) against R spdep 1.2-7
-//! (`EBest`, `EBest(family = "binomial")`, `EBlocal(geoda = TRUE)`; script
+//! (`EBest`, `EBest(family = "binomial")`, `EBlocal` with the spread around each area's local
+//! mean, selected by its sixth argument; script
 //! tests/reference/make_rates.R, data tests/reference/data/rates_nc_spdep.json) and PySAL
 //! esda 2.6.0 (`Empirical_Bayes`, `Spatial_Empirical_Bayes`; script tests/reference/make_rates.py,
 //! data tests/reference/data/rates_nc_esda.json). The neighbour lists are spdep's queen
@@ -113,7 +114,7 @@ fn global_binomial_eb_matches_spdep_ebest_binomial() {
 }
 
 #[test]
-fn local_eb_matches_spdep_eblocal_geoda_and_esda_spatial_eb() {
+fn local_eb_matches_spdep_eblocal_marshall_variant_and_esda_spatial_eb() {
     let spdep = load("rates_nc_spdep.json");
     let esda = load("rates_nc_esda.json");
     let neighbours = queen(&spdep);
@@ -135,12 +136,12 @@ fn local_eb_matches_spdep_eblocal_geoda_and_esda_spatial_eb() {
         .collect();
     assert_all_close(
         &smoothed,
-        &numbers(&spdep, "local_geoda"),
-        "spdep EBlocal(geoda = TRUE)",
+        &numbers(&spdep, "local_marshall"),
+        "spdep EBlocal, spread around the local mean",
     );
     assert_all_close(
         &means,
-        &numbers(&spdep, "local_geoda_prior_mean"),
+        &numbers(&spdep, "local_marshall_prior_mean"),
         "spdep EBlocal m",
     );
     assert_all_close(
@@ -149,7 +150,7 @@ fn local_eb_matches_spdep_eblocal_geoda_and_esda_spatial_eb() {
         "esda Spatial_Empirical_Bayes",
     );
     // Truncated local prior variances are exactly spdep's zeros.
-    let variances = numbers(&spdep, "local_geoda_prior_variance");
+    let variances = numbers(&spdep, "local_marshall_prior_variance");
     for (i, p) in got.priors.iter().enumerate() {
         let p = p.expect("defined");
         if variances[i] == 0.0 {
@@ -158,7 +159,8 @@ fn local_eb_matches_spdep_eblocal_geoda_and_esda_spatial_eb() {
             assert_relative_eq!(p.variance, variances[i], max_relative = TOLERANCE);
         }
     }
-    // spdep's default variance (geoda = FALSE) is a different estimator: it differs by far more
+    // spdep's default variance (spread around each neighbour's own mean) is a different
+    // estimator: it differs by far more
     // than the tolerance somewhere, which is why the docs name the variant implemented.
     let default = numbers(&spdep, "local_default");
     let worst = smoothed
@@ -168,6 +170,6 @@ fn local_eb_matches_spdep_eblocal_geoda_and_esda_spatial_eb() {
         .fold(0.0, f64::max);
     assert!(
         worst > 0.1,
-        "spdep default and geoda variants unexpectedly agree ({worst})"
+        "spdep's default and the local-mean variants unexpectedly agree ({worst})"
     );
 }

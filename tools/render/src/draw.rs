@@ -8,9 +8,9 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::{register_font, FontStyle};
 
-use crate::frame::{clip_polyline, length_label, nice_ticks, Layout, PixelRect};
-use crate::paint::{Canvas, Scale};
-use crate::palette::Rgb;
+use crate::frame::{clip_polyline, dash_polyline, length_label, nice_ticks, PixelRect};
+use crate::palette::{LineStyle, Rgb};
+use crate::scene::{Legend, Overlay, Scene};
 
 /// DejaVu Sans (Bitstream Vera licence, in `fonts/`), so text needs no system fonts.
 const FONT_BYTES: &[u8] = include_bytes!("../fonts/DejaVuSans.ttf");
@@ -20,57 +20,6 @@ const FONT: &str = "stance-dejavu-sans";
 fn font_ready() -> bool {
     static READY: OnceLock<bool> = OnceLock::new();
     *READY.get_or_init(|| register_font(FONT, FontStyle::Normal, FONT_BYTES).is_ok())
-}
-
-/// The legend beside the map.
-#[derive(Debug, Clone)]
-pub enum Legend {
-    /// A continuous colour bar.
-    Bar {
-        /// The scale.
-        scale: Scale,
-        /// Heading (quantity and unit).
-        heading: String,
-    },
-    /// One swatch per class or category.
-    Swatches {
-        /// Heading (field name).
-        heading: String,
-        /// Colour and label of each entry.
-        entries: Vec<(Rgb, String)>,
-    },
-}
-
-/// How an overlay is drawn and named in the legend.
-#[derive(Debug, Clone)]
-pub struct Overlay {
-    /// Layer name.
-    pub name: String,
-    /// Lines in pixel coordinates (ring outlines).
-    pub lines: Vec<Vec<(f64, f64)>>,
-    /// Points in pixel coordinates.
-    pub points: Vec<(f64, f64)>,
-}
-
-/// Everything to draw.
-#[derive(Debug, Clone)]
-pub struct Scene {
-    /// The page layout.
-    pub layout: Layout,
-    /// Title line.
-    pub title: String,
-    /// Map pixels.
-    pub canvas: Canvas,
-    /// Thin boundaries of the mapped areas, pixel coordinates.
-    pub area_outlines: Vec<Vec<(f64, f64)>>,
-    /// Overlay layers.
-    pub overlays: Vec<Overlay>,
-    /// The legend.
-    pub legend: Legend,
-    /// Scale-bar length (m), if the map is in metres.
-    pub scale_bar_m: Option<f64>,
-    /// Small print under the map (CRS).
-    pub note: String,
 }
 
 fn rgb(c: Rgb) -> RGBColor {
@@ -89,82 +38,10 @@ pub fn draw_png(scene: &Scene, path: &Path) -> Result<(), String> {
     let root = BitMapBackend::new(path, (page.width, page.height)).into_drawing_area();
     let fail = |e: DrawingAreaErrorKind<_>| e.to_string();
     root.fill(&WHITE).map_err(fail)?;
-    let s = page.scale;
-    let size = |v: f64| (v * s).max(1.0);
-    let text = |px: f64| (FONT, size(px)).into_font().color(&BLACK);
-
-    // Map pixels.
-    let rect = page.frame.rect;
-    for (i, pixel) in scene.canvas.pixels.iter().enumerate() {
-        if let Some(c) = pixel {
-            let x = rect.left + (i % scene.canvas.width) as i32;
-            let y = rect.top + (i / scene.canvas.width) as i32;
-            root.draw_pixel((x, y), &rgb(*c)).map_err(fail)?;
-        }
-    }
-    let line = |points: &[(f64, f64)], style: ShapeStyle| -> Result<(), String> {
-        for run in clip_polyline(points, &rect) {
-            let pts: Vec<(i32, i32)> = run
-                .iter()
-                .map(|p| (p.0.round() as i32, p.1.round() as i32))
-                .collect();
-            root.draw(&PathElement::new(pts, style)).map_err(fail)?;
-        }
-        Ok(())
-    };
-    let thin = ShapeStyle::from(&RGBColor(64, 64, 64)).stroke_width(size(1.0) as u32);
-    for ring in &scene.area_outlines {
-        line(ring, thin)?;
-    }
-    // Overlays: black over a white halo, legible on dark and light colours alike.
-    let ink_px = size(2.0).round() as u32;
-    let halo = ShapeStyle::from(&WHITE).stroke_width(ink_px + 1);
-    let ink = ShapeStyle::from(&BLACK).stroke_width(ink_px);
-    for overlay in &scene.overlays {
-        for ring in &overlay.lines {
-            line(ring, halo)?;
-        }
-        for ring in &overlay.lines {
-            line(ring, ink)?;
-        }
-        // Many markers would bury the map: smaller ones past a few hundred.
-        let radius = size(if overlay.points.len() > 300 { 2.0 } else { 3.5 }) as i32;
-        for p in &overlay.points {
-            let (x, y) = (p.0.round() as i32, p.1.round() as i32);
-            if x >= rect.left && x < rect.right && y >= rect.top && y < rect.bottom {
-                root.draw(&Circle::new((x, y), radius, WHITE.filled()))
-                    .map_err(fail)?;
-                root.draw(&Circle::new((x, y), radius, ink)).map_err(fail)?;
-            }
-        }
-    }
-    root.draw(&Rectangle::new(
-        [(rect.left, rect.top), (rect.right, rect.bottom)],
-        ShapeStyle::from(&RGBColor(96, 96, 96)).stroke_width(1),
-    ))
-    .map_err(fail)?;
-
-    // Title, shrunk until it fits the page width.
-    let mut title_px = 28.0;
-    let title_style = loop {
-        let style = text(title_px);
-        let (w, _) = root
-            .estimate_text_size(&scene.title, &style)
-            .map_err(fail)?;
-        if f64::from(w) <= f64::from(page.width) - 2.0 * size(16.0) || title_px <= 10.0 {
-            break style;
-        }
-        title_px -= 2.0;
-    };
-    root.draw_text(
-        &scene.title,
-        &title_style.pos(Pos::new(HPos::Left, VPos::Center)),
-        (rect.left, rect.top / 2),
-    )
-    .map_err(fail)?;
-
-    draw_legend(&root, scene, &page.legend, s).map_err(fail)?;
-    draw_footer(&root, scene, s).map_err(fail)?;
+    draw_map(&root, scene).map_err(fail)?;
+    draw_title(&root, scene).map_err(fail)?;
+    draw_legend(&root, scene, &page.legend, page.scale).map_err(fail)?;
+    draw_footer(&root, scene, page.scale).map_err(fail)?;
     root.present().map_err(fail)?;
     Ok(())
 }
@@ -172,6 +49,114 @@ pub fn draw_png(scene: &Scene, path: &Path) -> Result<(), String> {
 type Area<'a> = DrawingArea<BitMapBackend<'a>, plotters::coord::Shift>;
 type DrawResult<'a> =
     Result<(), DrawingAreaErrorKind<<BitMapBackend<'a> as DrawingBackend>::ErrorType>>;
+
+/// A polyline clipped to `rect`, in `style`.
+fn draw_line<'a>(
+    root: &Area<'a>,
+    rect: &PixelRect,
+    points: &[(f64, f64)],
+    style: ShapeStyle,
+) -> DrawResult<'a> {
+    for run in clip_polyline(points, rect) {
+        let pts: Vec<(i32, i32)> = run
+            .iter()
+            .map(|p| (p.0.round() as i32, p.1.round() as i32))
+            .collect();
+        root.draw(&PathElement::new(pts, style))?;
+    }
+    Ok(())
+}
+
+/// A line in `style`: its halo unbroken, then the ink cut by the style's dashes (scaled by `s`).
+fn draw_styled<'a>(
+    root: &Area<'a>,
+    rect: &PixelRect,
+    points: &[(f64, f64)],
+    style: LineStyle,
+    s: f64,
+) -> DrawResult<'a> {
+    let ink_px = (2.0 * s).max(1.0).round() as u32;
+    let halo = ShapeStyle::from(&rgb(style.halo)).stroke_width(ink_px + 2);
+    draw_line(root, rect, points, halo)?;
+    let ink = ShapeStyle::from(&rgb(style.colour)).stroke_width(ink_px);
+    let pattern: Vec<f64> = style.dash.pattern().iter().map(|v| v * s).collect();
+    for piece in dash_polyline(points, &pattern) {
+        draw_line(root, rect, &piece, ink)?;
+    }
+    Ok(())
+}
+
+/// Map pixels, area outlines and overlays, and the frame around them.
+fn draw_map<'a>(root: &Area<'a>, scene: &Scene) -> DrawResult<'a> {
+    let page = &scene.layout;
+    let s = page.scale;
+    let rect = page.frame.rect;
+    for (i, pixel) in scene.canvas.pixels.iter().enumerate() {
+        if let Some(c) = pixel {
+            let x = rect.left + (i % scene.canvas.width) as i32;
+            let y = rect.top + (i / scene.canvas.width) as i32;
+            root.draw_pixel((x, y), &rgb(*c))?;
+        }
+    }
+    let thin = ShapeStyle::from(&RGBColor(64, 64, 64)).stroke_width((s.max(1.0)) as u32);
+    for ring in &scene.area_outlines {
+        draw_line(root, &rect, ring, thin)?;
+    }
+    for overlay in &scene.overlays {
+        draw_overlay(root, &rect, overlay, s)?;
+    }
+    root.draw(&Rectangle::new(
+        [(rect.left, rect.top), (rect.right, rect.bottom)],
+        ShapeStyle::from(&RGBColor(96, 96, 96)).stroke_width(1),
+    ))
+}
+
+/// One overlay: its lines group by group (ink over a halo, legible on dark and light colours
+/// alike), then its points as ringed markers.
+fn draw_overlay<'a>(
+    root: &Area<'a>,
+    rect: &PixelRect,
+    overlay: &Overlay,
+    s: f64,
+) -> DrawResult<'a> {
+    for group in &overlay.groups {
+        for ring in &group.lines {
+            draw_styled(root, rect, ring, group.style, s)?;
+        }
+    }
+    // Many markers would bury the map: smaller ones past a few hundred.
+    let radius = ((if overlay.points.len() > 300 { 2.0 } else { 3.5 }) * s).max(1.0) as i32;
+    let ink = ShapeStyle::from(&BLACK).stroke_width((2.0 * s).max(1.0).round() as u32);
+    for p in &overlay.points {
+        let (x, y) = (p.0.round() as i32, p.1.round() as i32);
+        if x >= rect.left && x < rect.right && y >= rect.top && y < rect.bottom {
+            root.draw(&Circle::new((x, y), radius, WHITE.filled()))?;
+            root.draw(&Circle::new((x, y), radius, ink))?;
+        }
+    }
+    Ok(())
+}
+
+/// The title, shrunk until it fits the page width.
+fn draw_title<'a>(root: &Area<'a>, scene: &Scene) -> DrawResult<'a> {
+    let page = &scene.layout;
+    let size = |v: f64| (v * page.scale).max(1.0);
+    let mut title_px = 28.0;
+    let title_style = loop {
+        let style = (FONT, size(title_px)).into_font().color(&BLACK);
+        let (w, _) = root.estimate_text_size(&scene.title, &style)?;
+        if f64::from(w) <= f64::from(page.width) - 2.0 * size(16.0) || title_px <= 10.0 {
+            break style;
+        }
+        title_px -= 2.0;
+    };
+    let rect = page.frame.rect;
+    root.draw_text(
+        &scene.title,
+        &title_style.pos(Pos::new(HPos::Left, VPos::Center)),
+        (rect.left, rect.top / 2),
+    )
+}
 
 fn draw_legend<'a>(root: &Area<'a>, scene: &Scene, panel: &PixelRect, s: f64) -> DrawResult<'a> {
     let size = |v: f64| (v * s).max(1.0);
@@ -245,30 +230,63 @@ fn draw_legend<'a>(root: &Area<'a>, scene: &Scene, panel: &PixelRect, s: f64) ->
             y += px(6.0);
         }
     }
-    // Overlay keys, if they fit.
+    draw_overlay_keys(root, scene, panel, s, y)
+}
+
+/// Overlay keys under the legend, as many as fit: a marker or a line sample in each group's
+/// style; a layer drawn by side gets its name as a heading and one entry per side.
+fn draw_overlay_keys<'a>(
+    root: &Area<'a>,
+    scene: &Scene,
+    panel: &PixelRect,
+    s: f64,
+    mut y: i32,
+) -> DrawResult<'a> {
+    let px = |v: f64| (v * s).round() as i32;
+    let small = (FONT, (15.0 * s).max(1.0)).into_font().color(&BLACK);
+    let left = panel.left + px(8.0);
+    let label_at = |y: i32| (left + px(34.0), y);
     for overlay in &scene.overlays {
         if y + px(20.0) > panel.bottom {
             break;
         }
         let mid = y + px(9.0);
-        if overlay.points.is_empty() {
-            root.draw(&PathElement::new(
-                vec![(left, mid), (left + px(26.0), mid)],
-                ShapeStyle::from(&BLACK).stroke_width(size(2.0) as u32),
-            ))?;
-        } else {
-            root.draw(&Circle::new(
-                (left + px(13.0), mid),
-                px(3.5),
-                ShapeStyle::from(&BLACK).stroke_width(size(2.0) as u32),
-            ))?;
+        if !overlay.points.is_empty() {
+            let ink = ShapeStyle::from(&BLACK).stroke_width((2.0 * s).max(1.0) as u32);
+            root.draw(&Circle::new((left + px(13.0), mid), px(3.5), ink))?;
+            root.draw_text(
+                &overlay.name,
+                &small.pos(Pos::new(HPos::Left, VPos::Center)),
+                label_at(mid),
+            )?;
+            y += px(24.0);
+            continue;
         }
-        root.draw_text(
-            &overlay.name,
-            &small.pos(Pos::new(HPos::Left, VPos::Center)),
-            (left + px(34.0), mid),
-        )?;
-        y += px(24.0);
+        if overlay.by_side {
+            root.draw_text(
+                &format!("{}, leans to:", overlay.name),
+                &small.pos(Pos::new(HPos::Left, VPos::Center)),
+                (left, mid),
+            )?;
+            y += px(24.0);
+        }
+        for group in &overlay.groups {
+            if y + px(20.0) > panel.bottom {
+                break;
+            }
+            let mid = y + px(9.0);
+            let sample = [
+                (f64::from(left), f64::from(mid)),
+                (f64::from(left + px(26.0)), f64::from(mid)),
+            ];
+            draw_styled(root, panel, &sample, group.style, s)?;
+            root.draw_text(
+                &group.label,
+                &small.pos(Pos::new(HPos::Left, VPos::Center)),
+                label_at(mid),
+            )?;
+            y += px(24.0);
+        }
     }
     Ok(())
 }

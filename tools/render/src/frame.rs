@@ -324,6 +324,44 @@ pub fn clip_polyline(points: &[(f64, f64)], rect: &PixelRect) -> Vec<Vec<(f64, f
     runs
 }
 
+/// Cuts a polyline into the "on" pieces of a dash pattern (alternating on and off lengths, px,
+/// measured along the line and carried over from one segment to the next); the whole line as
+/// one piece when `pattern` is empty or has no positive length.
+pub fn dash_polyline(points: &[(f64, f64)], pattern: &[f64]) -> Vec<Vec<(f64, f64)>> {
+    if pattern.is_empty() || pattern.iter().sum::<f64>() <= 0.0 {
+        return vec![points.to_vec()];
+    }
+    let mut pieces: Vec<Vec<(f64, f64)>> = Vec::new();
+    let (mut k, mut left) = (0usize, pattern[0]);
+    let mut current: Vec<(f64, f64)> = points.first().map(|p| vec![*p]).unwrap_or_default();
+    for pair in points.windows(2) {
+        let (a, b) = (pair[0], pair[1]);
+        let length = (b.0 - a.0).hypot(b.1 - a.1);
+        let mut at = 0.0;
+        while length - at >= left {
+            at += left;
+            let t = at / length;
+            let p = (a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1));
+            if k % 2 == 0 {
+                current.push(p);
+                pieces.push(std::mem::take(&mut current));
+            } else {
+                current = vec![p];
+            }
+            k = (k + 1) % pattern.len();
+            left = pattern[k];
+        }
+        left -= length - at;
+        if k % 2 == 0 {
+            current.push(b);
+        }
+    }
+    if k % 2 == 0 && current.len() >= 2 {
+        pieces.push(current);
+    }
+    pieces
+}
+
 /// Pixels of `rect` whose centres lie inside the rings (even–odd rule, so holes stay empty),
 /// as runs (row, first column, one past the last column). Rings are in pixel coordinates and
 /// need not repeat their first point.
@@ -466,6 +504,20 @@ mod tests {
         let runs = clip_polyline(&[(20.0, 30.0), (200.0, 30.0), (20.0, 40.0)], &r);
         assert_eq!(runs.len(), 2);
         assert_eq!(runs[0], [(20.0, 30.0), (110.0, 30.0)]);
+    }
+
+    #[test]
+    fn dashes_follow_the_line_across_its_corners() {
+        // An L of two 10 px legs with dashes 4 on, 2 off: on 0–4, 6–10, 12–16 (over the
+        // corner at 10: 12 is (10, 2)), 18–20.
+        let line = [(0.0, 0.0), (10.0, 0.0), (10.0, 10.0)];
+        let pieces = dash_polyline(&line, &[4.0, 2.0]);
+        assert_eq!(pieces.len(), 4);
+        assert_eq!(pieces[0], [(0.0, 0.0), (4.0, 0.0)]);
+        assert_eq!(pieces[1], [(6.0, 0.0), (10.0, 0.0)]);
+        assert_eq!(pieces[2], [(10.0, 2.0), (10.0, 6.0)]);
+        assert_eq!(pieces[3], [(10.0, 8.0), (10.0, 10.0)]);
+        assert_eq!(dash_polyline(&line, &[]), vec![line.to_vec()]);
     }
 
     #[test]

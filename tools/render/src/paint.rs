@@ -61,11 +61,11 @@ impl Scale {
 }
 
 /// Whether `auto` palette choice is diverging for a surface: both signs present, or a name
-/// ending in `_diff`, `_sqrtdiff` or `_logrr` (the signed outputs of stance-density).
+/// ending in `_diff`, `_sqrtdiff` or `_log_ratio` (the signed outputs of stance-density).
 pub fn auto_diverging(name: &str, min: f64, max: f64) -> bool {
     let lower = name.to_ascii_lowercase();
     (min < 0.0 && max > 0.0)
-        || ["_diff", "_sqrtdiff", "_logrr"]
+        || ["_diff", "_sqrtdiff", "_log_ratio"]
             .iter()
             .any(|s| lower.ends_with(s))
 }
@@ -158,7 +158,9 @@ mod tests {
     #[test]
     fn auto_palette_rule() {
         assert!(auto_diverging("density_diff", 0.0, 3.0));
-        assert!(auto_diverging("x_LOGRR", -1.0, -0.5));
+        assert!(auto_diverging("x_LOG_RATIO", -1.0, -0.5));
+        assert!(!auto_diverging("x_logrr", -1.0, -0.5));
+        assert!(!auto_diverging("density_log_ratio_p_upper", 0.0, 1.0));
         assert!(auto_diverging("intensity", -1.0, 2.0));
         assert!(!auto_diverging("density_support", 0.0, 3.0));
         assert!(!auto_diverging("difference", -3.0, 0.0));

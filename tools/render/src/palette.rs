@@ -1,6 +1,7 @@
 //! Colour maps from the literature — Crameri's batlow and vik (Scientific colour maps 8.0,
-//! Crameri 2018; Crameri, Shephard & Heron 2020), Okabe & Ito (2008) — and a LISA palette
-//! checked under the deuteranopia simulation of Machado, Oliveira & Fernandes (2009).
+//! Crameri 2018; Crameri, Shephard & Heron 2020), Okabe & Ito (2008) — and the toolbox's own
+//! LISA palette and cluster-side line styles, checked under the dichromacy simulations of
+//! Machado, Oliveira & Fernandes (2009).
 
 /// An sRGB colour, 8 bits a channel.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -117,17 +118,101 @@ pub const LISA_TYPES: [&str; 5] = [
 ];
 
 /// The toolbox's own LISA palette, same order as [`LISA_TYPES`]. Design: hue says what the
-/// area itself is (warm = high, cool = low), lightness says whether its neighbours agree
-/// (dark = cluster, light = outlier), and "not significant" is a light neutral grey. Warm
-/// against cool lies on the blue–yellow axis that dichromats keep; the test below checks the
-/// five colours stay apart under a simulated deuteranopia.
+/// area itself is (warm ochre–rust = high, cool teal–slate = low), lightness says whether its
+/// neighbours agree (dark = cluster, light or mid = outlier), and "not significant" is a pale
+/// warm sand that recedes without being a grey. The test below checks the five colours stay
+/// apart in normal vision and under simulated deuteranopia, protanopia and tritanopia.
 pub const LISA_COLOURS: [Rgb; 5] = [
-    Rgb(0xa6, 0x3d, 0x00), // high-high: dark burnt orange
-    Rgb(0x2d, 0x1e, 0x6b), // low-low: dark indigo
-    Rgb(0xf5, 0xb8, 0x41), // high-low: light amber
-    Rgb(0xa9, 0x9b, 0xe0), // low-high: light lavender
-    Rgb(0xdc, 0xdc, 0xdc), // not significant: light grey
+    Rgb(0x99, 0x3d, 0x0b), // high-high: dark rust
+    Rgb(0x0a, 0x33, 0x40), // low-low: deep slate teal
+    Rgb(0xf0, 0xb0, 0x4a), // high-low: ochre
+    Rgb(0x2e, 0x8f, 0x8c), // low-high: mid teal
+    Rgb(0xe8, 0xe0, 0xcc), // not significant: pale sand
 ];
+
+/// How a line is broken.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Dash {
+    /// Unbroken.
+    Solid,
+    /// Long dashes.
+    Dashed,
+    /// Dots.
+    Dotted,
+    /// Dash and dot.
+    DashDot,
+}
+
+impl Dash {
+    /// On and off lengths (px at scale 1), alternating; empty for a solid line.
+    pub fn pattern(self) -> &'static [f64] {
+        match self {
+            Dash::Solid => &[],
+            Dash::Dashed => &[12.0, 6.0],
+            Dash::Dotted => &[3.0, 4.0],
+            Dash::DashDot => &[12.0, 4.0, 3.0, 4.0],
+        }
+    }
+}
+
+/// How an overlay's lines look: ink over a halo that keeps them legible on any fill.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct LineStyle {
+    /// Ink colour.
+    pub colour: Rgb,
+    /// Dash pattern of the ink.
+    pub dash: Dash,
+    /// Halo colour under the ink (white under dark ink, near-black under light ink).
+    pub halo: Rgb,
+}
+
+/// Plain overlays (areas, contours, points): black over white.
+pub const PLAIN_LINE: LineStyle = LineStyle {
+    colour: Rgb(0, 0, 0),
+    dash: Dash::Solid,
+    halo: Rgb(255, 255, 255),
+};
+
+/// Ink colours of the sides of a cluster layer, in the order of [`side_style`]: plum (toward
+/// support, or high), green (toward oppose, or low), black (neutral) and yellow (any other side,
+/// e.g. control classes joined by '+'). Chosen away from batlow and vik so that a circle never
+/// matches the surface under it, and apart from each other in normal vision and under simulated
+/// deuteranopia, protanopia and tritanopia (see the tests); the dash patterns tell the sides
+/// apart without colour too.
+pub const SIDE_COLOURS: [Rgb; 4] = [
+    Rgb(0x9c, 0x1d, 0x8a),
+    Rgb(0x1a, 0x96, 0x41),
+    Rgb(0x00, 0x00, 0x00),
+    Rgb(0xff, 0xe0, 0x00),
+];
+
+const SIDE_DASHES: [Dash; 4] = [Dash::Solid, Dash::Dashed, Dash::Dotted, Dash::DashDot];
+
+/// Slot of a side label in [`SIDE_COLOURS`]: support/high 0, oppose/low 1, neutral 2, others 3.
+pub fn side_slot(label: &str) -> usize {
+    match label.trim().to_ascii_lowercase().as_str() {
+        "support" | "high" => 0,
+        "oppose" | "low" => 1,
+        "neutral" => 2,
+        _ => 3,
+    }
+}
+
+/// The line style of a cluster side.
+pub fn side_style(label: &str) -> LineStyle {
+    let slot = side_slot(label);
+    let colour = SIDE_COLOURS[slot];
+    LineStyle {
+        colour,
+        dash: SIDE_DASHES[slot],
+        halo: if lab(colour)[0] > 70.0 {
+            Rgb(0x1a, 0x1a, 0x1a)
+        } else {
+            Rgb(255, 255, 255)
+        },
+    }
+}
 
 /// The LISA type a label names (`high-high`, `HH`, `high_high`, `not significant`, `ns`…),
 /// as an index into [`LISA_TYPES`].
@@ -193,17 +278,53 @@ pub fn delta_e(a: Rgb, b: Rgb) -> f64 {
     ((la[0] - lb[0]).powi(2) + (la[1] - lb[1]).powi(2) + (la[2] - lb[2]).powi(2)).sqrt()
 }
 
-/// Deuteranopia as simulated by Machado, Oliveira & Fernandes (2009), severity 1.0: their
-/// published matrix applied to linear RGB.
-pub fn deuteranopia(colour: Rgb) -> Rgb {
-    const M: [[f64; 3]; 3] = [
-        [0.367_322, 0.860_646, -0.227_968],
-        [0.280_085, 0.672_501, 0.047_413],
-        [-0.011_820, 0.042_940, 0.968_881],
+/// A dichromacy simulated by Machado, Oliveira & Fernandes (2009), severity 1.0: their published
+/// matrices, applied to linear RGB.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Dichromacy {
+    /// No L cones.
+    Protanopia,
+    /// No M cones.
+    Deuteranopia,
+    /// No S cones.
+    Tritanopia,
+}
+
+impl Dichromacy {
+    /// All three.
+    pub const ALL: [Dichromacy; 3] = [
+        Dichromacy::Protanopia,
+        Dichromacy::Deuteranopia,
+        Dichromacy::Tritanopia,
     ];
-    let l = [linear(colour.0), linear(colour.1), linear(colour.2)];
-    let row = |i: usize| M[i][0] * l[0] + M[i][1] * l[1] + M[i][2] * l[2];
-    Rgb(encode(row(0)), encode(row(1)), encode(row(2)))
+
+    fn matrix(self) -> [[f64; 3]; 3] {
+        match self {
+            Dichromacy::Protanopia => [
+                [0.152_286, 1.052_583, -0.204_868],
+                [0.114_503, 0.786_281, 0.099_216],
+                [-0.003_882, -0.048_116, 1.051_998],
+            ],
+            Dichromacy::Deuteranopia => [
+                [0.367_322, 0.860_646, -0.227_968],
+                [0.280_085, 0.672_501, 0.047_413],
+                [-0.011_820, 0.042_940, 0.968_881],
+            ],
+            Dichromacy::Tritanopia => [
+                [1.255_528, -0.076_749, -0.178_779],
+                [-0.078_411, 0.930_809, 0.147_602],
+                [0.004_733, 0.691_367, 0.303_900],
+            ],
+        }
+    }
+
+    /// How `colour` looks with this dichromacy.
+    pub fn simulate(self, colour: Rgb) -> Rgb {
+        let m = self.matrix();
+        let l = [linear(colour.0), linear(colour.1), linear(colour.2)];
+        let row = |i: usize| m[i][0] * l[0] + m[i][1] * l[1] + m[i][2] * l[2];
+        Rgb(encode(row(0)), encode(row(1)), encode(row(2)))
+    }
 }
 
 #[cfg(test)]
@@ -258,25 +379,89 @@ mod tests {
     #[test]
     fn deuteranopia_keeps_greys_and_merges_red_and_green() {
         // Each matrix row sums to 1, so greys are fixed points.
-        assert_eq!(deuteranopia(Rgb(128, 128, 128)), Rgb(128, 128, 128));
+        assert_eq!(
+            Dichromacy::Deuteranopia.simulate(Rgb(128, 128, 128)),
+            Rgb(128, 128, 128)
+        );
         // The classic confusion pair: a red and a green of similar lightness become close.
         let (red, green) = (Rgb(200, 80, 60), Rgb(110, 130, 50));
         let before = delta_e(red, green);
-        let after = delta_e(deuteranopia(red), deuteranopia(green));
+        let after = delta_e(
+            Dichromacy::Deuteranopia.simulate(red),
+            Dichromacy::Deuteranopia.simulate(green),
+        );
         assert!(after < before / 2.0, "{before} → {after}");
     }
 
+    /// The smallest ΔE*ab between two of `colours`, in normal vision and under each simulated
+    /// dichromacy.
+    fn closest_pair(colours: &[Rgb]) -> f64 {
+        let mut closest = f64::INFINITY;
+        for see in [
+            None,
+            Some(Dichromacy::Protanopia),
+            Some(Dichromacy::Deuteranopia),
+            Some(Dichromacy::Tritanopia),
+        ] {
+            let seen: Vec<Rgb> = colours
+                .iter()
+                .map(|c| see.map_or(*c, |d| d.simulate(*c)))
+                .collect();
+            for (i, a) in seen.iter().enumerate() {
+                for b in &seen[i + 1..] {
+                    closest = closest.min(delta_e(*a, *b));
+                }
+            }
+        }
+        closest
+    }
+
     #[test]
-    fn lisa_colours_stay_distinguishable_under_deuteranopia() {
-        // Threshold: ΔE*ab ≥ 30 for every pair, in normal vision and after the simulation.
+    fn lisa_colours_stay_distinguishable_under_every_dichromacy() {
+        // Threshold: ΔE*ab ≥ 30 for every pair, in normal vision and after each simulation.
         // ΔE ≈ 2.3 is one just-noticeable difference (Sharma 2003); 30 keeps the five classes
         // apart at a glance on small areas, not merely side by side.
-        for (i, a) in LISA_COLOURS.iter().enumerate() {
-            for b in &LISA_COLOURS[i + 1..] {
-                assert!(delta_e(*a, *b) >= 30.0, "{a:?} {b:?}");
-                let (da, db) = (deuteranopia(*a), deuteranopia(*b));
-                assert!(delta_e(da, db) >= 30.0, "{a:?} {b:?} → {da:?} {db:?}");
+        assert!(
+            closest_pair(&LISA_COLOURS) >= 30.0,
+            "{}",
+            closest_pair(&LISA_COLOURS)
+        );
+        // "Not significant" is no grey (a* and b* of a grey are 0) and no white ("no value").
+        let sand = lab(LISA_COLOURS[4]);
+        assert!(sand[1].hypot(sand[2]) >= 8.0, "{sand:?}");
+        assert!(delta_e(LISA_COLOURS[4], MISSING) >= 10.0);
+    }
+
+    #[test]
+    fn side_colours_are_apart_from_each_other_and_from_the_surface_palettes() {
+        assert!(
+            closest_pair(&SIDE_COLOURS) >= 30.0,
+            "{}",
+            closest_pair(&SIDE_COLOURS)
+        );
+        // No side colour within ΔE*ab 30 of any anchor of batlow or vik.
+        for side in SIDE_COLOURS {
+            for anchor in BATLOW.iter().chain(&VIK) {
+                assert!(delta_e(side, *anchor) >= 30.0, "{side:?} {anchor:?}");
             }
+        }
+        assert_eq!(side_style("oppose").dash, Dash::Dashed);
+        assert_eq!(side_style("Support").colour, SIDE_COLOURS[0]);
+        assert_eq!(side_style("neutral+support").colour, SIDE_COLOURS[3]);
+        // Yellow ink gets a dark halo, the others a white one.
+        assert_eq!(side_style("neutral+support").halo, Rgb(0x1a, 0x1a, 0x1a));
+        assert_eq!(side_style("low").halo, Rgb(255, 255, 255));
+    }
+
+    #[test]
+    fn dichromacy_matrices_keep_greys() {
+        // Each published matrix row sums to 1 (to 6 decimals), so greys stay (±1 for rounding).
+        for d in Dichromacy::ALL {
+            let g = d.simulate(Rgb(128, 128, 128));
+            assert!(
+                g.0.abs_diff(128) <= 1 && g.1.abs_diff(128) <= 1 && g.2.abs_diff(128) <= 1,
+                "{d:?} {g:?}"
+            );
         }
     }
 

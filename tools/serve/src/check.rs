@@ -13,7 +13,7 @@ use std::process::{Command, Stdio};
 
 use serde_json::Value;
 
-use crate::registry::{check_description, run_with_timeout, valid_id, DESCRIBE_TIMEOUT};
+use crate::registry::{check_description, describe_timeout, run_with_timeout, valid_id};
 
 /// The outcome of one contract item.
 #[derive(Debug, Clone)]
@@ -122,7 +122,7 @@ pub fn check_plugin(plugin: &Path, umbrella: &Path) -> Result<Vec<Item>, String>
 }
 
 fn check_describe(plugin: &Path, id: &str, items: &mut Vec<Item>) -> Option<Value> {
-    match run_with_timeout(plugin, &["--describe"], DESCRIBE_TIMEOUT) {
+    match run_with_timeout(plugin, &["--describe"], describe_timeout()) {
         Err(reason) => {
             items.push(Item {
                 name: "describe",

@@ -19,6 +19,14 @@ use stance_core::host::ogc::check_process_description;
 /// How long a plugin's `--describe` may take before it is listed as broken.
 pub const DESCRIBE_TIMEOUT: Duration = Duration::from_secs(10);
 
+/// The `--describe` timeout: [`DESCRIBE_TIMEOUT`], or `STANCE_DESCRIBE_TIMEOUT_MS` when set.
+pub fn describe_timeout() -> Duration {
+    std::env::var("STANCE_DESCRIBE_TIMEOUT_MS")
+        .ok()
+        .and_then(|v| v.parse::<u64>().ok())
+        .map_or(DESCRIBE_TIMEOUT, Duration::from_millis)
+}
+
 /// Where a process comes from.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum Origin {
@@ -144,7 +152,7 @@ pub fn discover(
                              executable)"
                         ))
                     } else {
-                        describe_plugin(&file, &id, DESCRIBE_TIMEOUT)
+                        describe_plugin(&file, &id, describe_timeout())
                     };
                     Process {
                         id,

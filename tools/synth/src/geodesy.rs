@@ -2,19 +2,15 @@
 
 use std::f64::consts::PI;
 
-/// Mean Earth radius R₁ of GRS 80 (Moritz 2000, Geodetic Reference System 1980).
+/// Mean Earth radius R₁ of GRS 80 (Moritz 2000, Geodetic Reference System 1980), the sphere of
+/// the `geo` crate's haversine measure.
 pub const EARTH_RADIUS_M: f64 = 6_371_008.8;
 
-/// Great-circle distance in metres by the haversine formula, R = 6 371 008.8 m:
-/// d = 2R·asin √(sin²(Δφ/2) + cos φ₁ cos φ₂ sin²(Δλ/2)).
-/// One degree of latitude is R·π/180 ≈ 111 195.08 m. Sinnott (1984), Sky and Telescope 68(2), 159.
+/// Great-circle distance in metres by the haversine formula on that sphere (Sinnott 1984, Sky
+/// and Telescope 68(2), 159), computed by the `geo` crate.
 pub fn metres_between(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
-    let phi1 = lat1.to_radians();
-    let phi2 = lat2.to_radians();
-    let half_dphi = 0.5 * (phi2 - phi1);
-    let half_dlambda = 0.5 * (lon2 - lon1).to_radians();
-    let a = half_dphi.sin().powi(2) + phi1.cos() * phi2.cos() * half_dlambda.sin().powi(2);
-    2.0 * EARTH_RADIUS_M * a.sqrt().min(1.0).asin()
+    use geo::{Distance, Haversine};
+    Haversine.distance(geo::Point::new(lon1, lat1), geo::Point::new(lon2, lat2))
 }
 
 fn metres_per_degree_lat() -> f64 {
@@ -27,28 +23,22 @@ pub fn degrees_per_metre(lat: f64) -> (f64, f64) {
     (per_lat / lat.to_radians().cos(), per_lat)
 }
 
-/// A circle of `radius_m` around (`lon`, `lat`) on the sphere, as a lon/lat polygon
-/// (destination-point formula, e.g. Snyder 1987, Map Projections — A Working Manual, eq. 5-5/5-6).
+/// A circle of `radius_m` around (`lon`, `lat`) on the sphere, as a lon/lat polygon: the
+/// destination point at each bearing (Snyder 1987, Map Projections — A Working Manual,
+/// eq. 5-5/5-6), computed by the `geo` crate.
 pub fn circle_lonlat(
     lon: f64,
     lat: f64,
     radius_m: f64,
     vertices: usize,
 ) -> geo_types::Polygon<f64> {
-    let delta = radius_m / EARTH_RADIUS_M;
-    let (phi1, lambda1) = (lat.to_radians(), lon.to_radians());
+    use geo::{Destination, Haversine};
+    let centre = geo::Point::new(lon, lat);
     let mut ring: Vec<geo_types::Coord<f64>> = (0..vertices)
         .map(|i| {
             // Counter-clockwise from east, so the exterior ring has positive orientation.
-            let bearing = PI / 2.0 - 2.0 * PI * i as f64 / vertices as f64;
-            let phi2 = (phi1.sin() * delta.cos() + phi1.cos() * delta.sin() * bearing.cos()).asin();
-            let lambda2 = lambda1
-                + (bearing.sin() * delta.sin() * phi1.cos())
-                    .atan2(delta.cos() - phi1.sin() * phi2.sin());
-            geo_types::Coord {
-                x: lambda2.to_degrees(),
-                y: phi2.to_degrees(),
-            }
+            let bearing = 90.0 - 360.0 * i as f64 / vertices as f64;
+            Haversine.destination(centre, bearing, radius_m).0
         })
         .collect();
     ring.push(ring[0]);

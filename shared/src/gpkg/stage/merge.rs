@@ -137,13 +137,40 @@ fn map_spatial_ref_systems(
         .filter(|c| main_columns.contains(c))
         .cloned()
         .collect();
+    // Columns the output has and the staging file has not: the CRS WKT extension's
+    // `definition_12_063` (NOT NULL; 'undefined' when no WKT 2 is known, OGC 12-128r18 F.10)
+    // appears in an output that holds a coverage; any other is left NULL.
+    let missing: Vec<(String, &str)> = main_columns
+        .iter()
+        .filter(|c| !staged_columns.contains(c))
+        .map(|c| {
+            let value = if c == "definition_12_063" {
+                "'undefined'"
+            } else {
+                "NULL"
+            };
+            (c.clone(), value)
+        })
+        .collect();
+    let insert_list = common
+        .iter()
+        .chain(missing.iter().map(|(c, _)| c))
+        .map(|c| q(c))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let with_missing = |select: String| -> String {
+        missing
+            .iter()
+            .fold(select, |acc, (_, v)| format!("{acc}, {v}"))
+    };
     // The gridded coverage extension (OGC 17-066r1, req. 103) needs srs_id 4979 in every file
     // that holds a coverage, whether or not a coverage uses it.
     if layers.iter().any(|l| l.data_type == "2d-gridded-coverage") {
         let columns = common.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
+        let select = with_missing(columns);
         tx.execute(
             &format!(
-                "INSERT INTO main.gpkg_spatial_ref_sys ({columns}) SELECT {columns} FROM staged.gpkg_spatial_ref_sys s
+                "INSERT INTO main.gpkg_spatial_ref_sys ({insert_list}) SELECT {select} FROM staged.gpkg_spatial_ref_sys s
                  WHERE s.srs_id = 4979 AND NOT EXISTS (SELECT 1 FROM main.gpkg_spatial_ref_sys m WHERE m.srs_id = 4979)"
             ),
             [],
@@ -206,14 +233,15 @@ fn map_spatial_ref_systems(
                             |r| r.get(0),
                         )?
                     };
-                    let list = common.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
-                    let select = common
-                        .iter()
-                        .map(|c| if c == "srs_id" { "?1".to_owned() } else { q(c) })
-                        .collect::<Vec<_>>()
-                        .join(", ");
+                    let select = with_missing(
+                        common
+                            .iter()
+                            .map(|c| if c == "srs_id" { "?1".to_owned() } else { q(c) })
+                            .collect::<Vec<_>>()
+                            .join(", "),
+                    );
                     tx.execute(
-                        &format!("INSERT INTO main.gpkg_spatial_ref_sys ({list}) SELECT {select} FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?2"),
+                        &format!("INSERT INTO main.gpkg_spatial_ref_sys ({insert_list}) SELECT {select} FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?2"),
                         [new_id, id],
                     )?;
                     new_id
