@@ -49,11 +49,14 @@ pub async fn list(State(app): State<Arc<App>>, headers: HeaderMap) -> Response {
 
 /// `GET /files/{name}`.
 pub async fn fetch(State(app): State<Arc<App>>, Path(name): Path<String>) -> Response {
+    let absent = check_name(&name).is_ok()
+        && std::fs::symlink_metadata(app.workspace.files.join(&name)).is_err();
     match app.workspace.existing_file(&name) {
         Ok(path) => send(&path, "application/octet-stream", Some(&name)).await,
-        Err(detail) if check_name(&name).is_ok() => {
+        Err(detail) if absent => {
             fail(StatusCode::NOT_FOUND, "urn:stance:no-such-file", "No such file", &detail)
         }
+        // Not a plain name, or it resolves outside the workspace.
         Err(detail) => bad_request(&detail),
     }
 }
