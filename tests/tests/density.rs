@@ -36,16 +36,20 @@ fn planted_zones_show_in_diff_and_tolerance() {
         "density_support",
         "density_oppose",
         "density_diff",
-        "density_logrr",
-        "density_logrr_p",
+        "density_log_ratio",
+        "density_log_ratio_p_upper",
+        "density_log_ratio_p_lower",
         "density_tolerance",
     ] {
         assert!(names.iter().any(|n| n == t), "missing {t}: {names:?}");
     }
+    assert!(!names.iter().any(|n| n.contains("logrr")), "{names:?}");
     assert_eq!(summary["results"]["bandwidth_m"].as_f64(), Some(8000.0));
+    let floor = summary["results"]["slices"][0]["log_ratio_floor_per_km2"].as_f64();
+    assert!(floor.is_some_and(|f| f > 0.0), "{summary}");
     let diff = raster::read(&path, "density_diff").expect("diff");
-    let p_upper = raster::read(&path, "density_logrr_p").expect("p");
-    let p_lower = raster::read(&path, "density_logrr_p_lower").expect("p lower");
+    let p_upper = raster::read(&path, "density_log_ratio_p_upper").expect("p");
+    let p_lower = raster::read(&path, "density_log_ratio_p_lower").expect("p lower");
     let working = crs::parse(&diff.crs_wkt).expect("crs");
     let wgs84 = crs::wgs84().expect("wgs84");
     let truth = rows(

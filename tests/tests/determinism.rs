@@ -66,7 +66,7 @@ fn density_permutations_do_not_depend_on_threads() {
     }
     let one = contents(&dir.join("t1.gpkg"));
     assert!(
-        one.iter().any(|(n, _)| n.ends_with("_logrr_p")),
+        one.iter().any(|(n, _)| n.ends_with("_log_ratio_p_upper")),
         "{:?}",
         tables(&dir.join("t1.gpkg"))
     );

@@ -666,13 +666,32 @@ fn a_new_crs_joins_an_output_that_holds_a_coverage() {
     let dir = stance_tests::out_dir("new_crs_after_coverage");
     let _ = std::fs::remove_file(dir.join("c.gpkg"));
     stance_tests::synth(&dir, "c.gpkg", 2000, 4);
-    let common = ["--input", "c.gpkg", "--layer", "veldmark_records", "--output", "c.gpkg"];
+    let common = [
+        "--input",
+        "c.gpkg",
+        "--layer",
+        "veldmark_records",
+        "--output",
+        "c.gpkg",
+    ];
     let density = stance_tests::run_in(&dir, "stance-density", &[&common[..], &["-q"]].concat());
     assert_eq!(density.code, 0, "{}", density.stderr);
     let scan = stance_tests::run_in(
         &dir,
         "stance-scan",
-        &[&common[..], &["--crs", "EPSG:32608", "--replicates", "9", "--max-share", "0.2", "-q"]].concat(),
+        &[
+            &common[..],
+            &[
+                "--crs",
+                "EPSG:32608",
+                "--replicates",
+                "9",
+                "--max-share",
+                "0.2",
+                "-q",
+            ],
+        ]
+        .concat(),
     );
     assert_eq!(scan.code, 0, "{}", scan.stderr);
     let path = dir.join("c.gpkg");
@@ -681,5 +700,8 @@ fn a_new_crs_joins_an_output_that_holds_a_coverage() {
         "SELECT s.organization_coordsys_id, s.definition_12_063 FROM gpkg_spatial_ref_sys s \
          JOIN gpkg_geometry_columns g ON g.srs_id = s.srs_id WHERE g.table_name = 'scan_clusters'",
     );
-    assert_eq!(rows, vec![vec!["32608".to_string(), "undefined".to_string()]]);
+    assert_eq!(
+        rows,
+        vec![vec!["32608".to_string(), "undefined".to_string()]]
+    );
 }

@@ -22,8 +22,8 @@ fn write_script(dir: &Path, name: &str, body: &str) -> PathBuf {
 }
 
 fn stance(dir: &Path, args: &[&str], plugin_path: &Path, path_dirs: &[&Path]) -> Ran {
-    let mut path = std::env::split_paths(&std::env::var_os("PATH").unwrap_or_default())
-        .collect::<Vec<_>>();
+    let mut path =
+        std::env::split_paths(&std::env::var_os("PATH").unwrap_or_default()).collect::<Vec<_>>();
     for d in path_dirs.iter().rev() {
         path.insert(0, d.to_path_buf());
     }
@@ -54,7 +54,11 @@ fn fixture(dir: &Path) -> (PathBuf, PathBuf) {
     std::fs::copy(example_plugin(), plugins.join("stance-area-shares")).expect("copy example");
     write_script(&plugins, "stance-broken", "#!/bin/sh\necho '{\"id\": \"broken\", \"version\": \"1\", \"inputs\": {\"x\": {\"schema\": {\"const\": 1}}}}'\n");
     write_script(&plugins, "stance-slow", "#!/bin/sh\nsleep 30\n");
-    write_script(&plugins, "stance-density", "#!/bin/sh\necho impostor\nexit 3\n");
+    write_script(
+        &plugins,
+        "stance-density",
+        "#!/bin/sh\necho impostor\nexit 3\n",
+    );
     write_script(&plugins, "not-a-plugin", "#!/bin/sh\nexit 0\n");
     // A plugin found on PATH only, keeping the description contract.
     let description = r#"{"id": "echo-count", "version": "1", "title": "Echo", "description": "Test plugin.", "inputs": {"output": {"title": "Output", "schema": {"type": "string"}, "minOccurs": 1, "maxOccurs": 1}}, "outputs": {}}"#;
@@ -81,16 +85,43 @@ fn plugins_are_discovered_listed_with_their_origin_and_never_shadow_built_ins() 
             .unwrap_or_else(|| panic!("{id} not listed:\n{}", list.stdout))
             .to_owned()
     };
-    assert!(line("density").ends_with("\tbuilt-in"), "{}", line("density"));
+    assert!(
+        line("density").ends_with("\tbuilt-in"),
+        "{}",
+        line("density")
+    );
     let example = line("area-shares");
-    assert!(example.contains("Stance counts and shares per area"), "{example}");
-    assert!(example.contains("via STANCE_PLUGIN_PATH") && example.contains("plugins/stance-area-shares"), "{example}");
+    assert!(
+        example.contains("Stance counts and shares per area"),
+        "{example}"
+    );
+    assert!(
+        example.contains("via STANCE_PLUGIN_PATH")
+            && example.contains("plugins/stance-area-shares"),
+        "{example}"
+    );
     assert!(line("echo-count").contains("via PATH"));
-    assert!(line("broken").contains("BROKEN: invalid process description"), "{}", line("broken"));
-    assert!(line("slow").contains("BROKEN") && line("slow").contains("did not answer"), "{}", line("slow"));
-    let density_lines: Vec<&str> = list.stdout.lines().filter(|l| l.starts_with("density\t")).collect();
+    assert!(
+        line("broken").contains("BROKEN: invalid process description"),
+        "{}",
+        line("broken")
+    );
+    assert!(
+        line("slow").contains("BROKEN") && line("slow").contains("did not answer"),
+        "{}",
+        line("slow")
+    );
+    let density_lines: Vec<&str> = list
+        .stdout
+        .lines()
+        .filter(|l| l.starts_with("density\t"))
+        .collect();
     assert_eq!(density_lines.len(), 2, "{}", list.stdout);
-    assert!(density_lines[1].contains("cannot replace it"), "{}", density_lines[1]);
+    assert!(
+        density_lines[1].contains("cannot replace it"),
+        "{}",
+        density_lines[1]
+    );
     assert!(!list.stdout.contains("not-a-plugin"));
 
     // `stance density` still runs the built-in, not the impostor.
@@ -106,7 +137,10 @@ fn plugins_are_discovered_listed_with_their_origin_and_never_shadow_built_ins() 
         .iter()
         .filter_map(|p| p["id"].as_str())
         .collect();
-    assert!(ids.contains(&"area-shares") && ids.contains(&"echo-count"), "{ids:?}");
+    assert!(
+        ids.contains(&"area-shares") && ids.contains(&"echo-count"),
+        "{ids:?}"
+    );
     assert!(!ids.contains(&"broken") && !ids.contains(&"slow"));
     assert_eq!(ids.iter().filter(|i| **i == "density").count(), 1);
 
@@ -114,7 +148,12 @@ fn plugins_are_discovered_listed_with_their_origin_and_never_shadow_built_ins() 
     let broken = stance(&dir, &["broken", "--x"], &plugins, &[&on_path]);
     assert_eq!(broken.code, 2);
     assert!(broken.stderr.contains("broken"), "{}", broken.stderr);
-    let echo = stance(&dir, &["echo-count", "--output", "x"], &plugins, &[&on_path]);
+    let echo = stance(
+        &dir,
+        &["echo-count", "--output", "x"],
+        &plugins,
+        &[&on_path],
+    );
     assert_eq!(echo.code, 0, "{}", echo.stderr);
     assert_eq!(echo.json()["ran"], true);
 }
@@ -122,11 +161,28 @@ fn plugins_are_discovered_listed_with_their_origin_and_never_shadow_built_ins() 
 #[test]
 fn the_example_plugin_passes_check_plugin_and_runs_through_the_umbrella() {
     let dir = out_dir("plugins_example");
-    let check = stance(&dir, &["check-plugin", example_plugin().to_str().expect("path")], &dir, &[]);
+    let check = stance(
+        &dir,
+        &["check-plugin", example_plugin().to_str().expect("path")],
+        &dir,
+        &[],
+    );
     assert_eq!(check.code, 0, "{}\n{}", check.stdout, check.stderr);
-    for item in ["describe", "help", "bad arguments", "missing input", "run", "summary", "provenance", "input unchanged"] {
+    for item in [
+        "describe",
+        "help",
+        "bad arguments",
+        "missing input",
+        "run",
+        "summary",
+        "provenance",
+        "input unchanged",
+    ] {
         assert!(
-            check.stdout.lines().any(|l| l.starts_with("ok") && l.contains(item)),
+            check
+                .stdout
+                .lines()
+                .any(|l| l.starts_with("ok") && l.contains(item)),
             "{item} not reported as holding:\n{}",
             check.stdout
         );
@@ -138,8 +194,18 @@ fn the_example_plugin_passes_check_plugin_and_runs_through_the_umbrella() {
     synth(&dir, "s.gpkg", 1500, 5);
     let ran = stance(
         &dir,
-        &["area-shares", "--input", "s.gpkg", "--layer", "veldmark_records", "--areas",
-          "veldmark_districts", "--output", "s.gpkg", "-q"],
+        &[
+            "area-shares",
+            "--input",
+            "s.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--areas",
+            "veldmark_districts",
+            "--output",
+            "s.gpkg",
+            "-q",
+        ],
         &plugins,
         &[],
     );
@@ -151,15 +217,38 @@ fn the_example_plugin_passes_check_plugin_and_runs_through_the_umbrella() {
     let rates = stance_tests::run_in(
         &dir,
         "stance-rates",
-        &["--input", "s.gpkg", "--layer", "veldmark_records", "--areas", "veldmark_districts",
-          "--case-class", "support", "--output", "s.gpkg", "--name", "r", "--no-local", "-q"],
+        &[
+            "--input",
+            "s.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--areas",
+            "veldmark_districts",
+            "--case-class",
+            "support",
+            "--output",
+            "s.gpkg",
+            "--name",
+            "r",
+            "--no-local",
+            "-q",
+        ],
     );
     assert_eq!(rates.code, 0, "{}", rates.stderr);
     let path = dir.join("s.gpkg");
-    let ours = rows(&path, "SELECT code, count_support, records FROM area_shares ORDER BY code");
-    let theirs = rows(&path, "SELECT code, count_support, count_total FROM r ORDER BY code");
+    let ours = rows(
+        &path,
+        "SELECT code, count_support, records FROM area_shares ORDER BY code",
+    );
+    let theirs = rows(
+        &path,
+        "SELECT code, count_support, count_total FROM r ORDER BY code",
+    );
     assert_eq!(ours.len(), theirs.len());
-    assert!(ours.iter().any(|r| r[1] != "0"), "some district has support records");
+    assert!(
+        ours.iter().any(|r| r[1] != "0"),
+        "some district has support records"
+    );
     assert_eq!(ours, theirs, "counts per district: plugin vs stance-rates");
 }
 
@@ -178,17 +267,38 @@ fn check_plugin_fails_a_broken_plugin_naming_each_failed_item() {
              echo 'something went wrong' >&2; echo 'really' >&2; [ -n \"$out\" ] && echo junk >> \"$out\"; exit 1\n"
         ),
     );
-    let check = stance(&dir, &["check-plugin", plugin.to_str().expect("path")], &dir, &[]);
+    let check = stance(
+        &dir,
+        &["check-plugin", plugin.to_str().expect("path")],
+        &dir,
+        &[],
+    );
     assert_eq!(check.code, 1, "{}\n{}", check.stdout, check.stderr);
-    for item in ["bad arguments", "missing input", "run", "summary", "provenance"] {
+    for item in [
+        "bad arguments",
+        "missing input",
+        "run",
+        "summary",
+        "provenance",
+    ] {
         assert!(
-            check.stdout.lines().any(|l| l.starts_with("FAIL") && l.contains(item)),
+            check
+                .stdout
+                .lines()
+                .any(|l| l.starts_with("FAIL") && l.contains(item)),
             "{item} not reported as failing:\n{}",
             check.stdout
         );
     }
-    assert!(check.stdout.contains("the existing output file changed"), "{}", check.stdout);
-    assert!(check.stdout.lines().any(|l| l.starts_with("ok") && l.contains("describe")));
+    assert!(
+        check.stdout.contains("the existing output file changed"),
+        "{}",
+        check.stdout
+    );
+    assert!(check
+        .stdout
+        .lines()
+        .any(|l| l.starts_with("ok") && l.contains("describe")));
     let missing = stance(&dir, &["check-plugin", "/no/such/stance-x"], &dir, &[]);
     assert_eq!(missing.code, 2);
 }

@@ -1,11 +1,12 @@
-//! Comparing two classes: difference, square-root difference, share and the log relative risk
-//! of normalised densities (Kelsall & Diggle 1995, *Bernoulli* 1(1/2), 3–16).
+//! Comparing two classes: difference, square-root difference, share and the log ratio of their
+//! normalised densities, the log relative risk of Kelsall & Diggle (1995, *Bernoulli* 1(1/2),
+//! 3–16).
 
-/// The floor added to both normalised densities in the log relative risk, as a fraction of the
+/// The floor added to both normalised densities in the log ratio, as a fraction of the
 /// maximum pooled density on the grid: ρ = ln((f_A + c)/(f_B + c)), c = 1e-4 · max f_pool.
 /// It keeps ρ finite where a class has no points within reach, and pulls ρ towards 0 where
 /// both densities are negligible (below 1/10,000 of the peak).
-pub const LOGRR_FLOOR_FRACTION: f64 = 1e-4;
+pub const LOG_RATIO_FLOOR_FRACTION: f64 = 1e-4;
 
 /// Cells whose A + B intensity is below this fraction of its maximum get no share (nodata):
 /// the share of almost nothing is noise.
@@ -25,9 +26,9 @@ pub struct Pair<'a> {
     pub weight_b: f64,
 }
 
-/// The floor c of [`LOGRR_FLOOR_FRACTION`] for a pair: 1e-4 · max over cells of
+/// The floor c of [`LOG_RATIO_FLOOR_FRACTION`] for a pair: 1e-4 · max over cells of
 /// (A + B)/(W_A + W_B).
-pub fn logrr_floor(pair: &Pair<'_>) -> f64 {
+pub fn log_ratio_floor(pair: &Pair<'_>) -> f64 {
     let total = pair.weight_a + pair.weight_b;
     let max = pair
         .a
@@ -36,11 +37,11 @@ pub fn logrr_floor(pair: &Pair<'_>) -> f64 {
         .map(|(a, b)| (a + b) / total)
         .filter(|v| v.is_finite())
         .fold(0.0, f64::max);
-    LOGRR_FLOOR_FRACTION * max
+    LOG_RATIO_FLOOR_FRACTION * max
 }
 
 /// ρ(x) = ln((A/W_A + c)/(B/W_B + c)) per cell (NaN stays NaN).
-pub fn logrr(a: &[f64], b: &[f64], weight_a: f64, weight_b: f64, floor: f64) -> Vec<f64> {
+pub fn log_ratio(a: &[f64], b: &[f64], weight_a: f64, weight_b: f64, floor: f64) -> Vec<f64> {
     a.iter()
         .zip(b)
         .map(|(a, b)| ((a / weight_a + floor) / (b / weight_b + floor)).ln())
@@ -108,9 +109,9 @@ mod tests {
             weight_a: 2.0,
             weight_b: 1.0,
         };
-        let c = logrr_floor(&pair);
+        let c = log_ratio_floor(&pair);
         assert_relative_eq!(c, 1e-4 * 5.0 / 3.0, max_relative = 1e-15);
-        let rho = logrr(&a[..2], &b[..2], 2.0, 1.0, c);
+        let rho = log_ratio(&a[..2], &b[..2], 2.0, 1.0, c);
         assert_relative_eq!(rho[0], ((2.0 + c) / (1.0 + c)).ln(), max_relative = 1e-15);
         assert_relative_eq!(rho[1], (c / (2.0 + c)).ln(), max_relative = 1e-15);
     }

@@ -1,6 +1,8 @@
-//! Tolerance of the log relative risk by random relabelling of the pooled case and control
-//! points, one Monte Carlo p-value per cell: Kelsall & Diggle (1995), *Bernoulli* 1, 3–16, §6;
-//! Davies, Hazelton & Marshall (2011), *Stat. Med.* 30, 1186–1204 (tolerance contours).
+//! Tolerance of the log ratio of two densities (the log relative risk) by random relabelling of
+//! the pooled points of the two classes, one Monte Carlo p-value per cell: Kelsall & Diggle
+//! (1995), *Bernoulli* 1, 3–16, §6; tolerance contours after Hazelton & Davies (2009),
+//! *Biometrical Journal* 51(1), 98–109, and Davies & Hazelton (2010), *Statistics in Medicine*
+//! 29(23), 2423–2437.
 
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
@@ -57,11 +59,12 @@ pub struct Relabelling<'a> {
 /// identical for any number of threads (counts are summed, an order-free reduction). The B sum
 /// is the pooled sum minus the A sum (the estimate is linear in the points).
 ///
-/// Returns `None` when `stop` is set during the run. `done` is called with the fraction done.
+/// Returns `None` when `stop` is set during the run. `done` is called with the number of
+/// relabellings finished.
 pub fn relabelling_p_values(
     job: &Relabelling<'_>,
     stop: &AtomicBool,
-    done: &(dyn Fn(f64) + Sync),
+    done: &(dyn Fn(usize) + Sync),
 ) -> Option<PValues> {
     let cells = job.observed.len();
     let pooled: Vec<usize> = job.a.iter().chain(job.b).copied().collect();
@@ -106,7 +109,7 @@ pub fn relabelling_p_values(
                     }
                 }
                 let n = finished.fetch_add(1, Ordering::Relaxed) + 1;
-                done(n as f64 / job.permutations as f64);
+                done(n);
                 (upper, lower)
             },
         )
@@ -141,11 +144,11 @@ pub fn relabelling_p_values(
     })
 }
 
-/// Observed ρ with its floor, from the two class sums (see [`compare::logrr`]).
-pub fn observed_logrr(pair: &compare::Pair<'_>) -> (Vec<f64>, f64) {
-    let floor = compare::logrr_floor(pair);
+/// Observed ρ with its floor, from the two class sums (see [`compare::log_ratio`]).
+pub fn observed_log_ratio(pair: &compare::Pair<'_>) -> (Vec<f64>, f64) {
+    let floor = compare::log_ratio_floor(pair);
     (
-        compare::logrr(pair.a, pair.b, pair.weight_a, pair.weight_b, floor),
+        compare::log_ratio(pair.a, pair.b, pair.weight_a, pair.weight_b, floor),
         floor,
     )
 }

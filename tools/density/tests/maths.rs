@@ -167,7 +167,7 @@ fn random_labels_flag_about_five_percent_of_cells() {
             weight_a: a.len() as f64,
             weight_b: b.len() as f64,
         };
-        let (rho, floor) = tolerance::observed_logrr(&pair);
+        let (rho, floor) = tolerance::observed_log_ratio(&pair);
         let pooled: Vec<f64> = sa.iter().zip(&sb).map(|(p, q)| p + q).collect();
         let job = tolerance::Relabelling {
             estimator: &e,
@@ -220,7 +220,7 @@ fn relabelling_does_not_depend_on_threads() {
         weight_a: 150.0,
         weight_b: 150.0,
     };
-    let (rho, floor) = tolerance::observed_logrr(&pair);
+    let (rho, floor) = tolerance::observed_log_ratio(&pair);
     let pooled: Vec<f64> = sa.iter().zip(&sb).map(|(p, q)| p + q).collect();
     let job = tolerance::Relabelling {
         estimator: &e,

@@ -115,7 +115,9 @@ fn describe(processes: &[Process], wanted: Option<&OsString>) -> ExitCode {
             Some(p) => match &p.state {
                 State::Ready(d) => d.clone(),
                 State::Broken(reason) => {
-                    host::print_stderr(&format!("stance: error: plugin '{id}' is broken: {reason}"));
+                    host::print_stderr(&format!(
+                        "stance: error: plugin '{id}' is broken: {reason}"
+                    ));
                     return ExitCode::from(2);
                 }
             },
@@ -128,7 +130,9 @@ fn describe(processes: &[Process], wanted: Option<&OsString>) -> ExitCode {
 
 fn check_plugin(path: Option<&OsString>) -> ExitCode {
     let Some(path) = path else {
-        host::print_stderr("stance: error: check-plugin needs the plugin's path (stance check-plugin PATH)");
+        host::print_stderr(
+            "stance: error: check-plugin needs the plugin's path (stance check-plugin PATH)",
+        );
         return ExitCode::from(2);
     };
     let umbrella = std::env::current_exe().unwrap_or_else(|_| "stance".into());
