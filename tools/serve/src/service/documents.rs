@@ -40,7 +40,7 @@ pub fn landing(base: &str) -> Value {
         "links": [
             link(format!("{base}/"), "self", "application/json", "This document"),
             link(format!("{base}/?f=html"), "alternate", "text/html", "This service as a page"),
-            link(format!("{base}/api"), "service-desc", OPENAPI, "The API definition (OpenAPI 3.0)"),
+            link(format!("{base}/api"), "service-desc", OPENAPI, "The API definition"),
             link(format!("{base}/page"), "service-doc", "text/html", "The service's page"),
             link(format!("{base}/conformance"), &format!("{REL}conformance"), "application/json",
                 "Conformance classes implemented"),
@@ -72,9 +72,18 @@ fn served(description: &Value, base: &str) -> Value {
         o.insert(
             "links".into(),
             json!([
-                link(format!("{base}/processes/{id}"), "self", "application/json", "This process"),
-                link(format!("{base}/processes/{id}/execution"), &format!("{REL}execute"),
-                    "application/json", "Execute this process"),
+                link(
+                    format!("{base}/processes/{id}"),
+                    "self",
+                    "application/json",
+                    "This process"
+                ),
+                link(
+                    format!("{base}/processes/{id}/execution"),
+                    &format!("{REL}execute"),
+                    "application/json",
+                    "Execute this process"
+                ),
             ]),
         );
     }
@@ -171,7 +180,10 @@ pub fn job_list(jobs: &[Job], base: &str) -> Value {
 /// inline as a qualified value (`qualifiedInputValue.yaml`: `value` plus `mediaType`).
 pub fn results(job: &Job, description: &Value, base: &str) -> Value {
     let mut out = Map::new();
-    let declared = description["outputs"].as_object().cloned().unwrap_or_default();
+    let declared = description["outputs"]
+        .as_object()
+        .cloned()
+        .unwrap_or_default();
     for (name, output) in declared {
         if name == "summary" {
             continue;
@@ -250,7 +262,12 @@ mod tests {
         let rels: Vec<&str> = links.iter().filter_map(|l| l["rel"].as_str()).collect();
         assert_eq!(
             rels,
-            ["self", "http://www.opengis.net/def/rel/ogc/1.0/results", "enclosure", "preview"]
+            [
+                "self",
+                "http://www.opengis.net/def/rel/ogc/1.0/results",
+                "enclosure",
+                "preview"
+            ]
         );
         let running = status_info(&job("running"), "http://h");
         assert_eq!(running["links"].as_array().map(Vec::len), Some(1));

@@ -75,7 +75,9 @@ pub fn plan(
         .ok_or("the process description has no inputs")?;
     for name in inputs.keys() {
         if RESERVED.contains(&name.as_str()) {
-            return Err(format!("input '{name}' is set by the service, not by a request"));
+            return Err(format!(
+                "input '{name}' is set by the service, not by a request"
+            ));
         }
         if !described.contains_key(name) {
             let known: Vec<&str> = described
@@ -96,9 +98,9 @@ pub fn plan(
         match role(name) {
             Role::OutputFile => {
                 let path = match given {
-                    Some(v) => workspace.writable_file(file_name(name, v)?).map_err(|e| {
-                        format!("input '{name}': {e}")
-                    })?,
+                    Some(v) => workspace
+                        .writable_file(file_name(name, v)?)
+                        .map_err(|e| format!("input '{name}': {e}"))?,
                     None => job_dir.join(DEFAULT_OUTPUT),
                 };
                 output = Some(path);
@@ -113,7 +115,9 @@ pub fn plan(
                     arg.push(rel.as_os_str());
                     args.push(arg);
                 } else if min_occurs(input) > 0 {
-                    return Err(format!("input '{name}' is required (a file name of the workspace)"));
+                    return Err(format!(
+                        "input '{name}' is required (a file name of the workspace)"
+                    ));
                 }
             }
             Role::Value => match given {
@@ -155,13 +159,18 @@ fn file_name<'a>(input: &str, value: &'a Value) -> Result<&'a str, String> {
                 .map(|(_, name)| name)
                 .ok_or_else(|| {
                     format!(
-                        "input '{input}': the service reads only its own files (href …/files/NAME), \
+                        "input '{input}': the service reads only its own files \
+                         (href …/files/NAME), \
                          not {href}"
                     )
                 }),
-            None => Err(format!("input '{input}': expected a file name or {{\"href\": …}}")),
+            None => Err(format!(
+                "input '{input}': expected a file name or {{\"href\": …}}"
+            )),
         },
-        other => Err(format!("input '{input}': expected a file name, got {other}")),
+        other => Err(format!(
+            "input '{input}': expected a file name, got {other}"
+        )),
     }
 }
 
@@ -175,7 +184,9 @@ pub fn arguments(name: &str, schema: &Value, value: &Value) -> Result<Vec<OsStri
         return match value {
             Value::Bool(true) => Ok(vec![OsString::from(format!("--{name}"))]),
             Value::Bool(false) => Ok(Vec::new()),
-            other => Err(format!("input '{name}': expected true or false, got {other}")),
+            other => Err(format!(
+                "input '{name}': expected true or false, got {other}"
+            )),
         };
     }
     let items: Vec<&Value> = if kind == Some("array") {
@@ -268,7 +279,9 @@ fn check_value(name: &str, schema: &Value, value: &Value) -> Result<String, Stri
 
 fn check_text(name: &str, schema: &Value, s: &str) -> Result<String, String> {
     if s.contains('\0') {
-        return Err(format!("input '{name}': the value contains a NUL character"));
+        return Err(format!(
+            "input '{name}': the value contains a NUL character"
+        ));
     }
     if escapes_job_dir(s) {
         return Err(format!(
@@ -278,10 +291,16 @@ fn check_text(name: &str, schema: &Value, s: &str) -> Result<String, String> {
     }
     let chars = s.chars().count() as u64;
     if schema["minLength"].as_u64().is_some_and(|min| chars < min) {
-        return Err(format!("input '{name}': '{s}' is shorter than {}", schema["minLength"]));
+        return Err(format!(
+            "input '{name}': '{s}' is shorter than {}",
+            schema["minLength"]
+        ));
     }
     if schema["maxLength"].as_u64().is_some_and(|max| chars > max) {
-        return Err(format!("input '{name}': '{s}' is longer than {}", schema["maxLength"]));
+        return Err(format!(
+            "input '{name}': '{s}' is longer than {}",
+            schema["maxLength"]
+        ));
     }
     Ok(s.to_owned())
 }
@@ -303,13 +322,17 @@ fn check_range(name: &str, schema: &Value, x: f64) -> Result<(), String> {
     if let Some((min, exclusive)) = bound("minimum", "exclusiveMinimum") {
         if x < min || (exclusive && x == min) {
             let op = if exclusive { ">" } else { "≥" };
-            return Err(format!("input '{name}': {x} is out of range (expected {op} {min})"));
+            return Err(format!(
+                "input '{name}': {x} is out of range (expected {op} {min})"
+            ));
         }
     }
     if let Some((max, exclusive)) = bound("maximum", "exclusiveMaximum") {
         if x > max || (exclusive && x == max) {
             let op = if exclusive { "<" } else { "≤" };
-            return Err(format!("input '{name}': {x} is out of range (expected {op} {max})"));
+            return Err(format!(
+                "input '{name}': {x} is out of range (expected {op} {max})"
+            ));
         }
     }
     Ok(())
@@ -332,10 +355,12 @@ mod tests {
                 "seed": {"schema": {"type": "integer", "minimum": 0, "default": 1}, "minOccurs": 0},
                 "quiet": {"schema": {"type": "boolean"}, "minOccurs": 0},
                 "adaptive": {"schema": {"type": "boolean"}, "minOccurs": 0},
-                "kernel": {"schema": {"type": "string", "enum": ["quartic", "gaussian"]}, "minOccurs": 0},
+                "kernel": {"schema": {"type": "string", "enum": ["quartic", "gaussian"]},
+                           "minOccurs": 0},
                 "alpha": {"schema": {"type": "number", "minimum": 0, "maximum": 1,
                                      "exclusiveMinimum": true}, "minOccurs": 0},
-                "overlay": {"schema": {"type": "array", "items": {"type": "string"}}, "minOccurs": 0},
+                "overlay": {"schema": {"type": "array", "items": {"type": "string"}},
+                            "minOccurs": 0},
                 "weights-file": {"schema": {"type": "string"}, "minOccurs": 0},
                 "title": {"schema": {"type": "string", "maxLength": 10}, "minOccurs": 0}
             },
@@ -382,15 +407,29 @@ mod tests {
                 "--output=output.gpkg",
             ]
         );
-        assert!(plan.output.expect("output").ends_with("jobs/j1/output.gpkg"));
+        assert!(plan
+            .output
+            .expect("output")
+            .ends_with("jobs/j1/output.gpkg"));
     }
 
     #[test]
     fn false_booleans_add_nothing_and_a_named_output_lives_in_files() {
-        let plan = run(json!({"inputs": {"input": "in.gpkg", "adaptive": false, "output": "res.gpkg"}}))
-            .expect("valid");
-        let args: Vec<String> = plan.args.iter().map(|a| a.to_string_lossy().into_owned()).collect();
-        assert_eq!(args, ["--input=../../files/in.gpkg", "--output=../../files/res.gpkg"]);
+        let plan =
+            run(json!({"inputs": {"input": "in.gpkg", "adaptive": false, "output": "res.gpkg"}}))
+                .expect("valid");
+        let args: Vec<String> = plan
+            .args
+            .iter()
+            .map(|a| a.to_string_lossy().into_owned())
+            .collect();
+        assert_eq!(
+            args,
+            [
+                "--input=../../files/in.gpkg",
+                "--output=../../files/res.gpkg"
+            ]
+        );
         // An href to the service's own file is read as its name.
         let plan = run(json!({"inputs": {"input": {"href": "http://h:1/files/in.gpkg"}}}));
         assert!(plan.is_ok(), "{plan:?}");
@@ -399,24 +438,72 @@ mod tests {
     #[test]
     fn bad_values_are_refused_with_the_input_named() {
         let cases = [
-            (json!({"inputs": {"input": "in.gpkg", "nope": 1}}), "unknown input 'nope'"),
+            (
+                json!({"inputs": {"input": "in.gpkg", "nope": 1}}),
+                "unknown input 'nope'",
+            ),
             (json!({"inputs": {}}), "input 'input' is required"),
-            (json!({"inputs": {"input": "in.gpkg", "quiet": true}}), "set by the service"),
-            (json!({"inputs": {"input": "in.gpkg", "seed": -1}}), "out of range"),
-            (json!({"inputs": {"input": "in.gpkg", "seed": 1.5}}), "expected an integer"),
-            (json!({"inputs": {"input": "in.gpkg", "seed": "7"}}), "expected an integer"),
-            (json!({"inputs": {"input": "in.gpkg", "alpha": 0}}), "expected > 0"),
-            (json!({"inputs": {"input": "in.gpkg", "alpha": 1.5}}), "expected ≤ 1"),
-            (json!({"inputs": {"input": "in.gpkg", "kernel": "box"}}), "is not one of"),
-            (json!({"inputs": {"input": "in.gpkg", "adaptive": "yes"}}), "true or false"),
-            (json!({"inputs": {"input": "in.gpkg", "title": "far too long a title"}}), "longer"),
-            (json!({"inputs": {"input": "in.gpkg", "layer": "../x"}}), "outside the job"),
-            (json!({"inputs": {"input": "../in.gpkg"}}), "leaves the workspace"),
+            (
+                json!({"inputs": {"input": "in.gpkg", "quiet": true}}),
+                "set by the service",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "seed": -1}}),
+                "out of range",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "seed": 1.5}}),
+                "expected an integer",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "seed": "7"}}),
+                "expected an integer",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "alpha": 0}}),
+                "expected > 0",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "alpha": 1.5}}),
+                "expected ≤ 1",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "kernel": "box"}}),
+                "is not one of",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "adaptive": "yes"}}),
+                "true or false",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "title": "far too long a title"}}),
+                "longer",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "layer": "../x"}}),
+                "outside the job",
+            ),
+            (
+                json!({"inputs": {"input": "../in.gpkg"}}),
+                "leaves the workspace",
+            ),
             (json!({"inputs": {"input": "/etc/passwd"}}), "absolute path"),
-            (json!({"inputs": {"input": "missing.gpkg"}}), "no file 'missing.gpkg'"),
-            (json!({"inputs": {"input": "in.gpkg", "output": "../o.gpkg"}}), "leaves"),
-            (json!({"inputs": {"input": {"href": "http://elsewhere/x.gpkg"}}}), "own files"),
-            (json!({"inputs": {"input": "in.gpkg", "weights-file": "sub/w.gpkg"}}), "plain"),
+            (
+                json!({"inputs": {"input": "missing.gpkg"}}),
+                "no file 'missing.gpkg'",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "output": "../o.gpkg"}}),
+                "leaves",
+            ),
+            (
+                json!({"inputs": {"input": {"href": "http://elsewhere/x.gpkg"}}}),
+                "own files",
+            ),
+            (
+                json!({"inputs": {"input": "in.gpkg", "weights-file": "sub/w.gpkg"}}),
+                "plain",
+            ),
             (json!({"inputs": [1]}), "\"inputs\" must be"),
             (json!([1]), "must be a JSON object"),
         ];
@@ -428,7 +515,10 @@ mod tests {
 
     #[test]
     fn enumerations_written_as_one_of_constants_are_checked_too() {
-        let schema = json!({"oneOf": [{"type": "string", "const": "row"}, {"type": "string", "const": "binary"}]});
+        let schema = json!({"oneOf": [
+            {"type": "string", "const": "row"},
+            {"type": "string", "const": "binary"}
+        ]});
         assert_eq!(
             arguments("standardise", &schema, &json!("row")).expect("ok"),
             [OsString::from("--standardise=row")]

@@ -134,7 +134,9 @@ pub fn main(args: Vec<OsString>, processes: Vec<Process>, umbrella: PathBuf) -> 
     {
         Ok(r) => r,
         Err(e) => {
-            print_stderr(&format!("stance serve: error: cannot start the runtime ({e})"));
+            print_stderr(&format!(
+                "stance serve: error: cannot start the runtime ({e})"
+            ));
             return ExitCode::from(1);
         }
     };
@@ -189,7 +191,9 @@ async fn serve(app: Arc<App>, address: SocketAddr, recovered: usize) -> ExitCode
     let listener = match tokio::net::TcpListener::bind(address).await {
         Ok(l) => l,
         Err(e) => {
-            print_stderr(&format!("stance serve: error: cannot listen on {address} ({e})"));
+            print_stderr(&format!(
+                "stance serve: error: cannot listen on {address} ({e})"
+            ));
             return ExitCode::from(1);
         }
     };
@@ -269,9 +273,19 @@ mod tests {
         .err()
         .expect("refused");
         assert!(e.contains("--token"), "{e}");
-        assert!(!dir.path().join("ws").exists(), "refused before touching the workspace");
+        assert!(
+            !dir.path().join("ws").exists(),
+            "refused before touching the workspace"
+        );
         let ok = prepare(
-            options(&["--bind", "0.0.0.0:0", "--workspace", &ws, "--token", "s3cret"]),
+            options(&[
+                "--bind",
+                "0.0.0.0:0",
+                "--workspace",
+                &ws,
+                "--token",
+                "s3cret",
+            ]),
             Vec::new(),
             PathBuf::from("stance"),
         );

@@ -53,9 +53,9 @@ impl Workspace {
     pub fn existing_file(&self, name: &str) -> Result<PathBuf, String> {
         check_name(name)?;
         let path = self.files.join(name);
-        let real = path
-            .canonicalize()
-            .map_err(|_| format!("no file '{name}' in the workspace (upload it with PUT /files/{name})"))?;
+        let real = path.canonicalize().map_err(|_| {
+            format!("no file '{name}' in the workspace (upload it with PUT /files/{name})")
+        })?;
         if !real.starts_with(&self.files) || !real.is_file() {
             return Err(format!(
                 "'{name}' resolves outside the workspace's files/ folder or is not a file"
@@ -192,7 +192,13 @@ mod tests {
         for bad in ["/etc/passwd", "../x", "a/../../b", "~/x", "..\\x"] {
             assert!(escapes_job_dir(bad), "{bad}");
         }
-        for ok in ["map.png", "support,oppose", "label=class,...", "EPSG:3035", "A/B ratio"] {
+        for ok in [
+            "map.png",
+            "support,oppose",
+            "label=class,...",
+            "EPSG:3035",
+            "A/B ratio",
+        ] {
             assert!(!escapes_job_dir(ok), "{ok}");
         }
     }

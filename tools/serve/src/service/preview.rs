@@ -64,10 +64,7 @@ pub fn layers(gpkg: &Path, names: &[String]) -> Vec<Layer> {
     let Ok(db) = Connection::open_with_flags(gpkg, OpenFlags::SQLITE_OPEN_READ_ONLY) else {
         return Vec::new();
     };
-    names
-        .iter()
-        .filter_map(|name| layer(&db, name))
-        .collect()
+    names.iter().filter_map(|name| layer(&db, name)).collect()
 }
 
 fn layer(db: &Connection, name: &str) -> Option<Layer> {
@@ -109,7 +106,9 @@ fn layer(db: &Connection, name: &str) -> Option<Layer> {
 fn first_numeric_field(db: &Connection, table: &str, geometry: &str) -> Option<String> {
     let quoted = table.replace('"', "\"\"");
     let mut statement = db
-        .prepare(&format!("SELECT name, type, pk FROM pragma_table_info(\"{quoted}\")"))
+        .prepare(&format!(
+            "SELECT name, type, pk FROM pragma_table_info(\"{quoted}\")"
+        ))
         .ok()?;
     let columns = statement
         .query_map([], |r| {
@@ -150,7 +149,7 @@ mod tests {
         let dir = tempfile::tempdir().expect("tempdir");
         let path = dir.path().join("o.gpkg");
         let db = Connection::open(&path).expect("open");
-        // The GeoPackage system tables (OGC 12-128r18, tables 4 and 6), reduced to the columns read.
+        // The GeoPackage system tables (OGC 12-128r18, tables 4 and 6), only the columns read.
         db.execute_batch(
             "CREATE TABLE gpkg_contents (table_name TEXT PRIMARY KEY, data_type TEXT);
              CREATE TABLE gpkg_geometry_columns (table_name TEXT, column_name TEXT,
@@ -172,8 +171,14 @@ mod tests {
         assert_eq!(
             found,
             [
-                Layer { name: "s".into(), field: None },
-                Layer { name: "areas".into(), field: Some("rate".into()) },
+                Layer {
+                    name: "s".into(),
+                    field: None
+                },
+                Layer {
+                    name: "areas".into(),
+                    field: Some("rate".into())
+                },
             ]
         );
         for layer in &found {

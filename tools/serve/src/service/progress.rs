@@ -73,9 +73,15 @@ mod tests {
         let p = parse(r#"{"progress":1.0,"phase":"done"}"#).expect("last line");
         assert_eq!((p.percent, p.message().as_str()), (100, "done"));
         // 0.999 is not yet done: rounded down.
-        assert_eq!(parse(r#"{"progress":0.999,"phase":"x"}"#).map(|p| p.percent), Some(99));
+        assert_eq!(
+            parse(r#"{"progress":0.999,"phase":"x"}"#).map(|p| p.percent),
+            Some(99)
+        );
         // Out-of-range fractions are clamped.
-        assert_eq!(parse(r#"{"progress":7,"phase":"x"}"#).map(|p| p.percent), Some(100));
+        assert_eq!(
+            parse(r#"{"progress":7,"phase":"x"}"#).map(|p| p.percent),
+            Some(100)
+        );
         assert_eq!(parse(r#"{"progress":-1}"#).map(|p| p.percent), Some(0));
         for log in [
             "stance-density: error: --layer: s.gpkg has several point layers",

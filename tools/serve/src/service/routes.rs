@@ -28,9 +28,15 @@ pub fn router(app: Arc<App>) -> Router {
     Router::new()
         .route("/", get(landing))
         .route("/page", get(page))
-        .route("/page.js", get(|| async { text("text/javascript", PAGE_JS) }))
+        .route(
+            "/page.js",
+            get(|| async { text("text/javascript", PAGE_JS) }),
+        )
         .route("/page.css", get(|| async { text("text/css", PAGE_CSS) }))
-        .route("/conformance", get(|| async { ok(documents::conformance()) }))
+        .route(
+            "/conformance",
+            get(|| async { ok(documents::conformance()) }),
+        )
         .route("/api", get(api))
         .route("/processes", get(processes))
         .route("/processes/{id}", get(process))
@@ -42,10 +48,21 @@ pub fn router(app: Arc<App>) -> Router {
         .route("/jobs/{id}/preview/{file}", get(preview))
         .route("/files", get(transfer::list))
         .route("/files/{name}", get(transfer::fetch).put(transfer::upload))
-        .fallback(|| async { fail(StatusCode::NOT_FOUND, "urn:stance:not-found", "Not found", "no such resource; see /api") })
+        .fallback(|| async {
+            fail(
+                StatusCode::NOT_FOUND,
+                "urn:stance:not-found",
+                "Not found",
+                "no such resource; see /api",
+            )
+        })
         .method_not_allowed_fallback(|| async {
-            fail(StatusCode::METHOD_NOT_ALLOWED, "urn:stance:method-not-allowed",
-                 "Method not allowed", "this resource does not take that method; see /api")
+            fail(
+                StatusCode::METHOD_NOT_ALLOWED,
+                "urn:stance:method-not-allowed",
+                "Method not allowed",
+                "this resource does not take that method; see /api",
+            )
         })
         .layer(axum::extract::DefaultBodyLimit::disable())
         .layer(middleware::from_fn_with_state(Arc::clone(&app), auth))
@@ -73,7 +90,12 @@ pub fn fail(status: StatusCode, kind: &str, title: &str, detail: &str) -> Respon
 
 /// 400 for a request the service refuses before running anything.
 pub fn bad_request(detail: &str) -> Response {
-    fail(StatusCode::BAD_REQUEST, "urn:stance:invalid-request", "Invalid request", detail)
+    fail(
+        StatusCode::BAD_REQUEST,
+        "urn:stance:invalid-request",
+        "Invalid request",
+        detail,
+    )
 }
 
 /// 413 for a body over its limit.
@@ -87,11 +109,21 @@ pub fn too_large(limit: u64) -> Response {
 }
 
 fn internal(detail: &str) -> Response {
-    fail(StatusCode::INTERNAL_SERVER_ERROR, "urn:stance:server-error", "Server error", detail)
+    fail(
+        StatusCode::INTERNAL_SERVER_ERROR,
+        "urn:stance:server-error",
+        "Server error",
+        detail,
+    )
 }
 
 fn no_such_job(id: &str) -> Response {
-    fail(StatusCode::NOT_FOUND, "no-such-job", "No such job", &format!("no job '{id}'"))
+    fail(
+        StatusCode::NOT_FOUND,
+        "no-such-job",
+        "No such job",
+        &format!("no job '{id}'"),
+    )
 }
 
 /// `http://host:port` from the request's Host header (characters of a host and port only).
@@ -124,7 +156,7 @@ async fn auth(State(app): Shared, request: Request, next: Next) -> Response {
                 StatusCode::UNAUTHORIZED,
                 "urn:stance:unauthorized",
                 "Unauthorized",
-                "this service needs 'Authorization: Bearer TOKEN' (the token given to stance serve --token)",
+                "this service needs 'Authorization: Bearer TOKEN' (see stance serve --token)",
             );
             response
                 .headers_mut()
@@ -141,7 +173,11 @@ fn same(a: &[u8], b: &[u8]) -> bool {
 }
 
 fn wants_html(headers: &HeaderMap, query: Option<&str>) -> bool {
-    match query.unwrap_or_default().split('&').find_map(|p| p.strip_prefix("f=")) {
+    match query
+        .unwrap_or_default()
+        .split('&')
+        .find_map(|p| p.strip_prefix("f="))
+    {
         Some(f) => f == "html",
         None => headers
             .get(header::ACCEPT)
@@ -236,14 +272,19 @@ async fn execute(
     }
     let (program, mut args) = process.command(&app.umbrella);
     args.extend(plan.args);
-    let arguments: Vec<String> = args.iter().map(|a| a.to_string_lossy().into_owned()).collect();
+    let arguments: Vec<String> = args
+        .iter()
+        .map(|a| a.to_string_lossy().into_owned())
+        .collect();
     let output = plan.output.as_ref().map(|o| {
         o.strip_prefix(&app.workspace.root)
             .unwrap_or(o)
             .display()
             .to_string()
     });
-    if let Err(e) = app.store(|s| s.insert(&job_id, &id, &request, &json!(arguments), output.as_deref())) {
+    if let Err(e) =
+        app.store(|s| s.insert(&job_id, &id, &request, &json!(arguments), output.as_deref()))
+    {
         return internal(&e);
     }
     let launch = runner::Launch {
@@ -286,8 +327,7 @@ fn add_location(response: &mut Response, base: &str, id: &str) {
 fn created(app: &App, id: &str, base: &str) -> Response {
     match app.store(|s| s.get(id)) {
         Ok(Some(job)) => {
-            let mut response =
-                reply(StatusCode::CREATED, &documents::status_info(&job, base));
+            let mut response = reply(StatusCode::CREATED, &documents::status_info(&job, base));
             add_location(&mut response, base, id);
             response
         }
@@ -303,7 +343,12 @@ fn job_failed(job: &Job, base: &str) -> Response {
     } else {
         StatusCode::INTERNAL_SERVER_ERROR
     };
-    let mut value = exception(status.as_u16(), "urn:stance:job-failed", "The job failed", &job.message);
+    let mut value = exception(
+        status.as_u16(),
+        "urn:stance:job-failed",
+        "The job failed",
+        &job.message,
+    );
     value["instance"] = json!(format!("{base}/jobs/{}", job.id));
     reply(status, &value)
 }
@@ -321,18 +366,18 @@ async fn jobs(State(app): Shared, headers: HeaderMap, RawQuery(query): RawQuery)
     }
 }
 
-fn find(app: &App, id: &str) -> Result<Job, Response> {
+fn find(app: &App, id: &str) -> Result<Job, Box<Response>> {
     match app.store(|s| s.get(id)) {
         Ok(Some(job)) => Ok(job),
-        Ok(None) => Err(no_such_job(id)),
-        Err(e) => Err(internal(&e)),
+        Ok(None) => Err(Box::new(no_such_job(id))),
+        Err(e) => Err(Box::new(internal(&e))),
     }
 }
 
 async fn job(State(app): Shared, Path(id): Path<String>, headers: HeaderMap) -> Response {
     match find(&app, &id) {
         Ok(job) => ok(documents::status_info(&job, &base(&headers))),
-        Err(response) => response,
+        Err(response) => *response,
     }
 }
 
@@ -353,14 +398,14 @@ async fn dismiss(State(app): Shared, Path(id): Path<String>, headers: HeaderMap)
     }
     match find(&app, &id) {
         Ok(job) => ok(documents::status_info(&job, &base(&headers))),
-        Err(response) => response,
+        Err(response) => *response,
     }
 }
 
 async fn results(State(app): Shared, Path(id): Path<String>, headers: HeaderMap) -> Response {
     let job = match find(&app, &id) {
         Ok(job) => job,
-        Err(response) => return response,
+        Err(response) => return *response,
     };
     let base = base(&headers);
     match job.status.as_str() {
@@ -372,10 +417,18 @@ async fn results(State(app): Shared, Path(id): Path<String>, headers: HeaderMap)
             ok(documents::results(&job, &description, &base))
         }
         "failed" => job_failed(&job, &base),
-        "dismissed" => fail(StatusCode::GONE, "urn:stance:dismissed", "Job dismissed",
-                            &format!("job '{id}' was dismissed; its results are gone")),
-        _ => fail(StatusCode::NOT_FOUND, "result-not-ready", "Result not ready",
-                  &format!("job '{id}' is {} ({}%)", job.status, job.progress)),
+        "dismissed" => fail(
+            StatusCode::GONE,
+            "urn:stance:dismissed",
+            "Job dismissed",
+            &format!("job '{id}' was dismissed; its results are gone"),
+        ),
+        _ => fail(
+            StatusCode::NOT_FOUND,
+            "result-not-ready",
+            "Result not ready",
+            &format!("job '{id}' is {} ({}%)", job.status, job.progress),
+        ),
     }
 }
 
@@ -383,15 +436,27 @@ async fn results(State(app): Shared, Path(id): Path<String>, headers: HeaderMap)
 async fn download(State(app): Shared, Path(id): Path<String>) -> Response {
     let job = match find(&app, &id) {
         Ok(job) => job,
-        Err(response) => return response,
+        Err(response) => return *response,
     };
     match (&job.status[..], &job.output) {
         ("successful", Some(output)) => {
             let name = format!("{}-{}.gpkg", job.process_id, job.id);
-            transfer::send(&app.workspace.root.join(output), documents::GEOPACKAGE, Some(&name)).await
+            transfer::send(
+                &app.workspace.root.join(output),
+                documents::GEOPACKAGE,
+                Some(&name),
+            )
+            .await
         }
-        _ => fail(StatusCode::NOT_FOUND, "result-not-ready", "No output",
-                  &format!("job '{id}' has no output to download (status {})", job.status)),
+        _ => fail(
+            StatusCode::NOT_FOUND,
+            "result-not-ready",
+            "No output",
+            &format!(
+                "job '{id}' has no output to download (status {})",
+                job.status
+            ),
+        ),
     }
 }
 
@@ -400,7 +465,7 @@ async fn download(State(app): Shared, Path(id): Path<String>) -> Response {
 async fn preview(State(app): Shared, Path((id, file)): Path<(String, String)>) -> Response {
     let job = match find(&app, &id) {
         Ok(job) => job,
-        Err(response) => return response,
+        Err(response) => return *response,
     };
     let layer = file.strip_suffix(".png").unwrap_or_default();
     let known = job
@@ -410,9 +475,14 @@ async fn preview(State(app): Shared, Path((id, file)): Path<(String, String)>) -
         .flatten()
         .filter_map(super::preview::Layer::from_json)
         .find(|l| l.name == layer);
-    let (Some(layer), Some(output), "successful") = (known, &job.output, job.status.as_str()) else {
-        return fail(StatusCode::NOT_FOUND, "urn:stance:no-preview", "No preview",
-                    &format!("job '{id}' has no surface or area layer '{layer}' to preview"));
+    let (Some(layer), Some(output), "successful") = (known, &job.output, job.status.as_str())
+    else {
+        return fail(
+            StatusCode::NOT_FOUND,
+            "urn:stance:no-preview",
+            "No preview",
+            &format!("job '{id}' has no surface or area layer '{layer}' to preview"),
+        );
     };
     if !super::preview::valid_layer_name(&layer.name) {
         return bad_request(&format!("layer name '{}' cannot be previewed", layer.name));

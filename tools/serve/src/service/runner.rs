@@ -56,9 +56,16 @@ pub async fn run(app: Arc<App>, launch: Launch) {
         running.remove(&launch.id);
     }
     let (outcome, code) = match ended {
-        Ok(Ended { code: Some(0), stdout, .. }) => match serde_json::from_str::<Value>(&stdout) {
+        Ok(Ended {
+            code: Some(0),
+            stdout,
+            ..
+        }) => match serde_json::from_str::<Value>(&stdout) {
             Ok(summary) => (Ok(summary), Some(0)),
-            Err(_) => (Err("the tool exited 0 but printed no JSON summary".to_owned()), Some(0)),
+            Err(_) => (
+                Err("the tool exited 0 but printed no JSON summary".to_owned()),
+                Some(0),
+            ),
         },
         Ok(Ended { code, last_log, .. }) => {
             let reason = last_log.unwrap_or_else(|| match code {

@@ -127,7 +127,14 @@ impl Store {
             "INSERT INTO jobs (id, process_id, status, message, created, updated, request,
                                arguments, output)
              VALUES (?1, ?2, 'accepted', 'queued', ?3, ?3, ?4, ?5, ?6)",
-            params![id, process_id, now, request.to_string(), arguments.to_string(), output],
+            params![
+                id,
+                process_id,
+                now,
+                request.to_string(),
+                arguments.to_string(),
+                output
+            ],
         )?;
         Ok(())
     }
@@ -236,9 +243,9 @@ impl Store {
     /// # Errors
     /// SQLite's message.
     pub fn list(&self, process_id: Option<&str>) -> rusqlite::Result<Vec<Job>> {
-        let mut statement = self
-            .db
-            .prepare(&format!("{SELECT} WHERE ?1 IS NULL OR process_id = ?1 ORDER BY seq"))?;
+        let mut statement = self.db.prepare(&format!(
+            "{SELECT} WHERE ?1 IS NULL OR process_id = ?1 ORDER BY seq"
+        ))?;
         let rows = statement.query_map([process_id], job_of)?;
         rows.collect()
     }
@@ -281,18 +288,31 @@ mod tests {
         let dir = tempfile::tempdir().expect("tempdir");
         let (store, recovered) = Store::open(&dir.path().join("jobs.sqlite")).expect("open");
         assert_eq!(recovered, 0);
-        store.insert("a", "density", &json!({}), &json!([]), None).expect("insert");
+        store
+            .insert("a", "density", &json!({}), &json!([]), None)
+            .expect("insert");
         assert_eq!(store.get("a").expect("get").expect("a").status, "accepted");
         assert!(store.start("a").expect("start"));
         assert!(!store.start("a").expect("start twice"));
-        store.progress("a", 100, "replicates 5/9").expect("progress");
+        store
+            .progress("a", 100, "replicates 5/9")
+            .expect("progress");
         let job = store.get("a").expect("get").expect("a");
         // Only a finished job reads 100.
         assert_eq!((job.progress, job.message.as_str()), (99, "replicates 5/9"));
         store.progress("a", 10, "writing").expect("progress");
-        assert_eq!(store.get("a").expect("get").expect("a").progress, 99, "never decreases");
-        assert_eq!(store.dismiss("a").expect("dismiss").as_deref(), Some("running"));
-        assert!(!store.finish("a", Ok(&json!({"x": 1})), Some(0)).expect("finish"));
+        assert_eq!(
+            store.get("a").expect("get").expect("a").progress,
+            99,
+            "never decreases"
+        );
+        assert_eq!(
+            store.dismiss("a").expect("dismiss").as_deref(),
+            Some("running")
+        );
+        assert!(!store
+            .finish("a", Ok(&json!({"x": 1})), Some(0))
+            .expect("finish"));
         assert_eq!(store.get("a").expect("get").expect("a").status, "dismissed");
         assert_eq!(store.dismiss("zz").expect("dismiss"), None);
     }
@@ -304,14 +324,25 @@ mod tests {
         {
             let (store, _) = Store::open(&path).expect("open");
             for id in ["done", "running", "queued", "broken"] {
-                store.insert(id, "scan", &json!({"inputs": {}}), &json!(["--seed=1"]), Some("o"))
+                store
+                    .insert(
+                        id,
+                        "scan",
+                        &json!({"inputs": {}}),
+                        &json!(["--seed=1"]),
+                        Some("o"),
+                    )
                     .expect("insert");
             }
             store.start("done").expect("start");
-            store.finish("done", Ok(&json!({"results": {"n": 3}})), Some(0)).expect("finish");
+            store
+                .finish("done", Ok(&json!({"results": {"n": 3}})), Some(0))
+                .expect("finish");
             store.start("running").expect("start");
             store.start("broken").expect("start");
-            store.finish("broken", Err("bad layer"), Some(2)).expect("finish");
+            store
+                .finish("broken", Err("bad layer"), Some(2))
+                .expect("finish");
             // The store is dropped here as if the server were killed.
         }
         let (store, recovered) = Store::open(&path).expect("reopen");
@@ -319,11 +350,18 @@ mod tests {
         let jobs = store.list(None).expect("list");
         let ids: Vec<&str> = jobs.iter().map(|j| j.id.as_str()).collect();
         assert_eq!(ids, ["done", "running", "queued", "broken"]);
-        let status: Vec<(&str, &str)> =
-            jobs.iter().map(|j| (j.status.as_str(), j.message.as_str())).collect();
+        let status: Vec<(&str, &str)> = jobs
+            .iter()
+            .map(|j| (j.status.as_str(), j.message.as_str()))
+            .collect();
         assert_eq!(
             status,
-            [("successful", "done"), ("failed", STOPPED), ("failed", STOPPED), ("failed", "bad layer")]
+            [
+                ("successful", "done"),
+                ("failed", STOPPED),
+                ("failed", STOPPED),
+                ("failed", "bad layer")
+            ]
         );
         assert_eq!(jobs[0].summary, Some(json!({"results": {"n": 3}})));
         assert_eq!(jobs[0].progress, 100);

@@ -42,9 +42,12 @@ pub async fn list(State(app): State<Arc<App>>, headers: HeaderMap) -> Response {
         }
     }
     files.sort_by(|a, b| a["name"].as_str().cmp(&b["name"].as_str()));
-    reply(StatusCode::OK, &json!({ "files": files, "links": [
-        {"href": format!("{base}/files"), "rel": "self", "type": "application/json"}
-    ]}))
+    reply(
+        StatusCode::OK,
+        &json!({ "files": files, "links": [
+            {"href": format!("{base}/files"), "rel": "self", "type": "application/json"}
+        ]}),
+    )
 }
 
 /// `GET /files/{name}`.
@@ -53,9 +56,12 @@ pub async fn fetch(State(app): State<Arc<App>>, Path(name): Path<String>) -> Res
         && std::fs::symlink_metadata(app.workspace.files.join(&name)).is_err();
     match app.workspace.existing_file(&name) {
         Ok(path) => send(&path, "application/octet-stream", Some(&name)).await,
-        Err(detail) if absent => {
-            fail(StatusCode::NOT_FOUND, "urn:stance:no-such-file", "No such file", &detail)
-        }
+        Err(detail) if absent => fail(
+            StatusCode::NOT_FOUND,
+            "urn:stance:no-such-file",
+            "No such file",
+            &detail,
+        ),
         // Not a plain name, or it resolves outside the workspace.
         Err(detail) => bad_request(&detail),
     }
@@ -88,39 +94,55 @@ pub async fn upload(
         Ok(n) => n,
         Err(response) => {
             let _ = tokio::fs::remove_file(&partial).await;
-            return response;
+            return *response;
         }
     };
     let existed = target.exists();
     if let Err(e) = tokio::fs::rename(&partial, &target).await {
         let _ = tokio::fs::remove_file(&partial).await;
-        return fail(StatusCode::INTERNAL_SERVER_ERROR, "urn:stance:server-error",
-                    "Server error", &format!("cannot store '{name}' ({e})"));
+        return fail(
+            StatusCode::INTERNAL_SERVER_ERROR,
+            "urn:stance:server-error",
+            "Server error",
+            &format!("cannot store '{name}' ({e})"),
+        );
     }
-    let status = if existed { StatusCode::OK } else { StatusCode::CREATED };
+    let status = if existed {
+        StatusCode::OK
+    } else {
+        StatusCode::CREATED
+    };
     let base = base(&headers);
-    let mut response = reply(status, &json!({
-        "name": name, "size": written, "href": format!("{base}/files/{name}")
-    }));
+    let mut response = reply(
+        status,
+        &json!({
+            "name": name, "size": written, "href": format!("{base}/files/{name}")
+        }),
+    );
     if let Ok(v) = header::HeaderValue::from_str(&format!("{base}/files/{name}")) {
         response.headers_mut().insert(header::LOCATION, v);
     }
     response
 }
 
-async fn receive(body: Body, partial: &FsPath, limit: u64) -> Result<u64, Response> {
+async fn receive(body: Body, partial: &FsPath, limit: u64) -> Result<u64, Box<Response>> {
     let server = |e: std::io::Error| {
-        fail(StatusCode::INTERNAL_SERVER_ERROR, "urn:stance:server-error", "Server error",
-             &format!("cannot write the upload ({e})"))
+        Box::new(fail(
+            StatusCode::INTERNAL_SERVER_ERROR,
+            "urn:stance:server-error",
+            "Server error",
+            &format!("cannot write the upload ({e})"),
+        ))
     };
     let mut file = tokio::fs::File::create(partial).await.map_err(server)?;
     let mut stream = body.into_data_stream();
     let mut written = 0u64;
     while let Some(chunk) = stream.next().await {
-        let chunk = chunk.map_err(|e| bad_request(&format!("the upload broke off ({e})")))?;
+        let chunk =
+            chunk.map_err(|e| Box::new(bad_request(&format!("the upload broke off ({e})"))))?;
         written += chunk.len() as u64;
         if written > limit {
-            return Err(too_large(limit));
+            return Err(Box::new(too_large(limit)));
         }
         file.write_all(&chunk).await.map_err(server)?;
     }
@@ -134,8 +156,12 @@ pub async fn send(path: &FsPath, media: &str, name: Option<&str>) -> Response {
     let file = match tokio::fs::File::open(path).await {
         Ok(f) => f,
         Err(_) => {
-            return fail(StatusCode::NOT_FOUND, "urn:stance:no-such-file", "No such file",
-                        "the file is gone")
+            return fail(
+                StatusCode::NOT_FOUND,
+                "urn:stance:no-such-file",
+                "No such file",
+                "the file is gone",
+            )
         }
     };
     let length = file.metadata().await.map(|m| m.len()).ok();
