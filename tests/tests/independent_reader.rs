@@ -14,7 +14,7 @@ use rusqlite::types::ValueRef;
 use serde_json::{json, Value};
 use stance_core::gpkg::blob::{decode_point, PointBlob};
 use stance_core::gpkg::raster::{Surface, NODATA};
-use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant};
+use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant, PolygonCrs};
 use stance_core::gpkg::stage::Staging;
 use stance_core::gpkg::{crs, quote_identifier, Provenance};
 use stance_core::grid::Grid;
@@ -399,7 +399,7 @@ fn compare_records_with_read_points(path: &Path, theirs: &Value) {
 /// Polygon layers: counts, the exact WKB byte length of every feature (a structural check of
 /// parts, rings and vertices: pyogrio 0.10.0's WKB vs our `read_polygons`) and the bounds.
 fn compare_polygons(path: &Path, name: &str, theirs: &Value) {
-    let ours = read_polygons(path, Some(name), &[]).expect("read_polygons");
+    let ours = read_polygons(path, Some(name), &[], PolygonCrs::AsStored).expect("read_polygons");
     let fids: Vec<i64> = theirs["fids"]
         .as_array()
         .expect("fids")

@@ -7,7 +7,7 @@ use std::sync::atomic::AtomicBool;
 
 use approx::assert_abs_diff_eq;
 use serde_json::json;
-use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant};
+use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant, PolygonCrs};
 use stance_core::gpkg::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Shape, Staging};
 use stance_core::gpkg::{crs, raster, Provenance};
 use stance_core::grid::Grid;
@@ -216,12 +216,18 @@ fn polygons_round_trip_exactly_and_several_layers_share_a_file() {
         .expect("surface");
     publish(staging);
 
-    let layer = read_polygons(&path, Some("areas"), &["code"]).expect("read");
+    let layer = read_polygons(
+        &path,
+        Some("areas"),
+        &[("code", FieldWant::Text)],
+        PolygonCrs::AsStored,
+    )
+    .expect("read");
     assert_eq!(layer.polygons.len(), 2);
     assert_eq!(layer.polygons[0].0[0], square);
     assert_eq!(layer.polygons[1].0[0], with_hole);
     assert_eq!(
-        layer.fields[0],
+        layer.columns[0].as_texts(),
         vec![Some("A".to_owned()), Some("B".to_owned())]
     );
     assert_eq!(crs::label(&layer.srs), "EPSG:32610");
@@ -269,7 +275,7 @@ fn polygons_round_trip_exactly_and_several_layers_share_a_file() {
         values
     );
     assert_eq!(
-        read_polygons(&path, Some("areas_copy"), &[])
+        read_polygons(&path, Some("areas_copy"), &[], PolygonCrs::AsStored)
             .expect("read")
             .polygons[0]
             .0[0],
@@ -459,7 +465,13 @@ fn a_layer_copy_keeps_geometry_crs_and_fields_and_adds_columns() {
     }
     writer.finish().expect("finish");
     publish(staging);
-    let areas = read_polygons(&path, Some("areas"), &["code"]).expect("read");
+    let areas = read_polygons(
+        &path,
+        Some("areas"),
+        &[("code", FieldWant::Text)],
+        PolygonCrs::AsStored,
+    )
+    .expect("read");
     let mut staging = Staging::new(&path, false).expect("staging");
     let extra = [
         (
@@ -496,7 +508,8 @@ fn a_layer_copy_keeps_geometry_crs_and_fields_and_adds_columns() {
             vec!["c".into(), "200".into(), "NULL".into(), "NULL".into()],
         ]
     );
-    let copy = read_polygons(&path, Some("areas_rated"), &[]).expect("read copy");
+    let copy =
+        read_polygons(&path, Some("areas_rated"), &[], PolygonCrs::AsStored).expect("read copy");
     assert_eq!(copy.polygons, areas.polygons);
     assert_eq!(crs::label(&copy.srs), "EPSG:32610");
 }

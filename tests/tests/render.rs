@@ -5,7 +5,7 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
 
 use serde_json::{json, Value};
-use stance_core::gpkg::read::read_polygons;
+use stance_core::gpkg::read::{read_polygons, PolygonCrs};
 use stance_core::gpkg::stage::{ExtraColumn, FieldDef, FieldKind, Staging};
 use stance_core::gpkg::{crs, raster, Provenance};
 use stance_core::grid::Grid;
@@ -102,7 +102,8 @@ fn fixture(test: &str) -> PathBuf {
         .publish(&provenance(), &AtomicBool::new(false))
         .expect("publish");
     synth(&dir, "s.gpkg", 3000, 3);
-    let districts = read_polygons(&path, Some("veldmark_districts"), &[]).expect("districts");
+    let districts = read_polygons(&path, Some("veldmark_districts"), &[], PolygonCrs::AsStored)
+        .expect("districts");
     let clusters: Vec<Option<String>> = districts
         .fids
         .iter()

@@ -52,13 +52,7 @@ pub fn area_ids(path: &Path, layer: &PolygonLayer, id: Option<(&str, &Column)>) 
         field: field.to_owned(),
         message,
     };
-    let texts: Vec<Option<String>> = match column {
-        Column::Text(t) => (0..t.codes.len())
-            .map(|i| t.get(i).map(str::to_owned))
-            .collect(),
-        Column::Real(v) => v.iter().map(|x| x.map(|x| x.to_string())).collect(),
-        Column::DateTime(v) => v.iter().map(|x| x.map(|x| x.to_string())).collect(),
-    };
+    let texts = column.as_texts();
     let mut values = Vec::with_capacity(texts.len());
     for (value, fid) in texts.iter().zip(&layer.fids) {
         match value.as_deref().map(str::trim) {

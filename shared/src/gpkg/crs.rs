@@ -122,7 +122,7 @@ pub fn working(
 /// azimuthal equal-area projection has no name).
 pub fn summary_text(srs: &SpatialRef) -> String {
     let name = label(srs);
-    if name.eq_ignore_ascii_case("unknown") {
+    if name.eq_ignore_ascii_case("unknown") || name == "unnamed CRS" {
         srs.to_proj4().map(|p| p.trim().to_owned()).unwrap_or(name)
     } else {
         name

@@ -52,6 +52,20 @@ pub enum Column {
     DateTime(Vec<Option<i64>>),
 }
 
+impl Column {
+    /// The values as text, None where missing (numbers in their shortest decimal form,
+    /// date-times as UTC seconds).
+    pub fn as_texts(&self) -> Vec<Option<String>> {
+        match self {
+            Column::Text(t) => (0..t.codes.len())
+                .map(|i| t.get(i).map(str::to_owned))
+                .collect(),
+            Column::Real(v) => v.iter().map(|x| x.map(|x| x.to_string())).collect(),
+            Column::DateTime(v) => v.iter().map(|x| x.map(|x| x.to_string())).collect(),
+        }
+    }
+}
+
 /// Points of a layer, in the working CRS.
 #[derive(Debug)]
 pub struct PointLayer {
@@ -605,6 +619,9 @@ pub enum PolygonCrs<'a> {
     Working(Option<&'a str>),
     /// A working CRS already chosen (e.g. the points' or a surface's).
     Into(&'a SpatialRef),
+    /// The coordinates as stored, in the layer's own CRS: for checks that compare stored
+    /// coordinates. Tools measure distances, so they use `Working` or `Into`.
+    AsStored,
 }
 
 /// Reads a polygon layer with the requested fields, projected to the working CRS: the one path
@@ -635,6 +652,7 @@ pub fn read_polygons(
         source_srs,
     };
     let srs = match target {
+        PolygonCrs::AsStored => return Ok(out),
         PolygonCrs::Into(srs) => srs.clone(),
         PolygonCrs::Working(user) => {
             let (xs, ys) = polygon_vertices(&out.polygons);

@@ -1,16 +1,14 @@
 //! Reading the records (points with class, weight and time) and the mask polygons, in the
 //! working CRS.
 
-use std::collections::BTreeMap;
 use std::path::Path;
 
 use gdal::spatial_ref::SpatialRef;
 use geo_types::MultiPolygon;
 use stance_core::error::{Error, Result};
-use stance_core::gpkg::crs;
-use stance_core::gpkg::read::{self, Column, FieldWant, PointLayer};
+use stance_core::gpkg::read::{self, Column, FieldWant, PointLayer, PolygonCrs};
 use stance_core::host::Run;
-use stance_core::stance::{ClassMap, Stance};
+use stance_core::stance::{classify_codes, ClassMap, Stance};
 
 use crate::binning::Points;
 use crate::params::{Config, DensityParams};
@@ -118,10 +116,10 @@ pub fn read_mask(
     mask_layer: &str,
     working: &SpatialRef,
 ) -> Result<Vec<MultiPolygon<f64>>> {
-    let polygons = read::read_polygons(input, Some(mask_layer), &[])?;
+    let polygons = read::read_polygons(input, Some(mask_layer), &[], PolygonCrs::Into(working))?;
     run.note_input_layer(mask_layer);
     run.warn_invalid_polygons(&polygons, "mask polygons");
-    project_polygons(&polygons.polygons, &polygons.srs, working)
+    Ok(polygons.polygons)
 }
 
 /// The columns of a point layer read for [`read_records`], with the file for error messages.
@@ -140,42 +138,18 @@ impl Fields<'_> {
         }
     }
 
-    /// Class of every record from column 0; every label must be known.
+    /// Class of every record from column 0; every label must be known (the shared rule).
     fn classes(&self, field: &str, classes: &ClassMap) -> Result<Vec<Stance>> {
         let Some(Column::Text(column)) = self.layer.columns.first() else {
             return Err(self.bad(field, "is not readable as text".into()));
         };
-        let mapped: Vec<Option<Stance>> =
-            column.values.iter().map(|v| classes.classify(v)).collect();
-        let mut class_of = Vec::with_capacity(column.codes.len());
-        let mut unknown: BTreeMap<String, usize> = BTreeMap::new();
-        for (i, code) in column.codes.iter().enumerate() {
-            match mapped.get(*code as usize).copied().flatten() {
-                Some(s) => class_of.push(s),
-                None => {
-                    *unknown
-                        .entry(column.get(i).unwrap_or("NULL").to_owned())
-                        .or_default() += 1;
-                    class_of.push(Stance::Neutral);
-                }
-            }
-        }
-        if unknown.is_empty() {
-            return Ok(class_of);
-        }
-        let list: Vec<String> = unknown
+        let by_code = classify_codes(classes, &column.values, &column.codes)
+            .map_err(|message| self.bad(field, message))?;
+        Ok(column
+            .codes
             .iter()
-            .take(10)
-            .map(|(v, c)| format!("'{v}' ×{c}"))
-            .collect();
-        Err(self.bad(
-            field,
-            format!(
-                "unknown stance values {}; expected {}",
-                list.join(", "),
-                classes.describe()
-            ),
-        ))
+            .map(|c| by_code.get(*c as usize).copied().unwrap_or(Stance::Neutral))
+            .collect())
     }
 
     /// Weights from column 1: finite and non-negative.
@@ -240,41 +214,4 @@ fn check_compared(records: &Records, config: &Config, stance_field: &str) -> Res
         }
     }
     Ok(())
-}
-
-/// `polygons` transformed ring by ring from `from` to `to`.
-fn project_polygons(
-    polygons: &[MultiPolygon<f64>],
-    from: &SpatialRef,
-    to: &SpatialRef,
-) -> Result<Vec<MultiPolygon<f64>>> {
-    use geo_types::{Coord, LineString, Polygon};
-    let project_ring = |ring: &LineString<f64>| -> Result<LineString<f64>> {
-        let mut xs: Vec<f64> = ring.0.iter().map(|c| c.x).collect();
-        let mut ys: Vec<f64> = ring.0.iter().map(|c| c.y).collect();
-        crs::transform(from, to, &mut xs, &mut ys)?;
-        Ok(LineString(
-            xs.into_iter()
-                .zip(ys)
-                .map(|(x, y)| Coord { x, y })
-                .collect(),
-        ))
-    };
-    polygons
-        .iter()
-        .map(|m| {
-            m.0.iter()
-                .map(|p| {
-                    let exterior = project_ring(p.exterior())?;
-                    let interiors = p
-                        .interiors()
-                        .iter()
-                        .map(&project_ring)
-                        .collect::<Result<Vec<_>>>()?;
-                    Ok(Polygon::new(exterior, interiors))
-                })
-                .collect::<Result<Vec<_>>>()
-                .map(MultiPolygon)
-        })
-        .collect()
 }

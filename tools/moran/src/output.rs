@@ -176,4 +176,3 @@ fn local(params: &MoranParams, links: &Links, stats: &Stats) -> Value {
         "islands": links.neighbours.lists.iter().filter(|l| l.is_empty()).count(),
     })
 }
-

@@ -22,7 +22,7 @@ use std::path::Path;
 use gdal::spatial_ref::SpatialRef;
 use serde_json::Value;
 use stance_core::error::Result;
-use stance_core::gpkg::read::read_polygons;
+use stance_core::gpkg::read::{read_polygons, FieldWant, PolygonCrs};
 use stance_core::gpkg::{crs, raster};
 use stance_core::host::{InputUse, OutputDecl, Run, Tool};
 
@@ -30,7 +30,7 @@ use areas::areas_scene;
 use output::{summary, PngTarget};
 use overlay::read_overlay;
 pub use params::{PaletteChoice, RenderParams, Subject};
-use projection::{crs_text, project_rings};
+use projection::{crs_text, feature_rings};
 use scene::Scene;
 use surface::{surface_scene, surface_unit};
 
@@ -106,19 +106,20 @@ fn map_scene(
             Ok((srs, scene, summary))
         }
         Subject::Areas { layer, field } => {
-            let areas = read_polygons(input, Some(layer), &[field.as_str()])?;
+            let areas = read_polygons(
+                input,
+                Some(layer),
+                &[(field.as_str(), FieldWant::Text)],
+                PolygonCrs::Working(run.common.crs.as_deref()),
+            )?;
             run.note_input_layer(&areas.layer);
-            let srs = crs::working(run.common.crs.as_deref(), &areas.srs, || {
-                let (xs, ys): (Vec<f64>, Vec<f64>) = areas
-                    .polygons
-                    .iter()
-                    .flat_map(|m| m.0.iter())
-                    .flat_map(|p| p.exterior().0.iter().map(|c| (c.x, c.y)))
-                    .unzip();
-                crs::lonlat_centre(&areas.srs, &xs, &ys)
-            })?;
-            let rings = project_rings(&areas.polygons, &areas.srs, &srs)?;
-            let values = areas.fields.first().cloned().unwrap_or_default();
+            let srs = areas.srs.clone();
+            let rings = feature_rings(&areas.polygons);
+            let values = areas
+                .columns
+                .first()
+                .map(|c| c.as_texts())
+                .unwrap_or_default();
             let (scene, summary) =
                 areas_scene(params, input, (&areas.layer, field), &rings, &values)?;
             Ok((srs, scene, summary))

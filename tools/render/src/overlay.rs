@@ -5,12 +5,12 @@ use std::path::Path;
 
 use gdal::spatial_ref::SpatialRef;
 use stance_core::error::{Error, Result};
-use stance_core::gpkg::read::{read_points, read_polygons};
+use stance_core::gpkg::read::{read_points, read_polygons, FieldWant, PolygonCrs};
 use stance_core::gpkg::{crs, open_sqlite_read};
 
 use crate::frame::MapFrame;
 use crate::palette::{side_slot, side_style, PLAIN_LINE};
-use crate::projection::project_rings;
+use crate::projection::feature_rings;
 use crate::scene::{Overlay, OverlayLines};
 
 /// The field of a cluster layer naming each cluster's side (written by stance-scan).
@@ -106,26 +106,29 @@ pub fn read_overlay(
     match kind.as_str() {
         "POLYGON" | "MULTIPOLYGON" => {
             let by_side = has_column(path, name, SIDE_FIELD)?;
-            let fields: &[&str] = if by_side { &[SIDE_FIELD] } else { &[] };
-            let layer = read_polygons(path, Some(name), fields)?;
-            let rings: Vec<Vec<Vec<(f64, f64)>>> =
-                project_rings(&layer.polygons, &layer.srs, map_srs)?
-                    .into_iter()
-                    .map(|feature| {
-                        feature
-                            .into_iter()
-                            .map(|mut ring| {
-                                // Close the ring so the outline has no gap.
-                                if let Some(first) = ring.first().copied() {
-                                    ring.push(first);
-                                }
-                                ring.into_iter().map(to_px).collect()
-                            })
-                            .collect()
-                    })
-                    .collect();
+            let fields: &[(&str, FieldWant)] = if by_side {
+                &[(SIDE_FIELD, FieldWant::Text)]
+            } else {
+                &[]
+            };
+            let layer = read_polygons(path, Some(name), fields, PolygonCrs::Into(map_srs))?;
+            let rings: Vec<Vec<Vec<(f64, f64)>>> = feature_rings(&layer.polygons)
+                .into_iter()
+                .map(|feature| {
+                    feature
+                        .into_iter()
+                        .map(|mut ring| {
+                            // Close the ring so the outline has no gap.
+                            if let Some(first) = ring.first().copied() {
+                                ring.push(first);
+                            }
+                            ring.into_iter().map(to_px).collect()
+                        })
+                        .collect()
+                })
+                .collect();
             let groups = if by_side {
-                group_by_side(rings, &layer.fields[0])
+                group_by_side(rings, &layer.columns[0].as_texts())
             } else {
                 vec![OverlayLines {
                     label: layer.layer.clone(),

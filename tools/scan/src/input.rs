@@ -4,12 +4,12 @@
 use std::collections::BTreeMap;
 use std::path::Path;
 
-use geo::Centroid;
 use stance_core::error::{Error, Result};
-use stance_core::gpkg::crs;
-use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant};
+use stance_core::gpkg::areas;
+use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant, PolygonCrs};
 use stance_core::host::Run;
-use stance_core::stance::{ClassMap, Stance};
+use stance_core::stance::{classify_codes, ClassMap, Stance};
+use stance_core::weights;
 
 use crate::analysis::PointModel;
 use crate::params::{AreaFields, RecordRoles};
@@ -69,40 +69,18 @@ impl Data {
     }
 }
 
-/// Each record's class, or an error naming the labels that are not a class.
+/// Each record's class, or an error naming the labels that are not a class (the shared rule).
 fn classify_records(
     column: &stance_core::gpkg::read::TextColumn,
     classes: &ClassMap,
     bad_field: impl Fn(String) -> Error,
 ) -> Result<Vec<Stance>> {
-    let mapped: Vec<Option<Stance>> = column.values.iter().map(|v| classes.classify(v)).collect();
-    let mut unknown: BTreeMap<String, u64> = BTreeMap::new();
-    let mut per_record = Vec::with_capacity(column.codes.len());
-    for &code in &column.codes {
-        match mapped.get(code as usize).copied().flatten() {
-            Some(stance) => per_record.push(stance),
-            None => {
-                let label = column
-                    .values
-                    .get(code as usize)
-                    .map_or("NULL".to_owned(), |v| format!("'{v}'"));
-                *unknown.entry(label).or_default() += 1;
-            }
-        }
-    }
-    if !unknown.is_empty() {
-        let found: Vec<String> = unknown
-            .iter()
-            .take(10)
-            .map(|(v, c)| format!("{v} ×{c}"))
-            .collect();
-        return Err(bad_field(format!(
-            "values that are not a stance class (expected {}; found {}); map them with --classes",
-            classes.describe(),
-            found.join(", ")
-        )));
-    }
-    Ok(per_record)
+    let by_code = classify_codes(classes, &column.values, &column.codes).map_err(bad_field)?;
+    Ok(column
+        .codes
+        .iter()
+        .map(|c| by_code.get(*c as usize).copied().unwrap_or(Stance::Neutral))
+        .collect())
 }
 
 /// "oppose ×n, neutral ×n, support ×n".
@@ -200,36 +178,6 @@ pub fn read_records(
     })
 }
 
-/// A non-negative whole count, or an error naming the feature.
-fn parse_count(text: Option<&str>, fid: i64) -> std::result::Result<u32, String> {
-    let text = text.unwrap_or("");
-    let value: f64 = text
-        .trim()
-        .parse()
-        .map_err(|_| format!("feature {fid}: '{text}' is not a count"))?;
-    if !(value >= 0.0 && value.fract() == 0.0 && value <= f64::from(u32::MAX)) {
-        return Err(format!(
-            "feature {fid}: {value} is not a non-negative whole count"
-        ));
-    }
-    Ok(value as u32)
-}
-
-/// A finite number ≥ 0, or an error naming the feature.
-fn parse_size(text: Option<&str>, fid: i64) -> std::result::Result<f64, String> {
-    let text = text.unwrap_or("");
-    let value: f64 = text
-        .trim()
-        .parse()
-        .map_err(|_| format!("feature {fid}: '{text}' is not a number"))?;
-    if !(value.is_finite() && value >= 0.0) {
-        return Err(format!(
-            "feature {fid}: {value} must be a finite number ≥ 0"
-        ));
-    }
-    Ok(value)
-}
-
 /// Reads the areas of a Poisson scan: observed cases, expected cases (from the population at
 /// risk or given) and centroids in the working CRS.
 ///
@@ -239,7 +187,11 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
     let layer = read_polygons(
         input,
         Some(&fields.layer),
-        &[fields.cases.as_str(), fields.size.as_str()],
+        &[
+            (fields.cases.as_str(), FieldWant::Real),
+            (fields.size.as_str(), FieldWant::Real),
+        ],
+        PolygonCrs::Working(run.common.crs.as_deref()),
     )?;
     run.note_input_layer(&layer.layer);
     run.warn_invalid_polygons(&layer, "areas");
@@ -249,13 +201,17 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
         field: field.to_owned(),
         message,
     };
-    let mut cases = Vec::with_capacity(layer.fids.len());
-    let mut size = Vec::with_capacity(layer.fids.len());
-    for (i, &fid) in layer.fids.iter().enumerate() {
-        let c =
-            parse_count(layer.fields[0][i].as_deref(), fid).map_err(|m| bad(&fields.cases, m))?;
-        let s = parse_size(layer.fields[1][i].as_deref(), fid).map_err(|m| bad(&fields.size, m))?;
-        if s == 0.0 && c > 0 {
+    let counts = areas::non_negative(input, &layer, &fields.cases, &layer.columns[0])?;
+    let size = areas::non_negative(input, &layer, &fields.size, &layer.columns[1])?;
+    let mut cases = Vec::with_capacity(counts.len());
+    for ((c, s), fid) in counts.iter().zip(&size).zip(&layer.fids) {
+        if c.fract() != 0.0 || *c > f64::from(u32::MAX) {
+            return Err(bad(
+                &fields.cases,
+                format!("feature {fid}: {c} is not a whole count"),
+            ));
+        }
+        if *s == 0.0 && *c > 0.0 {
             return Err(bad(
                 &fields.size,
                 format!(
@@ -264,8 +220,7 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
                 ),
             ));
         }
-        cases.push(c);
-        size.push(s);
+        cases.push(*c as u32);
     }
     let total_cases: u64 = cases.iter().map(|&c| u64::from(c)).sum();
     let total_size: f64 = size.iter().sum();
@@ -283,14 +238,8 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
         .iter()
         .map(|s| s * total_cases as f64 / total_size)
         .collect();
-    let (mut x, mut y): (Vec<f64>, Vec<f64>) = layer
-        .polygons
-        .iter()
-        .map(|p| {
-            p.centroid()
-                .map_or((f64::NAN, f64::NAN), |c| (c.x(), c.y()))
-        })
-        .unzip();
+    // Centroids of the areas in the working CRS, by the one definition every tool uses.
+    let (x, y) = weights::centroids(&layer.polygons);
     if let Some(i) = x.iter().position(|v| !v.is_finite()) {
         return Err(Error::BadLayer {
             path: input.to_owned(),
@@ -301,18 +250,12 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
             ),
         });
     }
-    let srs = crs::working(run.common.crs.as_deref(), &layer.srs, || {
-        crs::lonlat_centre(&layer.srs, &x, &y)
-    })?;
-    if layer.srs.to_wkt().ok() != srs.to_wkt().ok() {
-        crs::transform(&layer.srs, &srs, &mut x, &mut y)?;
-    }
     Ok(Data {
         fids: layer.fids,
         x,
         y,
         kind: DataKind::Areas { cases, expected },
-        srs,
+        srs: layer.srs,
         excluded: 0,
     })
 }

@@ -429,18 +429,19 @@ fn ordinal_roles(
         ));
     }
     let asked = toward.unwrap_or("both").trim().to_ascii_lowercase();
-    let direction =
-        match asked.as_str() {
-            "both" => Direction::Both,
-            "support" => Direction::High,
-            "oppose" => Direction::Low,
-            _ => return Err(Error::argument(
+    let direction = match asked.as_str() {
+        "both" => Direction::Both,
+        "support" => Direction::High,
+        "oppose" => Direction::Low,
+        _ => {
+            return Err(Error::argument(
                 "--toward",
                 format!(
                     "'{asked}' is not a side of the ordinal scan; expected support, oppose or both"
                 ),
-            )),
-        };
+            ))
+        }
+    };
     Ok((RecordRoles::Ordinal { classes: at_risk }, direction, asked))
 }
 

@@ -48,4 +48,3 @@ pub fn summary(table: &str, rows: u64, params: &crate::WeightsParams, found: &Fo
         "crs": found.crs,
     })
 }
-
