@@ -4,3 +4,4 @@
 
 pub mod check;
 pub mod registry;
+pub mod service;

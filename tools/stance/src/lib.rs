@@ -74,6 +74,11 @@ pub fn main_with_args(args: Vec<OsString>) -> ExitCode {
         Some("list") => list(&processes(&tools)),
         Some("describe") => describe(&processes(&tools), args.get(2)),
         Some("check-plugin") => check_plugin(args.get(2)),
+        Some("serve") => stance_serve::service::main(
+            args.into_iter().skip(2).collect(),
+            processes(&tools),
+            std::env::current_exe().unwrap_or_else(|_| "stance".into()),
+        ),
         Some(id) => match tools.iter().find(|t| t.id == id) {
             Some(t) => {
                 let mut rest: Vec<OsString> = vec![OsString::from(format!("stance-{id}"))];
