@@ -66,6 +66,7 @@ test: venv build-debug
 	$(CARGO) clippy --workspace --all-targets -- -D warnings
 	@rm -rf $(TEST_OUT)
 	STANCE_TEST_OUT=$(abspath $(TEST_OUT)) STANCE_REQUIRE_REFERENCE=1 $(CARGO) test --workspace
+	STANCE_TEST_OUT=$(abspath $(TEST_OUT)) tests/service/run.sh
 	$(MAKE) demo
 	.ci/validate-all $(TEST_OUT) $(OUT) $(SAMPLE)
 
@@ -80,6 +81,7 @@ bench: build venv
 	tests/bench/density_vs_python.sh
 	tests/bench/scan_vs_numba.sh
 	tests/bench/areal_vs_pysal.sh
+	tests/bench/service_overhead.sh
 
 # Fuzzes the import parsers (time strings, class mappings, row checks) for FUZZ_SECONDS each.
 # Needs cargo-fuzz (`cargo install cargo-fuzz`); stable Rust runs it with RUSTC_BOOTSTRAP=1.
