@@ -10,7 +10,7 @@
 pub enum Adjustment {
     /// no adjustment.
     None,
-    /// Bonferroni: min(1, m·p), family-wise error.
+    /// min(1, m·p), family-wise error (Bonferroni 1936).
     Bonferroni,
     /// Holm (1979) step-down, family-wise error, never larger than Bonferroni.
     Holm,

@@ -88,6 +88,8 @@ pub fn describe<T: Tool>() -> Value {
             } else {
                 description
             };
+            // Doc comments wrap at 100 columns; a description is one paragraph.
+            let description = description.split_whitespace().collect::<Vec<_>>().join(" ");
             let description = openapi_enums(&mut property, description);
             inputs.insert(
                 name.clone(),
@@ -170,6 +172,22 @@ fn typed_default(schema: &Map<String, Value>, text: &str) -> Value {
     json!(text)
 }
 
+/// "Areas sharing…" → "areas sharing…", leaving acronyms and names ("LAEA", "Holm") alone.
+fn lower_first(text: &str) -> String {
+    let mut chars = text.chars();
+    match (chars.next(), chars.next()) {
+        (Some(first), Some(second)) if first.is_uppercase() && second.is_lowercase() => {
+            let word = text.split(' ').next().unwrap_or("");
+            // Names of people stay capitalised: they are followed by a year or "&".
+            if text.contains(&format!("{word} (")) || text.contains(&format!("{word} &")) {
+                return text.to_owned();
+            }
+            first.to_lowercase().collect::<String>() + &text[first.len_utf8()..]
+        }
+        _ => text.to_owned(),
+    }
+}
+
 /// A short label from an option name: `max-radius-m` → "Max radius (m)".
 fn short_title(name: &str) -> String {
     let mut words: Vec<&str> = name.split('-').collect();
@@ -182,6 +200,17 @@ fn short_title(name: &str) -> String {
     if unit.is_some() {
         words.pop();
     }
+    let words: Vec<&str> = words
+        .into_iter()
+        .map(|w| match w {
+            "crs" => "CRS",
+            "id" => "ID",
+            "png" => "PNG",
+            "csv" => "CSV",
+            "wkt" => "WKT",
+            other => other,
+        })
+        .collect();
     let mut title = words.join(" ");
     if let Some(first) = title.get(..1) {
         title = first.to_uppercase() + &title[1..];
@@ -223,7 +252,8 @@ fn openapi_enums(property: &mut Value, description: String) -> String {
             value.as_str(),
             option.get("description").and_then(Value::as_str),
         ) {
-            explained.push(format!("{text}: {}", doc.trim_end_matches('.')));
+            let doc = doc.split_whitespace().collect::<Vec<_>>().join(" ");
+            explained.push(format!("{text}: {}", lower_first(doc.trim_end_matches('.'))));
         }
         values.push(value.clone());
     }
