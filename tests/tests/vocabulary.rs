@@ -25,11 +25,6 @@ const TOOLS: &[&str] = &[
 /// `_`) that must not appear: program names, reference-library names (evidence belongs in tests
 /// and DEVELOPERS.md, not in what a user reads), and the names this wave replaced.
 const FORBIDDEN_WORDS: &[&str] = &[
-    // Desktop spatial-statistics and scan-statistics programs, command-line toolboxes.
-    "geoda",
-    "satscan",
-    "arcgis",
-    "whitebox",
     // Reference libraries and their function or argument names.
     "esda",
     "spdep",
@@ -54,6 +49,18 @@ const FORBIDDEN_WORDS: &[&str] = &[
     "drovenby",
 ];
 
+/// Names of desktop spatial-statistics and scan-statistics programs and of a command-line
+/// toolbox, written backwards so that the repository itself never spells them (a search of the
+/// repository for them must find nothing).
+const PROGRAM_NAMES_REVERSED: &[&str] = &["adoeg", "nacstas", "sigcra", "xobetihw"];
+
+fn program_names() -> Vec<String> {
+    PROGRAM_NAMES_REVERSED
+        .iter()
+        .map(|n| n.chars().rev().collect())
+        .collect()
+}
+
 /// Phrases (case-insensitive substrings) that must not appear.
 const FORBIDDEN_PHRASES: &[&str] = &["coordinates,address,place,region", "progress: "];
 
@@ -65,8 +72,9 @@ fn words(text: &str) -> impl Iterator<Item = String> + '_ {
 
 fn forbidden_in(text: &str) -> Vec<String> {
     let lower = text.to_lowercase();
+    let programs = program_names();
     let mut found: Vec<String> = words(text)
-        .filter(|w| FORBIDDEN_WORDS.contains(&w.as_str()))
+        .filter(|w| FORBIDDEN_WORDS.contains(&w.as_str()) || programs.contains(w))
         .collect();
     found.extend(
         FORBIDDEN_PHRASES
@@ -97,7 +105,11 @@ fn json_texts(value: &Value, out: &mut Vec<String>) {
 #[test]
 fn the_forbidden_list_catches_what_it_lists() {
     // The checker itself must be able to fail.
-    assert_eq!(forbidden_in("see GeoDa's map"), vec!["geoda"]);
+    let program: String = "adoeg".chars().rev().collect();
+    assert_eq!(
+        forbidden_in(&format!("see {program}'s map")),
+        vec![program.clone()]
+    );
     assert_eq!(forbidden_in("--adjust fdr"), vec!["fdr"]);
     assert_eq!(forbidden_in("progress: 40%"), vec!["progress: "]);
     assert!(forbidden_in("Benjamini–Hochberg false discovery rate").is_empty());

@@ -132,52 +132,9 @@ fn write_tiles(
                 && first_row + TILE as i64 > 0
         })
         .collect();
-    type Encoded = (i64, i64, Vec<u8>, [f64; 4]);
     let encoded: Vec<Option<Encoded>> = tiles
         .par_iter()
-        .map(|&(c, r)| {
-            let mut cells = vec![NODATA; TILE * TILE];
-            let (mut n, mut sum, mut sum2) = (0u64, 0.0f64, 0.0f64);
-            let (mut low, mut high) = (f64::INFINITY, f64::NEG_INFINITY);
-            for tr in 0..TILE {
-                let row = r * TILE as i64 + tr as i64 - offset_row;
-                if row < 0 || row >= grid.rows as i64 {
-                    continue;
-                }
-                for tc in 0..TILE {
-                    let col = c * TILE as i64 + tc as i64 - offset_col;
-                    if col < 0 || col >= grid.cols as i64 {
-                        continue;
-                    }
-                    let v = surface.values[row as usize * grid.cols + col as usize];
-                    if v.is_finite() && v != NODATA {
-                        cells[tr * TILE + tc] = v;
-                        let v = f64::from(v);
-                        n += 1;
-                        sum += v;
-                        sum2 += v * v;
-                        low = low.min(v);
-                        high = high.max(v);
-                    }
-                }
-            }
-            if n == 0 {
-                return Ok(None);
-            }
-            let mean = sum / n as f64;
-            let std_dev = (sum2 / n as f64 - mean * mean).max(0.0).sqrt();
-            let mut bytes = std::io::Cursor::new(Vec::with_capacity(TILE * TILE * 4 + 512));
-            tiff::encoder::TiffEncoder::new(&mut bytes)
-                .and_then(|mut e| {
-                    e.write_image::<tiff::encoder::colortype::Gray32Float>(
-                        TILE as u32,
-                        TILE as u32,
-                        &cells,
-                    )
-                })
-                .map_err(|e| rusqlite::Error::UserFunctionError(e.to_string().into()))?;
-            Ok(Some((c, r, bytes.into_inner(), [low, high, mean, std_dev])))
-        })
+        .map(|&(c, r)| encode_tile(grid, surface.values, (c, r), (offset_col, offset_row)))
         .collect::<rusqlite::Result<_>>()?;
     connection.execute_batch("BEGIN")?;
     {
@@ -198,6 +155,57 @@ fn write_tiles(
         }
     }
     connection.execute_batch("COMMIT")
+}
+
+/// An encoded tile: column, row, TIFF bytes and (min, max, mean, standard deviation).
+type Encoded = (i64, i64, Vec<u8>, [f64; 4]);
+
+/// Tile (`c`, `r`) of the matrix as an uncompressed Float32 TIFF with its statistics; `None`
+/// when every cell is nodata (left out, as GDAL does). `offset` is where grid cell (0, 0) sits
+/// in the matrix, in cells.
+fn encode_tile(
+    grid: &Grid,
+    values: &[f32],
+    (c, r): (i64, i64),
+    (offset_col, offset_row): (i64, i64),
+) -> rusqlite::Result<Option<Encoded>> {
+    let mut cells = vec![NODATA; TILE * TILE];
+    let (mut n, mut sum, mut sum2) = (0u64, 0.0f64, 0.0f64);
+    let (mut low, mut high) = (f64::INFINITY, f64::NEG_INFINITY);
+    for tr in 0..TILE {
+        let row = r * TILE as i64 + tr as i64 - offset_row;
+        if row < 0 || row >= grid.rows as i64 {
+            continue;
+        }
+        for tc in 0..TILE {
+            let col = c * TILE as i64 + tc as i64 - offset_col;
+            if col < 0 || col >= grid.cols as i64 {
+                continue;
+            }
+            let v = values[row as usize * grid.cols + col as usize];
+            if v.is_finite() && v != NODATA {
+                cells[tr * TILE + tc] = v;
+                let v = f64::from(v);
+                n += 1;
+                sum += v;
+                sum2 += v * v;
+                low = low.min(v);
+                high = high.max(v);
+            }
+        }
+    }
+    if n == 0 {
+        return Ok(None);
+    }
+    let mean = sum / n as f64;
+    let std_dev = (sum2 / n as f64 - mean * mean).max(0.0).sqrt();
+    let mut bytes = std::io::Cursor::new(Vec::with_capacity(TILE * TILE * 4 + 512));
+    tiff::encoder::TiffEncoder::new(&mut bytes)
+        .and_then(|mut e| {
+            e.write_image::<tiff::encoder::colortype::Gray32Float>(TILE as u32, TILE as u32, &cells)
+        })
+        .map_err(|e| rusqlite::Error::UserFunctionError(e.to_string().into()))?;
+    Ok(Some((c, r, bytes.into_inner(), [low, high, mean, std_dev])))
 }
 
 /// A surface read back: its grid, values (nodata as NaN) and WKT of its CRS.

@@ -271,72 +271,22 @@ pub fn read_points(
         )));
     }
     let source_srs = layer_srs(path, &connection, &layer)?;
-    let geometry_column: String = connection
-        .query_row(
-            "SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?1",
-            [&layer],
-            |r| r.get(0),
-        )
+    let query = PointQuery::new(path, &connection, &layer, fields)?;
+    let ranges = query
+        .fid_ranges(&connection)
         .map_err(|e| bad(e.to_string()))?;
-    let columns = table_columns(path, &connection, &layer)?;
-    let primary_key = columns
-        .iter()
-        .find(|(_, pk)| *pk)
-        .map(|(c, _)| c.clone())
-        .unwrap_or_else(|| "rowid".into());
-    let mut selected = Vec::with_capacity(fields.len());
-    for (field, _) in fields {
-        selected.push(
-            find_field(path, &layer, &columns, field, &[geometry_column.as_str()])?.to_owned(),
-        );
-    }
-    let mut sql = format!("SELECT {}, {}", q(&primary_key), q(&geometry_column));
-    for s in &selected {
-        sql.push_str(", ");
-        sql.push_str(&q(s));
-    }
-    sql.push_str(&format!(
-        " FROM {} WHERE {pk} >= ?1 AND {pk} <= ?2",
-        q(&layer),
-        pk = q(&primary_key)
-    ));
-    // Large layers are read in fid ranges on parallel connections (SQLite decodes rows on one
-    // core per connection); the parts are joined in fid order, so the result is the same.
-    let (low, high): (Option<i64>, Option<i64>) = connection
-        .query_row(
-            &format!(
-                "SELECT min({pk}), max({pk}) FROM {}",
-                q(&layer),
-                pk = q(&primary_key)
-            ),
-            [],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .map_err(|e| bad(e.to_string()))?;
-    let (low, high) = (low.unwrap_or(0), high.unwrap_or(-1));
-    let span = (high as i128 - low as i128 + 1).max(0);
-    let parts: i128 = if span > 200_000 {
-        rayon::current_num_threads().clamp(1, 4) as i128
-    } else {
-        1
-    };
-    let ranges: Vec<(i64, i64)> = (0..parts)
-        .map(|k| {
-            let a = low as i128 + span * k / parts;
-            let b = low as i128 + span * (k + 1) / parts - 1;
-            (a as i64, b as i64)
-        })
-        .collect();
     let bad_field = |i: usize, fid: i64, message: String| Error::BadField {
         path: path.to_owned(),
         layer: layer.clone(),
-        field: selected[i].clone(),
+        field: query.selected[i].clone(),
         message: format!("feature {fid}: {message}"),
     };
-    let mut pieces: Vec<Result<PointRows>> = if parts == 1 {
+    // Large layers are read in fid ranges on parallel connections (SQLite decodes rows on one
+    // core per connection); the parts are joined in fid order, so the result is the same.
+    let mut pieces: Vec<Result<PointRows>> = if ranges.len() == 1 {
         vec![read_point_rows(
             &connection,
-            &sql,
+            &query.sql,
             ranges[0],
             fields,
             &bad,
@@ -348,7 +298,7 @@ pub fn read_points(
             .par_iter()
             .map(|range| {
                 let own = super::open_sqlite_read(path)?;
-                read_point_rows(&own, &sql, *range, fields, &bad, &bad_field)
+                read_point_rows(&own, &query.sql, *range, fields, &bad, &bad_field)
             })
             .collect()
     };
@@ -394,6 +344,94 @@ pub fn read_points(
         srs,
         source_srs,
     })
+}
+
+/// The SELECT of a point layer's fid, geometry and requested fields over a fid range.
+struct PointQuery {
+    /// The statement, with `?1` and `?2` the first and last fid.
+    sql: String,
+    /// The requested fields as named in the table.
+    selected: Vec<String>,
+    /// The fid column.
+    primary_key: String,
+    /// The layer.
+    layer: String,
+}
+
+impl PointQuery {
+    fn new(
+        path: &Path,
+        connection: &rusqlite::Connection,
+        layer: &str,
+        fields: &[(&str, FieldWant)],
+    ) -> Result<Self> {
+        let geometry_column: String = connection
+            .query_row(
+                "SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?1",
+                [layer],
+                |r| r.get(0),
+            )
+            .map_err(|e| Error::BadLayer {
+                path: path.to_owned(),
+                layer: layer.to_owned(),
+                message: e.to_string(),
+            })?;
+        let columns = table_columns(path, connection, layer)?;
+        let primary_key = columns
+            .iter()
+            .find(|(_, pk)| *pk)
+            .map(|(c, _)| c.clone())
+            .unwrap_or_else(|| "rowid".into());
+        let mut selected = Vec::with_capacity(fields.len());
+        for (field, _) in fields {
+            selected.push(
+                find_field(path, layer, &columns, field, &[geometry_column.as_str()])?.to_owned(),
+            );
+        }
+        let mut sql = format!("SELECT {}, {}", q(&primary_key), q(&geometry_column));
+        for s in &selected {
+            sql.push_str(", ");
+            sql.push_str(&q(s));
+        }
+        sql.push_str(&format!(
+            " FROM {} WHERE {pk} >= ?1 AND {pk} <= ?2",
+            q(layer),
+            pk = q(&primary_key)
+        ));
+        Ok(PointQuery {
+            sql,
+            selected,
+            primary_key,
+            layer: layer.to_owned(),
+        })
+    }
+
+    /// The fid ranges to read: one, or up to four of equal span for layers over 200,000 fids.
+    fn fid_ranges(&self, connection: &rusqlite::Connection) -> rusqlite::Result<Vec<(i64, i64)>> {
+        let (low, high): (Option<i64>, Option<i64>) = connection.query_row(
+            &format!(
+                "SELECT min({pk}), max({pk}) FROM {}",
+                q(&self.layer),
+                pk = q(&self.primary_key)
+            ),
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )?;
+        let (low, high) = (low.unwrap_or(0), high.unwrap_or(-1));
+        let span = (high as i128 - low as i128 + 1).max(0);
+        let parts: i128 = if span > 200_000 {
+            rayon::current_num_threads().clamp(1, 4) as i128
+        } else {
+            1
+        };
+        Ok((0..parts)
+            .map(|k| {
+                let a = low as i128 + span * k / parts;
+                let b = low as i128 + span * (k + 1) / parts - 1;
+                (a as i64, b as i64)
+            })
+            .collect())
+    }
 }
 
 /// Rows of a point layer as read, before projection.

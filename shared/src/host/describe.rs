@@ -32,75 +32,7 @@ pub fn describe<T: Tool>() -> Value {
             if (name == "input" || name == "layer") && T::INPUT == super::InputUse::None {
                 continue;
             }
-            let arg = command
-                .get_arguments()
-                .find(|a| a.get_long() == Some(name.as_str()));
-            let mut property = property.clone();
-            let description = property
-                .as_object_mut()
-                .and_then(|p| p.remove("description"))
-                .and_then(|d| d.as_str().map(str::to_owned))
-                .or_else(|| arg.and_then(|a| a.get_help().map(|h| h.to_string())))
-                .unwrap_or_default();
-            let mut required = arg.is_some_and(|a| a.is_required_set());
-            if name == "input" && T::INPUT == super::InputUse::Required {
-                required = true;
-            }
-            if let (Some(arg), Some(object)) = (arg, property.as_object_mut()) {
-                let defaults: Vec<String> = arg
-                    .get_default_values()
-                    .iter()
-                    .map(|v| v.to_string_lossy().into_owned())
-                    .collect();
-                if let Some(first) = defaults.first() {
-                    object.insert("default".into(), typed_default(object, first));
-                }
-                // An Option<T> input shows as ["T", "null"]; an absent input is expressed by
-                // minOccurs = 0 instead.
-                if let Some(Value::Array(types)) = object.get("type") {
-                    let non_null: Vec<Value> = types
-                        .iter()
-                        .filter(|t| t.as_str() != Some("null"))
-                        .cloned()
-                        .collect();
-                    if non_null.len() == 1 {
-                        object.insert("type".into(), non_null[0].clone());
-                    }
-                }
-                if let Some(Value::Array(options)) = object.get("anyOf") {
-                    let non_null: Vec<Value> = options
-                        .iter()
-                        .filter(|o| o.get("type").and_then(Value::as_str) != Some("null"))
-                        .cloned()
-                        .collect();
-                    if non_null.len() == 1 {
-                        object.remove("anyOf");
-                        if let Some(inner) = non_null[0].as_object() {
-                            for (k, v) in inner {
-                                object.insert(k.clone(), v.clone());
-                            }
-                        }
-                    }
-                }
-            }
-            let description = if name == "input" {
-                T::INPUT_DESCRIPTION.to_owned()
-            } else {
-                description
-            };
-            // Doc comments wrap at 100 columns; a description is one paragraph.
-            let description = description.split_whitespace().collect::<Vec<_>>().join(" ");
-            let description = openapi_enums(&mut property, description);
-            inputs.insert(
-                name.clone(),
-                json!({
-                    "title": short_title(name),
-                    "description": description,
-                    "schema": property,
-                    "minOccurs": u32::from(required),
-                    "maxOccurs": 1,
-                }),
-            );
+            inputs.insert(name.clone(), input_of::<T>(&command, name, property));
         }
     }
     let mut outputs = Map::new();
@@ -145,6 +77,79 @@ pub fn describe<T: Tool>() -> Value {
             ]
         }
     })
+}
+
+/// One input of the description: its schema from the derive, its default and required-ness
+/// from clap, its description (with enum meanings) and a short title.
+fn input_of<T: Tool>(command: &clap::Command, name: &str, property: &Value) -> Value {
+    let arg = command.get_arguments().find(|a| a.get_long() == Some(name));
+    let mut property = property.clone();
+    let description = property
+        .as_object_mut()
+        .and_then(|p| p.remove("description"))
+        .and_then(|d| d.as_str().map(str::to_owned))
+        .or_else(|| arg.and_then(|a| a.get_help().map(|h| h.to_string())))
+        .unwrap_or_default();
+    let mut required = arg.is_some_and(|a| a.is_required_set());
+    if name == "input" && T::INPUT == super::InputUse::Required {
+        required = true;
+    }
+    if let (Some(arg), Some(object)) = (arg, property.as_object_mut()) {
+        apply_clap(arg, object);
+    }
+    let description = if name == "input" {
+        T::INPUT_DESCRIPTION.to_owned()
+    } else {
+        description
+    };
+    // Doc comments wrap at 100 columns; a description is one paragraph.
+    let description = description.split_whitespace().collect::<Vec<_>>().join(" ");
+    let description = openapi_enums(&mut property, description);
+    json!({
+        "title": short_title(name),
+        "description": description,
+        "schema": property,
+        "minOccurs": u32::from(required),
+        "maxOccurs": 1,
+    })
+}
+
+/// Clap's default into the schema; an optional value's `["T", "null"]` or `anyOf [T, null]`
+/// becomes `T` (absence is expressed by minOccurs = 0).
+fn apply_clap(arg: &clap::Arg, object: &mut Map<String, Value>) {
+    let defaults: Vec<String> = arg
+        .get_default_values()
+        .iter()
+        .map(|v| v.to_string_lossy().into_owned())
+        .collect();
+    if let Some(first) = defaults.first() {
+        object.insert("default".into(), typed_default(object, first));
+    }
+    if let Some(Value::Array(types)) = object.get("type") {
+        let non_null: Vec<Value> = types
+            .iter()
+            .filter(|t| t.as_str() != Some("null"))
+            .cloned()
+            .collect();
+        if non_null.len() == 1 {
+            object.insert("type".into(), non_null[0].clone());
+        }
+    }
+    if let Some(Value::Array(options)) = object.get("anyOf") {
+        let non_null: Vec<Value> = options
+            .iter()
+            .filter(|o| o.get("type").and_then(Value::as_str) != Some("null"))
+            .cloned()
+            .collect();
+        if non_null.len() == 1 {
+            object.remove("anyOf");
+            if let Some(inner) = non_null[0].as_object() {
+                for (k, v) in inner {
+                    object.insert(k.clone(), v.clone());
+                }
+            }
+        }
+    }
 }
 
 /// Turns clap's textual default into a JSON value of the schema's type.
@@ -253,7 +258,10 @@ fn openapi_enums(property: &mut Value, description: String) -> String {
             option.get("description").and_then(Value::as_str),
         ) {
             let doc = doc.split_whitespace().collect::<Vec<_>>().join(" ");
-            explained.push(format!("{text}: {}", lower_first(doc.trim_end_matches('.'))));
+            explained.push(format!(
+                "{text}: {}",
+                lower_first(doc.trim_end_matches('.'))
+            ));
         }
         values.push(value.clone());
     }

@@ -191,12 +191,10 @@ pub fn one_line(rendered: &str) -> String {
     }
 }
 
-/// Validates the common options, runs the tool, stamps provenance and publishes its outputs.
-fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
-    let started = chrono::Utc::now();
-    let clock = Instant::now();
-    // GDAL and PROJ print their own warnings and errors to stderr; the toolbox reports every
-    // failure in one line of its own, so theirs are shown only with -v.
+/// What a run sets up for the whole process: GDAL's messages (shown only with -v; the toolbox
+/// reports every failure in one line of its own), SIGINT/SIGTERM (the first lets the run roll
+/// back, a second ends the process at once), and the worker threads. Returns the interrupt flag.
+fn prepare_process(common: &CommonArgs) -> Arc<AtomicBool> {
     let show_gdal = common.verbose && !common.quiet;
     gdal::config::set_error_handler(move |class, number, message| {
         if show_gdal {
@@ -205,7 +203,6 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
     });
     let interrupted = Arc::new(AtomicBool::new(false));
     for signal in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
-        // A second signal ends the process at once; the first lets the run roll back.
         let _ =
             signal_hook::flag::register_conditional_shutdown(signal, 130, Arc::clone(&interrupted));
         let _ = signal_hook::flag::register(signal, Arc::clone(&interrupted));
@@ -216,6 +213,14 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
             .num_threads(common.threads)
             .build_global();
     }
+    interrupted
+}
+
+/// Validates the common options, runs the tool, stamps provenance and publishes its outputs.
+fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
+    let started = chrono::Utc::now();
+    let clock = Instant::now();
+    let interrupted = prepare_process(&common);
     let name = common
         .name
         .clone()

@@ -130,127 +130,164 @@ fn map_spatial_ref_systems(
     layers: &[StagedLayer],
 ) -> rusqlite::Result<BTreeMap<i64, i64>> {
     let mut map = BTreeMap::new();
-    let staged_columns = columns_of(tx, "staged", "gpkg_spatial_ref_sys")?;
-    let main_columns = columns_of(tx, "main", "gpkg_spatial_ref_sys")?;
-    let common: Vec<String> = staged_columns
-        .iter()
-        .filter(|c| main_columns.contains(c))
-        .cloned()
-        .collect();
-    // Columns the output has and the staging file has not: the CRS WKT extension's
-    // `definition_12_063` (NOT NULL; 'undefined' when no WKT 2 is known, OGC 12-128r18 F.10)
-    // appears in an output that holds a coverage; any other is left NULL.
-    let missing: Vec<(String, &str)> = main_columns
-        .iter()
-        .filter(|c| !staged_columns.contains(c))
-        .map(|c| {
-            let value = if c == "definition_12_063" {
-                "'undefined'"
-            } else {
-                "NULL"
-            };
-            (c.clone(), value)
-        })
-        .collect();
-    let insert_list = common
-        .iter()
-        .chain(missing.iter().map(|(c, _)| c))
-        .map(|c| q(c))
-        .collect::<Vec<_>>()
-        .join(", ");
-    let with_missing = |select: String| -> String {
-        missing
-            .iter()
-            .fold(select, |acc, (_, v)| format!("{acc}, {v}"))
-    };
+    let copy = SrsCopy::new(tx)?;
     // The gridded coverage extension (OGC 17-066r1, req. 103) needs srs_id 4979 in every file
     // that holds a coverage, whether or not a coverage uses it.
     if layers.iter().any(|l| l.data_type == "2d-gridded-coverage") {
-        let columns = common.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
-        let select = with_missing(columns);
         tx.execute(
             &format!(
-                "INSERT INTO main.gpkg_spatial_ref_sys ({insert_list}) SELECT {select} FROM staged.gpkg_spatial_ref_sys s
-                 WHERE s.srs_id = 4979 AND NOT EXISTS (SELECT 1 FROM main.gpkg_spatial_ref_sys m WHERE m.srs_id = 4979)"
+                "INSERT INTO main.gpkg_spatial_ref_sys ({}) SELECT {} FROM staged.gpkg_spatial_ref_sys s
+                 WHERE s.srs_id = 4979 AND NOT EXISTS (SELECT 1 FROM main.gpkg_spatial_ref_sys m WHERE m.srs_id = 4979)",
+                copy.insert_list,
+                copy.select(false)
             ),
             [],
         )?;
     }
     for layer in layers {
-        let ids: Vec<i64> = {
-            let mut s = tx.prepare(
-                "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL
-                 UNION SELECT srs_id FROM staged.gpkg_geometry_columns WHERE table_name = ?1
-                 UNION SELECT srs_id FROM staged.gpkg_tile_matrix_set WHERE table_name = ?1",
-            ).or_else(|_| tx.prepare(
-                "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL",
-            ))?;
-            let v = s
-                .query_map([&layer.name], |r| r.get::<_, i64>(0))?
-                .collect::<rusqlite::Result<Vec<_>>>()?;
-            v
-        };
-        for id in ids {
-            if map.contains_key(&id) {
-                continue;
+        for id in staged_srs_ids(tx, &layer.name)? {
+            if let std::collections::btree_map::Entry::Vacant(slot) = map.entry(id) {
+                slot.insert(output_srs_id(tx, id, &copy)?);
             }
-            let (organization, code, definition): (String, i64, String) = tx.query_row(
-                "SELECT organization, organization_coordsys_id, definition FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?1",
-                [id],
-                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
-            )?;
-            let found: Option<i64> = if organization.eq_ignore_ascii_case("epsg") {
-                tx.query_row(
-                    "SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE lower(organization) = 'epsg' AND organization_coordsys_id = ?1",
-                    [code],
-                    |r| r.get(0),
-                )
-                .optional()?
-            } else if id <= 0 {
-                Some(id)
-            } else {
-                tx.query_row(
-                    "SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE definition = ?1",
-                    [&definition],
-                    |r| r.get(0),
-                )
-                .optional()?
-            };
-            let new_id = match found {
-                Some(f) => f,
-                None => {
-                    let taken: i64 = tx.query_row(
-                        "SELECT count(*) FROM main.gpkg_spatial_ref_sys WHERE srs_id = ?1",
-                        [id],
-                        |r| r.get(0),
-                    )?;
-                    let new_id = if taken == 0 {
-                        id
-                    } else {
-                        tx.query_row(
-                            "SELECT max(max(srs_id) + 1, 100000) FROM main.gpkg_spatial_ref_sys",
-                            [],
-                            |r| r.get(0),
-                        )?
-                    };
-                    let select = with_missing(
-                        common
-                            .iter()
-                            .map(|c| if c == "srs_id" { "?1".to_owned() } else { q(c) })
-                            .collect::<Vec<_>>()
-                            .join(", "),
-                    );
-                    tx.execute(
-                        &format!("INSERT INTO main.gpkg_spatial_ref_sys ({insert_list}) SELECT {select} FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?2"),
-                        [new_id, id],
-                    )?;
-                    new_id
-                }
-            };
-            map.insert(id, new_id);
         }
     }
     Ok(map)
+}
+
+/// How a staged CRS row is copied into the output's `gpkg_spatial_ref_sys`.
+struct SrsCopy {
+    /// Columns both files have.
+    common: Vec<String>,
+    /// Columns the output has and the staging file has not, with the value they get: the CRS
+    /// WKT extension's `definition_12_063` (NOT NULL; 'undefined' when no WKT 2 is known,
+    /// OGC 12-128r18 F.10) appears in an output that holds a coverage; any other is NULL.
+    missing: Vec<(String, &'static str)>,
+    /// The column list of the INSERT.
+    insert_list: String,
+}
+
+impl SrsCopy {
+    fn new(tx: &Connection) -> rusqlite::Result<Self> {
+        let staged_columns = columns_of(tx, "staged", "gpkg_spatial_ref_sys")?;
+        let main_columns = columns_of(tx, "main", "gpkg_spatial_ref_sys")?;
+        let common: Vec<String> = staged_columns
+            .iter()
+            .filter(|c| main_columns.contains(c))
+            .cloned()
+            .collect();
+        let missing: Vec<(String, &'static str)> = main_columns
+            .iter()
+            .filter(|c| !staged_columns.contains(c))
+            .map(|c| {
+                let value = if c == "definition_12_063" {
+                    "'undefined'"
+                } else {
+                    "NULL"
+                };
+                (c.clone(), value)
+            })
+            .collect();
+        let insert_list = common
+            .iter()
+            .chain(missing.iter().map(|(c, _)| c))
+            .map(|c| q(c))
+            .collect::<Vec<_>>()
+            .join(", ");
+        Ok(SrsCopy {
+            common,
+            missing,
+            insert_list,
+        })
+    }
+
+    /// The SELECT list matching `insert_list`; `?1` in place of srs_id when `renumber`.
+    fn select(&self, renumber: bool) -> String {
+        let mut parts: Vec<String> = self
+            .common
+            .iter()
+            .map(|c| {
+                if renumber && c == "srs_id" {
+                    "?1".to_owned()
+                } else {
+                    q(c)
+                }
+            })
+            .collect();
+        parts.extend(self.missing.iter().map(|(_, v)| (*v).to_owned()));
+        parts.join(", ")
+    }
+}
+
+/// The srs_ids a staged layer uses (contents, geometry columns, tile matrix set).
+fn staged_srs_ids(tx: &Connection, layer: &str) -> rusqlite::Result<Vec<i64>> {
+    let mut s = tx
+        .prepare(
+            "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL
+             UNION SELECT srs_id FROM staged.gpkg_geometry_columns WHERE table_name = ?1
+             UNION SELECT srs_id FROM staged.gpkg_tile_matrix_set WHERE table_name = ?1",
+        )
+        .or_else(|_| {
+            tx.prepare(
+                "SELECT srs_id FROM staged.gpkg_contents WHERE table_name = ?1 AND srs_id IS NOT NULL",
+            )
+        })?;
+    let ids = s
+        .query_map([layer], |r| r.get::<_, i64>(0))?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    Ok(ids)
+}
+
+/// The output's srs_id for staged CRS `id`: the same EPSG code or definition if the output has
+/// it, else a copy of the row (under `id`, or a fresh id ≥ 100000 when `id` is taken).
+fn output_srs_id(tx: &Connection, id: i64, copy: &SrsCopy) -> rusqlite::Result<i64> {
+    let (organization, code, definition): (String, i64, String) = tx.query_row(
+        "SELECT organization, organization_coordsys_id, definition FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?1",
+        [id],
+        |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+    )?;
+    let found: Option<i64> = if organization.eq_ignore_ascii_case("epsg") {
+        tx.query_row(
+            "SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE lower(organization) = 'epsg' AND organization_coordsys_id = ?1",
+            [code],
+            |r| r.get(0),
+        )
+        .optional()?
+    } else if id <= 0 {
+        Some(id)
+    } else {
+        tx.query_row(
+            "SELECT srs_id FROM main.gpkg_spatial_ref_sys WHERE definition = ?1",
+            [&definition],
+            |r| r.get(0),
+        )
+        .optional()?
+    };
+    if let Some(found) = found {
+        return Ok(found);
+    }
+    let taken: i64 = tx.query_row(
+        "SELECT count(*) FROM main.gpkg_spatial_ref_sys WHERE srs_id = ?1",
+        [id],
+        |r| r.get(0),
+    )?;
+    let new_id = if taken == 0 {
+        id
+    } else {
+        tx.query_row(
+            "SELECT max(max(srs_id) + 1, 100000) FROM main.gpkg_spatial_ref_sys",
+            [],
+            |r| r.get(0),
+        )?
+    };
+    tx.execute(
+        &format!(
+            "INSERT INTO main.gpkg_spatial_ref_sys ({}) SELECT {} FROM staged.gpkg_spatial_ref_sys WHERE srs_id = ?2",
+            copy.insert_list,
+            copy.select(true)
+        ),
+        [new_id, id],
+    )?;
+    Ok(new_id)
 }
 
 /// Removes layer `name` and every system-table row that refers to it.
@@ -338,6 +375,15 @@ fn copy_layer(
     system_tables: &[(String, String)],
     srs_map: &BTreeMap<i64, i64>,
 ) -> rusqlite::Result<()> {
+    copy_rows(tx, name, srs_map)?;
+    copy_rtrees(tx, name)?;
+    copy_indexes_and_triggers(tx, name)?;
+    copy_system_rows(tx, name, system_tables, srs_map)
+}
+
+/// The table itself, its rows (geometry blobs renumbered to the output's srs_id) and its
+/// AUTOINCREMENT sequence.
+fn copy_rows(tx: &Connection, name: &str, srs_map: &BTreeMap<i64, i64>) -> rusqlite::Result<()> {
     let create: String = tx.query_row(
         "SELECT sql FROM staged.sqlite_master WHERE type = 'table' AND name = ?1",
         [name],
@@ -383,6 +429,11 @@ fn copy_layer(
             rusqlite::params![name, seq],
         )?;
     }
+    Ok(())
+}
+
+/// The layer's R-trees.
+fn copy_rtrees(tx: &Connection, name: &str) -> rusqlite::Result<()> {
     let rtrees: Vec<(String, String)> = {
         let mut s = tx.prepare(
             "SELECT name, sql FROM staged.sqlite_master WHERE type = 'table' AND sql LIKE 'CREATE VIRTUAL TABLE%' AND name LIKE 'rtree\\_' || ?1 || '\\_%' ESCAPE '\\'",
@@ -423,6 +474,11 @@ fn copy_layer(
             )?;
         }
     }
+    Ok(())
+}
+
+/// Indexes, then triggers (created after the rows so they do not fire on the copy).
+fn copy_indexes_and_triggers(tx: &Connection, name: &str) -> rusqlite::Result<()> {
     for kind in ["index", "trigger"] {
         let mut s = tx.prepare("SELECT sql FROM staged.sqlite_master WHERE type = ?1 AND tbl_name = ?2 AND sql IS NOT NULL ORDER BY rowid")?;
         let statements = s
@@ -432,6 +488,16 @@ fn copy_layer(
             tx.execute_batch(&statement)?;
         }
     }
+    Ok(())
+}
+
+/// The layer's rows of the GeoPackage system tables, srs_ids renumbered.
+fn copy_system_rows(
+    tx: &Connection,
+    name: &str,
+    system_tables: &[(String, String)],
+    srs_map: &BTreeMap<i64, i64>,
+) -> rusqlite::Result<()> {
     for (table, _) in system_tables {
         if table == "gpkg_spatial_ref_sys" || table == "gpkg_metadata" {
             continue;
@@ -447,82 +513,14 @@ fn copy_layer(
             .collect();
         let list = columns.iter().map(|c| q(c)).collect::<Vec<_>>().join(", ");
         if table == "gpkg_metadata_reference" {
-            // Each record gets a fresh id in the output.
-            let mut s = tx.prepare(
-                "SELECT r.md_file_id, m.md_scope, m.md_standard_uri, m.mime_type, m.metadata FROM staged.gpkg_metadata_reference r
-                 JOIN staged.gpkg_metadata m ON m.id = r.md_file_id WHERE r.table_name = ?1",
-            )?;
-            let records = s
-                .query_map([name], |r| {
-                    Ok((
-                        r.get::<_, i64>(0)?,
-                        r.get::<_, String>(1)?,
-                        r.get::<_, String>(2)?,
-                        r.get::<_, String>(3)?,
-                        r.get::<_, String>(4)?,
-                    ))
-                })?
-                .collect::<rusqlite::Result<Vec<_>>>()?;
-            for (old_id, scope, uri, mime, metadata) in records {
-                tx.execute(
-                    "INSERT INTO main.gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) VALUES (?1, ?2, ?3, ?4)",
-                    rusqlite::params![scope, uri, mime, metadata],
-                )?;
-                let new_id = tx.last_insert_rowid();
-                tx.execute(
-                    "INSERT INTO main.gpkg_metadata_reference (reference_scope, table_name, column_name, row_id_value, timestamp, md_file_id, md_parent_id)
-                     SELECT reference_scope, table_name, column_name, row_id_value, timestamp, ?1, NULL FROM staged.gpkg_metadata_reference
-                     WHERE table_name = ?2 AND md_file_id = ?3",
-                    rusqlite::params![new_id, name, old_id],
-                )?;
-            }
+            copy_metadata_records(tx, name)?;
             continue;
         }
         let Some(owner) = owner_column(&staged_columns) else {
             continue;
         };
         if table == "gpkg_extensions" {
-            // Rows of this layer, plus extension rows of system tables the output may lack.
-            tx.execute(
-                &format!("INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions WHERE table_name = ?1"),
-                [name],
-            )?;
-            // A system-table extension that names a column (e.g. gpkg_crs_wkt on
-            // gpkg_spatial_ref_sys.definition_12_063) applies only if the output has that column.
-            let candidates: Vec<(String, Option<String>)> = {
-                let mut statement = tx.prepare(
-                    "SELECT s.table_name, s.column_name FROM staged.gpkg_extensions s
-                     WHERE s.table_name IS NULL OR s.table_name LIKE 'gpkg%'",
-                )?;
-                let rows = statement
-                    .query_map([], |r| {
-                        Ok((
-                            r.get::<_, Option<String>>(0)?.unwrap_or_default(),
-                            r.get(1)?,
-                        ))
-                    })?
-                    .collect::<rusqlite::Result<Vec<_>>>()?;
-                rows
-            };
-            for (table_name, column_name) in candidates {
-                if let Some(column) = &column_name {
-                    if !columns_of(tx, "main", &table_name)?
-                        .iter()
-                        .any(|c| c == column)
-                    {
-                        continue;
-                    }
-                }
-                tx.execute(
-                    &format!(
-                        "INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions s
-                         WHERE coalesce(s.table_name, '') = ?1 AND s.column_name IS ?2 AND NOT EXISTS (
-                           SELECT 1 FROM main.gpkg_extensions m WHERE m.table_name IS s.table_name
-                           AND m.column_name IS s.column_name AND m.extension_name = s.extension_name)"
-                    ),
-                    rusqlite::params![table_name, column_name],
-                )?;
-            }
+            copy_extension_rows(tx, name, &list)?;
             continue;
         }
         tx.execute(
@@ -545,6 +543,84 @@ fn copy_layer(
                 }
             }
         }
+    }
+    Ok(())
+}
+
+/// The layer's provenance records; each gets a fresh id in the output.
+fn copy_metadata_records(tx: &Connection, name: &str) -> rusqlite::Result<()> {
+    let mut s = tx.prepare(
+        "SELECT r.md_file_id, m.md_scope, m.md_standard_uri, m.mime_type, m.metadata FROM staged.gpkg_metadata_reference r
+         JOIN staged.gpkg_metadata m ON m.id = r.md_file_id WHERE r.table_name = ?1",
+    )?;
+    let records = s
+        .query_map([name], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, String>(2)?,
+                r.get::<_, String>(3)?,
+                r.get::<_, String>(4)?,
+            ))
+        })?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    for (old_id, scope, uri, mime, metadata) in records {
+        tx.execute(
+            "INSERT INTO main.gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) VALUES (?1, ?2, ?3, ?4)",
+            rusqlite::params![scope, uri, mime, metadata],
+        )?;
+        let new_id = tx.last_insert_rowid();
+        tx.execute(
+            "INSERT INTO main.gpkg_metadata_reference (reference_scope, table_name, column_name, row_id_value, timestamp, md_file_id, md_parent_id)
+             SELECT reference_scope, table_name, column_name, row_id_value, timestamp, ?1, NULL FROM staged.gpkg_metadata_reference
+             WHERE table_name = ?2 AND md_file_id = ?3",
+            rusqlite::params![new_id, name, old_id],
+        )?;
+    }
+    Ok(())
+}
+
+/// Extension rows of the layer, plus extension rows of system tables the output may lack.
+fn copy_extension_rows(tx: &Connection, name: &str, list: &str) -> rusqlite::Result<()> {
+    tx.execute(
+        &format!("INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions WHERE table_name = ?1"),
+        [name],
+    )?;
+    // A system-table extension that names a column (e.g. gpkg_crs_wkt on
+    // gpkg_spatial_ref_sys.definition_12_063) applies only if the output has that column.
+    let candidates: Vec<(String, Option<String>)> = {
+        let mut statement = tx.prepare(
+            "SELECT s.table_name, s.column_name FROM staged.gpkg_extensions s
+             WHERE s.table_name IS NULL OR s.table_name LIKE 'gpkg%'",
+        )?;
+        let rows = statement
+            .query_map([], |r| {
+                Ok((
+                    r.get::<_, Option<String>>(0)?.unwrap_or_default(),
+                    r.get(1)?,
+                ))
+            })?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
+        rows
+    };
+    for (table_name, column_name) in candidates {
+        if let Some(column) = &column_name {
+            if !columns_of(tx, "main", &table_name)?
+                .iter()
+                .any(|c| c == column)
+            {
+                continue;
+            }
+        }
+        tx.execute(
+            &format!(
+                "INSERT INTO main.gpkg_extensions ({list}) SELECT {list} FROM staged.gpkg_extensions s
+                 WHERE coalesce(s.table_name, '') = ?1 AND s.column_name IS ?2 AND NOT EXISTS (
+                   SELECT 1 FROM main.gpkg_extensions m WHERE m.table_name IS s.table_name
+                   AND m.column_name IS s.column_name AND m.extension_name = s.extension_name)"
+            ),
+            rusqlite::params![table_name, column_name],
+        )?;
     }
     Ok(())
 }

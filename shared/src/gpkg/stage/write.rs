@@ -134,40 +134,8 @@ impl Staging {
             layer: layer.to_owned(),
             message,
         };
-        let (source_fields, srs, geometry_type) = {
-            let dataset = crate::gpkg::open_geopackage(source)?;
-            let input = dataset
-                .layer_by_name(layer)
-                .map_err(|e| bad(e.to_string()))?;
-            let fields: Vec<(String, OGRFieldType::Type)> = input
-                .defn()
-                .fields()
-                .map(|f| (f.name(), f.field_type()))
-                .collect();
-            (fields, input.spatial_ref(), input.defn().geometry_type())
-        };
-        for (field, column) in extra {
-            if source_fields
-                .iter()
-                .any(|(n, _)| n.eq_ignore_ascii_case(&field.name))
-            {
-                return Err(Error::argument(
-                    "--name",
-                    format!(
-                        "layer '{layer}' already has a field '{}'; the copy cannot add it again",
-                        field.name
-                    ),
-                ));
-            }
-            if column.len() != fids.len() {
-                return Err(Error::Failed(format!(
-                    "extra field '{}': {} values for {} features",
-                    field.name,
-                    column.len(),
-                    fids.len()
-                )));
-            }
-        }
+        let (source_fields, srs, geometry_type) = source_layout(source, layer)?;
+        check_extra(layer, &source_fields, fids, extra)?;
         let index: std::collections::HashMap<i64, usize> =
             fids.iter().enumerate().map(|(i, f)| (*f, i)).collect();
         let mut schema = source_fields.clone();
@@ -178,34 +146,11 @@ impl Staging {
         );
         let srs_id = self.create_table(name, geometry_type, srs.as_ref(), &schema)?;
 
-        // The source's fid and geometry columns, read with SQLite.
         let reader = crate::gpkg::open_sqlite_read(source)?;
         let read_ctx = format!("reading layer '{layer}' of {}", source.display());
-        let fid_column: String = reader
-            .query_row(
-                &format!(
-                    "SELECT name FROM pragma_table_info({}) WHERE pk = 1",
-                    sql_text(layer)
-                ),
-                [],
-                |r| r.get(0),
-            )
-            .optional()
-            .map_err(Error::sqlite(read_ctx.clone()))?
-            .ok_or_else(|| bad("has no integer primary key (feature id)".into()))?;
-        let geometry_column: Option<String> = reader
-            .query_row(
-                "SELECT column_name FROM gpkg_geometry_columns WHERE lower(table_name) = lower(?1)",
-                [layer],
-                |r| r.get(0),
-            )
-            .optional()
-            .map_err(Error::sqlite(read_ctx.clone()))?;
-        let mut selected = vec![q(&fid_column)];
-        selected.push(geometry_column.as_deref().map_or("NULL".to_owned(), q));
-        selected.extend(source_fields.iter().map(|(n, _)| q(n)));
+        let select = source_select(&reader, layer, &source_fields, &read_ctx, &bad)?;
         let mut statement = reader
-            .prepare(&format!("SELECT {} FROM {}", selected.join(", "), q(layer)))
+            .prepare(&select)
             .map_err(Error::sqlite(read_ctx.clone()))?;
 
         let mut columns = vec![q("fid")];
@@ -227,55 +172,24 @@ impl Staging {
         let mut rows = statement
             .query([])
             .map_err(Error::sqlite(read_ctx.clone()))?;
-        let mut count = 0u64;
-        let write = |e| Error::Sqlite {
-            context: context.clone(),
-            source: e,
+        let copy = RowCopy {
+            srs_id,
+            source_fields: source_fields.len(),
+            extra,
+            read_ctx: &read_ctx,
+            write_ctx: &context,
         };
+        let mut count = 0u64;
         while let Some(row) = rows.next().map_err(Error::sqlite(read_ctx.clone()))? {
             let fid: i64 = row.get(0).map_err(Error::sqlite(read_ctx.clone()))?;
             let at = *index
                 .get(&fid)
                 .ok_or_else(|| bad(format!("feature {fid} was not read before copying")))?;
-            let mut p = 1;
-            insert.raw_bind_parameter(p, fid).map_err(write)?;
-            p += 1;
-            if let Some(id) = srs_id {
-                let mut geometry: Option<Vec<u8>> =
-                    row.get(1).map_err(Error::sqlite(read_ctx.clone()))?;
-                if let Some(blob) = geometry.as_mut() {
-                    crate::gpkg::blob::set_srs_id(blob, id);
-                    let bounds = crate::gpkg::blob::envelope(blob)
-                        .map_err(|m| bad(format!("feature {fid}: unreadable geometry ({m})")))?;
-                    if let Some(e) = bounds {
-                        load.entries.push((fid, e));
-                    }
-                }
-                insert.raw_bind_parameter(p, geometry).map_err(write)?;
-                p += 1;
-            }
-            for k in 0..source_fields.len() {
-                let value: rusqlite::types::Value =
-                    row.get(2 + k).map_err(Error::sqlite(read_ctx.clone()))?;
-                insert.raw_bind_parameter(p, value).map_err(write)?;
-                p += 1;
-            }
-            for (_, column) in extra {
-                match column {
-                    ExtraColumn::Integer(v) => insert.raw_bind_parameter(p, v[at]),
-                    ExtraColumn::Real(v) => {
-                        insert.raw_bind_parameter(p, v[at].filter(|x| x.is_finite()))
-                    }
-                    ExtraColumn::Text(v) => insert.raw_bind_parameter(p, v[at].as_deref()),
-                }
-                .map_err(write)?;
-                p += 1;
-            }
-            insert.raw_execute().map_err(write)?;
+            copy.bind(&mut insert, row, fid, at, &mut load, &bad)?;
             count += 1;
         }
         drop(insert);
-        finish_table(connection, name, &load, count).map_err(write)?;
+        finish_table(connection, name, &load, count).map_err(Error::sqlite(context))?;
         self.layers.push(StagedLayer {
             name: name.to_owned(),
             data_type: "features",
@@ -542,5 +456,156 @@ impl Drop for VectorWriter<'_> {
             // An abandoned layer: its rows are dropped; the run fails and the file is removed.
             let _ = self.connection.execute_batch("ROLLBACK");
         }
+    }
+}
+
+type SourceLayout = (
+    Vec<(String, OGRFieldType::Type)>,
+    Option<gdal::spatial_ref::SpatialRef>,
+    OGRwkbGeometryType::Type,
+);
+
+/// The fields, CRS and geometry type of `layer` of `source`, as GDAL reports them.
+fn source_layout(source: &Path, layer: &str) -> Result<SourceLayout> {
+    let dataset = crate::gpkg::open_geopackage(source)?;
+    let input = dataset.layer_by_name(layer).map_err(|e| Error::BadLayer {
+        path: source.to_owned(),
+        layer: layer.to_owned(),
+        message: e.to_string(),
+    })?;
+    let fields: Vec<(String, OGRFieldType::Type)> = input
+        .defn()
+        .fields()
+        .map(|f| (f.name(), f.field_type()))
+        .collect();
+    Ok((fields, input.spatial_ref(), input.defn().geometry_type()))
+}
+
+/// Extra columns must not clash with the source's fields and must hold one value per feature.
+fn check_extra(
+    layer: &str,
+    source_fields: &[(String, OGRFieldType::Type)],
+    fids: &[i64],
+    extra: &[(FieldDef, ExtraColumn)],
+) -> Result<()> {
+    for (field, column) in extra {
+        if source_fields
+            .iter()
+            .any(|(n, _)| n.eq_ignore_ascii_case(&field.name))
+        {
+            return Err(Error::argument(
+                "--name",
+                format!(
+                    "layer '{layer}' already has a field '{}'; the copy cannot add it again",
+                    field.name
+                ),
+            ));
+        }
+        if column.len() != fids.len() {
+            return Err(Error::Failed(format!(
+                "extra field '{}': {} values for {} features",
+                field.name,
+                column.len(),
+                fids.len()
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// The SELECT of the source's fid, geometry (or NULL) and fields, read with SQLite.
+fn source_select(
+    reader: &Connection,
+    layer: &str,
+    source_fields: &[(String, OGRFieldType::Type)],
+    read_ctx: &str,
+    bad: &dyn Fn(String) -> Error,
+) -> Result<String> {
+    let fid_column: String = reader
+        .query_row(
+            &format!(
+                "SELECT name FROM pragma_table_info({}) WHERE pk = 1",
+                sql_text(layer)
+            ),
+            [],
+            |r| r.get(0),
+        )
+        .optional()
+        .map_err(Error::sqlite(read_ctx))?
+        .ok_or_else(|| bad("has no integer primary key (feature id)".into()))?;
+    let geometry_column: Option<String> = reader
+        .query_row(
+            "SELECT column_name FROM gpkg_geometry_columns WHERE lower(table_name) = lower(?1)",
+            [layer],
+            |r| r.get(0),
+        )
+        .optional()
+        .map_err(Error::sqlite(read_ctx))?;
+    let mut selected = vec![q(&fid_column)];
+    selected.push(geometry_column.as_deref().map_or("NULL".to_owned(), q));
+    selected.extend(source_fields.iter().map(|(n, _)| q(n)));
+    Ok(format!("SELECT {} FROM {}", selected.join(", "), q(layer)))
+}
+
+/// Binds one copied row: fid, geometry (srs_id renumbered, envelope kept for the R-tree), the
+/// source's values as stored, then the extra values of feature `at`.
+struct RowCopy<'a> {
+    srs_id: Option<i32>,
+    source_fields: usize,
+    extra: &'a [(FieldDef, ExtraColumn)],
+    read_ctx: &'a str,
+    write_ctx: &'a str,
+}
+
+impl RowCopy<'_> {
+    fn bind(
+        &self,
+        insert: &mut rusqlite::Statement<'_>,
+        row: &rusqlite::Row<'_>,
+        fid: i64,
+        at: usize,
+        load: &mut BulkLoad,
+        bad: &dyn Fn(String) -> Error,
+    ) -> Result<()> {
+        let read = Error::sqlite(self.read_ctx);
+        let write = |e| Error::Sqlite {
+            context: self.write_ctx.to_owned(),
+            source: e,
+        };
+        let mut p = 1;
+        insert.raw_bind_parameter(p, fid).map_err(write)?;
+        p += 1;
+        if let Some(id) = self.srs_id {
+            let mut geometry: Option<Vec<u8>> = row.get(1).map_err(read)?;
+            if let Some(blob) = geometry.as_mut() {
+                crate::gpkg::blob::set_srs_id(blob, id);
+                let bounds = crate::gpkg::blob::envelope(blob)
+                    .map_err(|m| bad(format!("feature {fid}: unreadable geometry ({m})")))?;
+                if let Some(e) = bounds {
+                    load.entries.push((fid, e));
+                }
+            }
+            insert.raw_bind_parameter(p, geometry).map_err(write)?;
+            p += 1;
+        }
+        for k in 0..self.source_fields {
+            let value: rusqlite::types::Value =
+                row.get(2 + k).map_err(Error::sqlite(self.read_ctx))?;
+            insert.raw_bind_parameter(p, value).map_err(write)?;
+            p += 1;
+        }
+        for (_, column) in self.extra {
+            match column {
+                ExtraColumn::Integer(v) => insert.raw_bind_parameter(p, v[at]),
+                ExtraColumn::Real(v) => {
+                    insert.raw_bind_parameter(p, v[at].filter(|x| x.is_finite()))
+                }
+                ExtraColumn::Text(v) => insert.raw_bind_parameter(p, v[at].as_deref()),
+            }
+            .map_err(write)?;
+            p += 1;
+        }
+        insert.raw_execute().map_err(write)?;
+        Ok(())
     }
 }
