@@ -58,9 +58,13 @@ pub fn agreement(labels: &[Vec<usize>], k: usize, weighting: Weighting) -> Agree
             row
         })
         .collect();
-    let units: Vec<Vec<Option<usize>>> =
-        (0..n).map(|r| labels.iter().map(|l| Some(l[r])).collect()).collect();
-    let unanimous = rows.iter().filter(|r| r.contains(&(labels.len() as u64))).count();
+    let units: Vec<Vec<Option<usize>>> = (0..n)
+        .map(|r| labels.iter().map(|l| Some(l[r])).collect())
+        .collect();
+    let unanimous = rows
+        .iter()
+        .filter(|r| r.contains(&(labels.len() as u64)))
+        .count();
     Agreement {
         pairs,
         fleiss: multi::fleiss_kappa(&rows),
@@ -71,7 +75,9 @@ pub fn agreement(labels: &[Vec<usize>], k: usize, weighting: Weighting) -> Agree
 
 /// Each labeller against the reference (hand-coded records only).
 pub fn scores(labels: &[Vec<usize>], reference: &[Option<usize>], k: usize, z: f64) -> Vec<Scores> {
-    let coded: Vec<usize> = (0..reference.len()).filter(|&r| reference[r].is_some()).collect();
+    let coded: Vec<usize> = (0..reference.len())
+        .filter(|&r| reference[r].is_some())
+        .collect();
     let truth: Vec<usize> = coded.iter().filter_map(|&r| reference[r]).collect();
     labels
         .iter()
@@ -155,7 +161,11 @@ fn one_area(input: &AreaInputs, rows: &[usize]) -> AreaResult {
     for a in 0..m {
         for b in a + 1..m {
             let value = (n >= input.min_records).then(|| {
-                kappa::kappa(&kappa::table(&labels[a], &labels[b], input.k), Weighting::None).kappa
+                kappa::kappa(
+                    &kappa::table(&labels[a], &labels[b], input.k),
+                    Weighting::None,
+                )
+                .kappa
             });
             kappa.push(value.filter(|v| v.is_finite()));
         }

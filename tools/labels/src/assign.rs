@@ -48,7 +48,11 @@ mod tests {
 
     #[test]
     fn shared_edges_go_to_the_first_area() {
-        let got = assign(&[square(0.0), square(1.0)], &[0.5, 1.0, 1.5, 3.0], &[0.5; 4]);
+        let got = assign(
+            &[square(0.0), square(1.0)],
+            &[0.5, 1.0, 1.5, 3.0],
+            &[0.5; 4],
+        );
         assert_eq!(got, vec![Some(0), Some(0), Some(1), None]);
     }
 }

@@ -165,7 +165,10 @@ mod tests {
     fn scores_of_a_small_table() {
         // reference: 0 0 0 1 1 2 ; labels: 0 0 1 1 1 2
         let got = scores(&[0, 0, 0, 1, 1, 2], &[0, 0, 1, 1, 1, 2], 3, 1.96);
-        assert_eq!(got.matrix, vec![vec![2, 1, 0], vec![0, 2, 0], vec![0, 0, 1]]);
+        assert_eq!(
+            got.matrix,
+            vec![vec![2, 1, 0], vec![0, 2, 0], vec![0, 0, 1]]
+        );
         assert_relative_eq!(got.classes[0].precision.estimate, 1.0);
         assert_relative_eq!(got.classes[0].recall.estimate, 2.0 / 3.0);
         assert_relative_eq!(got.classes[1].precision.estimate, 2.0 / 3.0);

@@ -63,7 +63,9 @@ impl Calibration {
             })
             .collect();
         let prior_counts: Vec<f64> = matrices.first().map_or_else(Vec::new, |m| {
-            m.iter().map(|r| r.iter().sum::<u64>() as f64 + 0.5).collect()
+            m.iter()
+                .map(|r| r.iter().sum::<u64>() as f64 + 0.5)
+                .collect()
         });
         let total: f64 = prior_counts.iter().sum();
         Calibration {

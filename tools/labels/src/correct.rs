@@ -33,7 +33,10 @@ pub struct Misclassification {
 impl Misclassification {
     /// From confusion counts `[t][l]`.
     pub fn new(counts: &[Vec<u64>]) -> Self {
-        let n: Vec<f64> = counts.iter().map(|r| r.iter().sum::<u64>() as f64).collect();
+        let n: Vec<f64> = counts
+            .iter()
+            .map(|r| r.iter().sum::<u64>() as f64)
+            .collect();
         let p: Vec<Vec<f64>> = counts
             .iter()
             .zip(&n)
@@ -132,7 +135,11 @@ fn transpose(a: &[Vec<f64>]) -> Vec<Vec<f64>> {
 fn mul(a: &[Vec<f64>], b: &[Vec<f64>]) -> Vec<Vec<f64>> {
     let k = a.len();
     (0..k)
-        .map(|i| (0..k).map(|j| (0..k).map(|t| a[i][t] * b[t][j]).sum()).collect())
+        .map(|i| {
+            (0..k)
+                .map(|j| (0..k).map(|t| a[i][t] * b[t][j]).sum())
+                .collect()
+        })
         .collect()
 }
 
@@ -199,7 +206,8 @@ mod tests {
         // Rogan–Gladen variance, q part only with n_t → ∞ omitted: here both parts.
         let q_part: f64 = 0.4 * 0.6 / 100.0;
         let (se, sp, pi): (f64, f64, f64) = (0.9, 0.8, 0.2 / 0.7);
-        let p_part = pi * pi * se * (1.0 - se) / 100.0 + (1.0 - pi).powi(2) * sp * (1.0 - sp) / 100.0;
+        let p_part =
+            pi * pi * se * (1.0 - se) / 100.0 + (1.0 - pi).powi(2) * sp * (1.0 - sp) / 100.0;
         let var = (q_part + p_part) / (0.7 * 0.7);
         assert_relative_eq!(got.se[0], var.sqrt(), epsilon = 1e-12);
     }

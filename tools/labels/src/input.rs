@@ -37,12 +37,25 @@ pub struct Areas {
 /// A missing layer or field, unknown labels, or a flagged record without a reference label.
 pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
     let path = run.input()?.to_owned();
-    let mut wants: Vec<(&str, FieldWant)> =
-        config.labels.iter().map(|f| (f.as_str(), FieldWant::Text)).collect();
-    wants.extend(config.reference.iter().map(|f| (f.as_str(), FieldWant::Text)));
+    let mut wants: Vec<(&str, FieldWant)> = config
+        .labels
+        .iter()
+        .map(|f| (f.as_str(), FieldWant::Text))
+        .collect();
+    wants.extend(
+        config
+            .reference
+            .iter()
+            .map(|f| (f.as_str(), FieldWant::Text)),
+    );
     wants.extend(config.flag.iter().map(|f| (f.as_str(), FieldWant::Real)));
     wants.extend(config.keep.iter().map(|f| (f.as_str(), FieldWant::Text)));
-    let layer = read::read_points(&path, run.common.layer.as_deref(), &wants, run.common.crs.as_deref())?;
+    let layer = read::read_points(
+        &path,
+        run.common.layer.as_deref(),
+        &wants,
+        run.common.crs.as_deref(),
+    )?;
     run.note_input_layer(&layer.layer);
     let bad = |field: &str, message: String| Error::BadField {
         path: path.clone(),
@@ -56,20 +69,34 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
         let column = text(columns.next())?;
         let class_of = classify_codes(&config.classes, &column.values, &column.codes)
             .map_err(|m| bad(field, m))?;
-        labels.push(column.codes.iter().map(|&c| class_of[c as usize] as usize).collect());
+        labels.push(
+            column
+                .codes
+                .iter()
+                .map(|&c| class_of[c as usize] as usize)
+                .collect(),
+        );
     }
     let reference = match &config.reference {
         Some(field) => {
             let column = text(columns.next())?;
-            let mut classes = classify_present(&config.classes, column).map_err(|m| bad(field, m))?;
+            let mut classes =
+                classify_present(&config.classes, column).map_err(|m| bad(field, m))?;
             if let Some(flag_field) = &config.flag {
                 let Some(Column::Real(flags)) = columns.next() else {
                     return Err(Error::Failed("flag column was not read as numbers".into()));
                 };
                 apply_flag(&mut classes, flags, &layer.fids).map_err(|m| bad(flag_field, m))?;
             }
+            if let Some(size) = config.sample {
+                let mut rng = stance_core::montecarlo::replicate_rng(run.common.seed, 0);
+                crate::subset::keep_sample(&mut classes, size, &mut rng);
+            }
             if classes.iter().all(Option::is_none) {
-                return Err(bad(field, "no record is hand-coded; expected a reference label on some records".into()));
+                return Err(bad(
+                    field,
+                    "no record is hand-coded; expected a reference label on some records".into(),
+                ));
             }
             Some(classes)
         }
@@ -77,7 +104,13 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
     };
     let kept = columns.map(Column::as_texts).collect();
     run.debug(format!("read {} records", layer.fids.len()));
-    Ok(Records { layer, path, labels, reference, kept })
+    Ok(Records {
+        layer,
+        path,
+        labels,
+        reference,
+        kept,
+    })
 }
 
 fn text(column: Option<&Column>) -> Result<&read::TextColumn> {
@@ -89,8 +122,16 @@ fn text(column: Option<&Column>) -> Result<&read::TextColumn> {
 
 /// Classes of a column where missing values are allowed (not hand-coded); unknown labels are
 /// refused with the shared message.
-fn classify_present(map: &ClassMap, column: &read::TextColumn) -> std::result::Result<Vec<Option<usize>>, String> {
-    let present: Vec<u32> = column.codes.iter().copied().filter(|&c| c != read::TextColumn::NULL).collect();
+fn classify_present(
+    map: &ClassMap,
+    column: &read::TextColumn,
+) -> std::result::Result<Vec<Option<usize>>, String> {
+    let present: Vec<u32> = column
+        .codes
+        .iter()
+        .copied()
+        .filter(|&c| c != read::TextColumn::NULL)
+        .collect();
     let class_of: Vec<Stance> = classify_codes(map, &column.values, &present)?;
     Ok(column
         .codes
@@ -100,7 +141,11 @@ fn classify_present(map: &ClassMap, column: &read::TextColumn) -> std::result::R
 }
 
 /// Keeps the reference only where the flag is non-zero; a flagged record needs a label.
-fn apply_flag(classes: &mut [Option<usize>], flags: &[Option<f64>], fids: &[i64]) -> std::result::Result<(), String> {
+fn apply_flag(
+    classes: &mut [Option<usize>],
+    flags: &[Option<f64>],
+    fids: &[i64],
+) -> std::result::Result<(), String> {
     for (i, (class, flag)) in classes.iter_mut().zip(flags).enumerate() {
         let flagged = flag.is_some_and(|f| f != 0.0);
         if flagged && class.is_none() {

@@ -134,7 +134,10 @@ mod tests {
 
     #[test]
     fn perfect_agreement_is_one_with_zero_error() {
-        let got = kappa(&[vec![3, 0, 0], vec![0, 4, 0], vec![0, 0, 5]], Weighting::Linear);
+        let got = kappa(
+            &[vec![3, 0, 0], vec![0, 4, 0], vec![0, 0, 5]],
+            Weighting::Linear,
+        );
         assert_relative_eq!(got.kappa, 1.0, epsilon = 1e-12);
         assert!(got.se.abs() < 1e-9);
     }

@@ -13,6 +13,7 @@ pub mod kappa;
 pub mod multi;
 pub mod output;
 pub mod params;
+pub mod subset;
 
 use serde_json::Value;
 use stance_core::error::Result;
@@ -33,7 +34,8 @@ pub struct Labels;
 impl Tool for Labels {
     type Params = LabelsParams;
     const ID: &'static str = "labels";
-    const TITLE: &'static str = "Agreement between labellers, consensus labels and corrected shares";
+    const TITLE: &'static str =
+        "Agreement between labellers, consensus labels and corrected shares";
     const DESCRIPTION: &'static str = "Compares two or more stance label fields of a point layer \
         (e.g. automatic classifiers). Agreement of every pair: Cohen's kappa (Cohen 1960) and weighted \
         kappa for the ordered stances (Cohen 1968; quadratic weights by default, or linear), each with \
@@ -51,7 +53,8 @@ impl Tool for Labels {
         and flagged where clamping or an ill-conditioned matrix makes the correction unstable.";
     const DEFAULT_NAME: &'static str = "labels";
     const INPUT: InputUse = InputUse::Required;
-    const INPUT_DESCRIPTION: &'static str = "GeoPackage with the point records (a point layer with \
+    const INPUT_DESCRIPTION: &'static str =
+        "GeoPackage with the point records (a point layer with \
         two or more label fields); also the default file of the areas.";
 
     fn outputs() -> Vec<OutputDecl> {
@@ -59,8 +62,8 @@ impl Tool for Labels {
             OutputDecl {
                 id: "records",
                 title: "Records with consensus labels",
-                description: "Point layer <name>_records (working CRS): record_fid, the label fields and \
-                    the reference as classes, in_reference, kept fields, consensus (a class or \
+                description: "Point layer <name>_records (working CRS): record_fid, the label fields (as classes), \
+                    reference_class, in_reference, kept fields, consensus (a class or \
                     'undecided'), consensus_votes, consensus_share, consensus_posterior, all_agree.",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },
@@ -84,7 +87,10 @@ impl Tool for Labels {
         run.progress.set(0.3);
         run.progress.phase("agreement");
         let agreement = analysis::agreement(&records.labels, K, config.weighting);
-        let scores = records.reference.as_ref().map(|r| analysis::scores(&records.labels, r, K, config.z));
+        let scores = records
+            .reference
+            .as_ref()
+            .map(|r| analysis::scores(&records.labels, r, K, config.z));
         let consensus = analysis::consensus_all(&records.labels, K, scores.as_deref());
         let correction = config
             .correct
@@ -144,13 +150,23 @@ fn per_area(
 }
 
 /// The copy of the areas with their fields (None without --areas).
-fn write_areas(run: &mut Run, config: &Config, areas: Option<&Areas>, results: &[AreaResult]) -> Result<Option<String>> {
+fn write_areas(
+    run: &mut Run,
+    config: &Config,
+    areas: Option<&Areas>,
+    results: &[AreaResult],
+) -> Result<Option<String>> {
     let Some(areas) = areas else {
         return Ok(None);
     };
     let name = run.layer_name("areas");
     let fields = output::area_fields(config, results);
-    run.output()
-        .copy_with_fields(&areas.path, &areas.layer.layer, &name, &areas.layer.fids, &fields)?;
+    run.output().copy_with_fields(
+        &areas.path,
+        &areas.layer.layer,
+        &name,
+        &areas.layer.fids,
+        &fields,
+    )?;
     Ok(Some(name))
 }

@@ -21,7 +21,13 @@ pub fn class_label(c: usize) -> &'static str {
 /// A field name made of a user's field name: lower case, other characters as `_`.
 pub fn snake(name: &str) -> String {
     name.chars()
-        .map(|c| if c.is_ascii_alphanumeric() { c.to_ascii_lowercase() } else { '_' })
+        .map(|c| {
+            if c.is_ascii_alphanumeric() {
+                c.to_ascii_lowercase()
+            } else {
+                '_'
+            }
+        })
         .collect()
 }
 
@@ -30,14 +36,30 @@ pub fn snake(name: &str) -> String {
 ///
 /// # Errors
 /// Staging failures.
-pub fn write_records(run: &mut Run, name: &str, config: &Config, records: &Records, consensus: &[Consensus]) -> Result<u64> {
+pub fn write_records(
+    run: &mut Run,
+    name: &str,
+    config: &Config,
+    records: &Records,
+    consensus: &[Consensus],
+) -> Result<u64> {
     let mut fields = vec![FieldDef::new("record_fid", FieldKind::Integer)];
-    fields.extend(config.labels.iter().map(|f| FieldDef::new(f, FieldKind::Text)));
-    if let Some(r) = &config.reference {
-        fields.push(FieldDef::new(r, FieldKind::Text));
+    fields.extend(
+        config
+            .labels
+            .iter()
+            .map(|f| FieldDef::new(f, FieldKind::Text)),
+    );
+    if config.reference.is_some() {
+        fields.push(FieldDef::new("reference_class", FieldKind::Text));
         fields.push(FieldDef::new("in_reference", FieldKind::Integer));
     }
-    fields.extend(config.keep.iter().map(|f| FieldDef::new(f, FieldKind::Text)));
+    fields.extend(
+        config
+            .keep
+            .iter()
+            .map(|f| FieldDef::new(f, FieldKind::Text)),
+    );
     for (f, kind) in [
         ("consensus", FieldKind::Text),
         ("consensus_votes", FieldKind::Integer),
@@ -48,17 +70,29 @@ pub fn write_records(run: &mut Run, name: &str, config: &Config, records: &Recor
         fields.push(FieldDef::new(f, kind));
     }
     let layer = &records.layer;
-    let mut writer = run.output().create_vector(name, GeometryKind::Point, Some(&layer.srs), &fields)?;
+    let mut writer =
+        run.output()
+            .create_vector(name, GeometryKind::Point, Some(&layer.srs), &fields)?;
     let mut values: Vec<FieldData> = Vec::with_capacity(fields.len());
     for (i, c) in consensus.iter().enumerate() {
         values.clear();
         values.push(FieldData::Integer(layer.fids[i]));
-        values.extend(records.labels.iter().map(|l| FieldData::Text(class_label(l[i]))));
+        values.extend(
+            records
+                .labels
+                .iter()
+                .map(|l| FieldData::Text(class_label(l[i]))),
+        );
         if let Some(reference) = &records.reference {
             values.push(reference[i].map_or(FieldData::Null, |c| FieldData::Text(class_label(c))));
             values.push(FieldData::Integer(i64::from(reference[i].is_some())));
         }
-        values.extend(records.kept.iter().map(|k| k[i].as_deref().map_or(FieldData::Null, FieldData::Text)));
+        values.extend(
+            records
+                .kept
+                .iter()
+                .map(|k| k[i].as_deref().map_or(FieldData::Null, FieldData::Text)),
+        );
         values.push(FieldData::Text(c.class.map_or("undecided", class_label)));
         values.push(FieldData::Integer(c.votes as i64));
         values.push(FieldData::Real(c.share));
@@ -73,14 +107,29 @@ pub fn write_records(run: &mut Run, name: &str, config: &Config, records: &Recor
 pub fn area_fields(config: &Config, results: &[AreaResult]) -> Vec<(FieldDef, ExtraColumn)> {
     let mut extra = Vec::new();
     let mut add = |name: String, kind, column| extra.push((FieldDef::new(&name, kind), column));
-    let ints = |f: &dyn Fn(&AreaResult) -> i64| ExtraColumn::Integer(results.iter().map(|r| Some(f(r))).collect());
-    let reals = |f: &dyn Fn(&AreaResult) -> Option<f64>| ExtraColumn::Real(results.iter().map(f).collect());
-    add("count_total".into(), FieldKind::Integer, ints(&|r| r.records as i64));
-    add("all_agree_share".into(), FieldKind::Real, reals(&|r| r.unanimous));
+    let ints = |f: &dyn Fn(&AreaResult) -> i64| {
+        ExtraColumn::Integer(results.iter().map(|r| Some(f(r))).collect())
+    };
+    let reals =
+        |f: &dyn Fn(&AreaResult) -> Option<f64>| ExtraColumn::Real(results.iter().map(f).collect());
+    add(
+        "count_total".into(),
+        FieldKind::Integer,
+        ints(&|r| r.records as i64),
+    );
+    add(
+        "all_agree_share".into(),
+        FieldKind::Real,
+        reals(&|r| r.unanimous),
+    );
     let mut p = 0;
     for a in 0..config.labels.len() {
         for b in a + 1..config.labels.len() {
-            let name = format!("kappa_{}_{}", snake(&config.labels[a]), snake(&config.labels[b]));
+            let name = format!(
+                "kappa_{}_{}",
+                snake(&config.labels[a]),
+                snake(&config.labels[b])
+            );
             add(name, FieldKind::Real, reals(&|r| r.kappa[p]));
             p += 1;
         }
@@ -92,17 +141,52 @@ pub fn area_fields(config: &Config, results: &[AreaResult]) -> Vec<(FieldDef, Ex
     for class in Stance::ALL {
         let c = class as usize;
         let label = class.label();
-        add(format!("share_{label}_raw"), FieldKind::Real, reals(&|r| r.corrected.as_ref().map(|s| s.raw[c])));
-        add(format!("share_{label}_corrected"), FieldKind::Real, reals(&|r| r.corrected.as_ref().map(|s| s.shares[c])));
-        let bound = |sign: f64| move |r: &AreaResult| r.corrected.as_ref().map(|s| (s.shares[c] + sign * z * s.se[c]).clamp(0.0, 1.0));
-        add(format!("share_{label}_lower"), FieldKind::Real, reals(&bound(-1.0)));
-        add(format!("share_{label}_upper"), FieldKind::Real, reals(&bound(1.0)));
+        add(
+            format!("share_{label}_raw"),
+            FieldKind::Real,
+            reals(&|r| r.corrected.as_ref().map(|s| s.raw[c])),
+        );
+        add(
+            format!("share_{label}_corrected"),
+            FieldKind::Real,
+            reals(&|r| r.corrected.as_ref().map(|s| s.shares[c])),
+        );
+        let bound = |sign: f64| {
+            move |r: &AreaResult| {
+                r.corrected
+                    .as_ref()
+                    .map(|s| (s.shares[c] + sign * z * s.se[c]).clamp(0.0, 1.0))
+            }
+        };
+        add(
+            format!("share_{label}_lower"),
+            FieldKind::Real,
+            reals(&bound(-1.0)),
+        );
+        add(
+            format!("share_{label}_upper"),
+            FieldKind::Real,
+            reals(&bound(1.0)),
+        );
     }
     let flag = |f: fn(&crate::correct::Corrected) -> bool| {
-        ExtraColumn::Integer(results.iter().map(|r| r.corrected.as_ref().map(|s| i64::from(f(s)))).collect())
+        ExtraColumn::Integer(
+            results
+                .iter()
+                .map(|r| r.corrected.as_ref().map(|s| i64::from(f(s))))
+                .collect(),
+        )
     };
-    add("correction_clamped".into(), FieldKind::Integer, flag(|s| s.clamped));
-    add("correction_unstable".into(), FieldKind::Integer, flag(|s| s.unstable));
+    add(
+        "correction_clamped".into(),
+        FieldKind::Integer,
+        flag(|s| s.clamped),
+    );
+    add(
+        "correction_unstable".into(),
+        FieldKind::Integer,
+        flag(|s| s.unstable),
+    );
     extra
 }
 

@@ -42,6 +42,11 @@ pub struct LabelsParams {
     #[arg(long, value_name = "FIELD")]
     pub reference_flag_field: Option<String>,
 
+    /// Keep only a simple random sample of this many hand-coded records as the reference (drawn
+    /// with --seed); e.g. to simulate hand coding a subset when every record has a reference label.
+    #[arg(long, value_name = "N")]
+    pub reference_sample: Option<usize>,
+
     /// Agreement weights of weighted kappa.
     #[arg(long, value_enum, default_value_t = WeightingArg::Quadratic)]
     pub weighting: WeightingArg,
@@ -85,6 +90,8 @@ pub struct Config {
     pub reference: Option<String>,
     /// The field flagging the reference subset.
     pub flag: Option<String>,
+    /// Size of the random reference sample.
+    pub sample: Option<usize>,
     /// Weights of weighted kappa.
     pub weighting: Weighting,
     /// Normal quantile of the intervals.
@@ -117,19 +124,44 @@ impl LabelsParams {
         if labels.len() < 2 {
             return Err(Error::argument(
                 "--label-fields",
-                format!("'{}' names fewer than two fields; expected two or more, comma-separated", self.label_fields),
+                format!(
+                    "'{}' names fewer than two fields; expected two or more, comma-separated",
+                    self.label_fields
+                ),
             ));
         }
-        if let Some(dup) = labels.iter().enumerate().find(|(i, f)| labels[..*i].contains(f)) {
-            return Err(Error::argument("--label-fields", format!("'{}' is named twice", dup.1)));
+        if let Some(dup) = labels
+            .iter()
+            .enumerate()
+            .find(|(i, f)| labels[..*i].contains(f))
+        {
+            return Err(Error::argument(
+                "--label-fields",
+                format!("'{}' is named twice", dup.1),
+            ));
         }
         if self.reference_flag_field.is_some() && self.reference_field.is_none() {
-            return Err(Error::argument("--reference-flag-field", "needs --reference-field"));
+            return Err(Error::argument(
+                "--reference-flag-field",
+                "needs --reference-field",
+            ));
+        }
+        if self.reference_sample.is_some() && self.reference_field.is_none() {
+            return Err(Error::argument(
+                "--reference-sample",
+                "needs --reference-field",
+            ));
+        }
+        if self.reference_sample == Some(0) {
+            return Err(Error::argument("--reference-sample", "must be at least 1"));
         }
         if !(self.confidence > 0.5 && self.confidence < 1.0) {
             return Err(Error::argument(
                 "--confidence",
-                format!("{} is not a level between 0.5 and 1 (e.g. 0.95)", self.confidence),
+                format!(
+                    "{} is not a level between 0.5 and 1 (e.g. 0.95)",
+                    self.confidence
+                ),
             ));
         }
         if self.areas_file.is_some() && self.areas.is_none() {
@@ -138,7 +170,21 @@ impl LabelsParams {
         if self.min_records < 2 {
             return Err(Error::argument("--min-records", "must be at least 2"));
         }
-        let correct = self.correct_field.as_ref().map(|f| correct_index(self, &labels, f)).transpose()?;
+        let keep = self.keep_fields.as_deref().map(list).unwrap_or_default();
+        if let Some(k) = keep
+            .iter()
+            .find(|k| labels.contains(k) || self.reference_field.as_ref() == Some(k))
+        {
+            return Err(Error::argument(
+                "--keep-fields",
+                format!("'{k}' is a label or reference field, already written as a class"),
+            ));
+        }
+        let correct = self
+            .correct_field
+            .as_ref()
+            .map(|f| correct_index(self, &labels, f))
+            .transpose()?;
         let weighting = match self.weighting {
             WeightingArg::Linear => Weighting::Linear,
             WeightingArg::Quadratic => Weighting::Quadratic,
@@ -147,12 +193,13 @@ impl LabelsParams {
             classes: class_map_option(self.classes.as_deref())?,
             reference: self.reference_field.clone(),
             flag: self.reference_flag_field.clone(),
+            sample: self.reference_sample,
             weighting,
             z: crate::confusion::normal_quantile(0.5 + self.confidence / 2.0),
             areas: self.areas.clone().map(|a| (a, self.areas_file.clone())),
             min_records: self.min_records,
             correct,
-            keep: self.keep_fields.as_deref().map(list).unwrap_or_default(),
+            keep,
             labels,
         })
     }
@@ -161,12 +208,18 @@ impl LabelsParams {
 /// The index of `--correct-field` among the label fields; it needs areas and a reference.
 fn correct_index(params: &LabelsParams, labels: &[String], field: &str) -> Result<usize> {
     if params.areas.is_none() || params.reference_field.is_none() {
-        return Err(Error::argument("--correct-field", "needs --areas and --reference-field"));
+        return Err(Error::argument(
+            "--correct-field",
+            "needs --areas and --reference-field",
+        ));
     }
     labels.iter().position(|l| l == field).ok_or_else(|| {
         Error::argument(
             "--correct-field",
-            format!("'{field}' is not one of --label-fields ({})", labels.join(", ")),
+            format!(
+                "'{field}' is not one of --label-fields ({})",
+                labels.join(", ")
+            ),
         )
     })
 }
