@@ -101,8 +101,11 @@ fn the_sample_confusion_matrices_are_within_sampling_error_of_the_planted_ones()
     }
 }
 
-/// Shares per area of one run: (records, [(raw, corrected)] per class) by feature id.
-fn area_shares(path: &Path, layer: &str) -> Vec<(i64, f64, [(f64, f64); 3])> {
+/// One area of a run: feature id, records, and (raw, corrected) share per class.
+type AreaShares = (i64, f64, [(f64, f64); 3]);
+
+/// Shares per area of one run, by feature id.
+fn area_shares(path: &Path, layer: &str) -> Vec<AreaShares> {
     let sql = format!(
         "SELECT fid, count_total, {} FROM {layer} ORDER BY fid",
         CLASSES

@@ -92,9 +92,9 @@ pub fn correct(counts: &[u64], m: &Misclassification) -> Option<Corrected> {
         for j in 0..k {
             let d = if i == j { q[i] } else { 0.0 };
             sigma[i][j] = (d - q[i] * q[j]) / n;
-            for t in 0..k {
-                let dt = if i == j { m.p[t][i] } else { 0.0 };
-                sigma[i][j] += pi[t] * pi[t] * (dt - m.p[t][i] * m.p[t][j]) / m.n[t];
+            for ((row, &size), &share) in m.p.iter().zip(&m.n).zip(&pi) {
+                let dt = if i == j { row[i] } else { 0.0 };
+                sigma[i][j] += share * share * (dt - row[i] * row[j]) / size;
             }
         }
     }
