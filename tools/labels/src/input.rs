@@ -161,6 +161,33 @@ fn apply_flag(
     Ok(())
 }
 
+/// The compared layers, each in the records' CRS (None without --compare-layers).
+///
+/// # Errors
+/// A missing layer, or geometries that cannot be projected.
+pub fn read_compared(
+    config: &Config,
+    records: &Records,
+    run: &mut Run,
+) -> Result<Option<Vec<PolygonLayer>>> {
+    let Some((names, file, _)) = &config.compare else {
+        return Ok(None);
+    };
+    let path = file.clone().unwrap_or_else(|| records.path.clone());
+    let mut layers = Vec::new();
+    for name in names {
+        let layer =
+            read::read_polygons(&path, Some(name), &[], PolygonCrs::Into(&records.layer.srs))?;
+        if path == records.path {
+            run.note_input_layer(&layer.layer);
+        } else {
+            run.note_extra_input(&path, &layer.layer)?;
+        }
+        layers.push(layer);
+    }
+    Ok(Some(layers))
+}
+
 /// The areas in the records' CRS (None without --areas).
 ///
 /// # Errors

@@ -12,6 +12,7 @@ pub mod input;
 pub mod kappa;
 pub mod multi;
 pub mod output;
+pub mod overlap;
 pub mod params;
 pub mod subset;
 
@@ -104,6 +105,7 @@ impl Tool for Labels {
         let name = run.layer_name("records");
         output::write_records(run, &name, &config, &records, &consensus)?;
         let area_name = write_areas(run, &config, areas.as_ref(), &per_area)?;
+        let comparison = compare_clusters(&config, &records, run)?;
         run.progress.set(1.0);
         let found = output::Found {
             agreement: &agreement,
@@ -113,6 +115,7 @@ impl Tool for Labels {
             layers: (&name, area_name.as_deref()),
             areas: areas.as_ref(),
             outside,
+            comparison,
         };
         run.log(format!(
             "stance-labels: {} records, {} labellers, Fleiss' kappa {:.3}, ordinal alpha {:.3} → '{name}'",
@@ -169,4 +172,18 @@ fn write_areas(
         &fields,
     )?;
     Ok(Some(name))
+}
+
+/// With --compare-layers: the Jaccard comparison, written as `<name>_clusters`; its summary.
+fn compare_clusters(config: &Config, records: &Records, run: &mut Run) -> Result<Option<Value>> {
+    let Some(layers) = input::read_compared(config, records, run)? else {
+        return Ok(None);
+    };
+    let threshold = config.compare.as_ref().map_or(0.5, |c| c.2);
+    let polygons: Vec<Vec<geo_types::MultiPolygon<f64>>> =
+        layers.iter().map(|l| l.polygons.clone()).collect();
+    let comparison = overlap::compare(&polygons, threshold);
+    let name = run.layer_name("clusters");
+    output::write_clusters(run, &name, &layers, &comparison)?;
+    Ok(Some(output::comparison_json(&layers, &comparison, &name)))
 }

@@ -229,6 +229,8 @@ pub struct Found<'a> {
     pub areas: Option<&'a Areas>,
     /// Records outside every area.
     pub outside: u64,
+    /// The comparison of cluster layers.
+    pub comparison: Option<Value>,
 }
 
 /// The summary of the run.
@@ -270,9 +272,83 @@ pub fn summary(config: &Config, records: &Records, found: &Found) -> Value {
         "areas": found.areas.map(|a| a.layer.fids.len()),
         "records_outside_areas": found.areas.map(|_| found.outside),
         "min_records": config.min_records,
+        "comparison": found.comparison,
         "methods": "Cohen 1960 kappa; Cohen 1968 weighted kappa; standard errors Fleiss, Cohen & Everitt 1969; \
             Fleiss 1971; Krippendorff 2004 ordinal alpha; Wilson 1927 intervals; consensus ties by reference \
             accuracy, posterior after Dawid & Skene 1979; corrected shares by matrix inversion with delta-method \
             variance (Buonaccorsi 2010, ch. 3)",
+    })
+}
+
+/// Writes the compared features as polygon layer `name` (the records' CRS): source_layer,
+/// source_fid, best_jaccard_<layer> per compared layer, matched_layers, found_under_all,
+/// labeller_specific. Returns the rows written.
+///
+/// # Errors
+/// Staging failures.
+pub fn write_clusters(
+    run: &mut Run,
+    name: &str,
+    layers: &[stance_core::gpkg::read::PolygonLayer],
+    comparison: &crate::overlap::Comparison,
+) -> Result<u64> {
+    let mut fields = vec![
+        FieldDef::new("source_layer", FieldKind::Text),
+        FieldDef::new("source_fid", FieldKind::Integer),
+    ];
+    fields.extend(layers.iter().map(|l| {
+        FieldDef::new(
+            &format!("best_jaccard_{}", snake(&l.layer)),
+            FieldKind::Real,
+        )
+    }));
+    for f in ["matched_layers", "found_under_all", "labeller_specific"] {
+        fields.push(FieldDef::new(f, FieldKind::Integer));
+    }
+    let Some(srs) = layers.first().map(|l| &l.srs) else {
+        return Ok(0);
+    };
+    let others = layers.len() - 1;
+    let mut writer =
+        run.output()
+            .create_vector(name, GeometryKind::MultiPolygon, Some(srs), &fields)?;
+    for f in &comparison.features {
+        let layer = &layers[f.layer];
+        let mut values = vec![
+            FieldData::Text(&layer.layer),
+            FieldData::Integer(layer.fids[f.index]),
+        ];
+        values.extend(f.best.iter().map(|&v| FieldData::Real(v)));
+        values.push(FieldData::Integer(f.matched_in as i64));
+        values.push(FieldData::Integer(i64::from(f.matched_in == others)));
+        values.push(FieldData::Integer(i64::from(f.matched_in == 0)));
+        writer.add(Shape::MultiPolygon(&layer.polygons[f.index]), &values)?;
+    }
+    writer.finish()
+}
+
+/// The comparison's part of the summary.
+pub fn comparison_json(
+    layers: &[stance_core::gpkg::read::PolygonLayer],
+    comparison: &crate::overlap::Comparison,
+    layer: &str,
+) -> Value {
+    let others = layers.len().saturating_sub(1);
+    let count = |pick: &dyn Fn(usize) -> bool| {
+        comparison
+            .features
+            .iter()
+            .filter(|f| pick(f.matched_in))
+            .count()
+    };
+    json!({
+        "layer": layer,
+        "method": "Jaccard (1912) index of areas in the working CRS",
+        "pairs": comparison.pairs.iter().map(|(a, b, j)| json!({
+            "layers": [layers[*a].layer, layers[*b].layer], "jaccard_of_regions": j,
+        })).collect::<Vec<_>>(),
+        "features": comparison.features.len(),
+        "found_under_all": count(&|m| m == others),
+        "labeller_specific": count(&|m| m == 0),
     })
 }

@@ -73,6 +73,20 @@ pub struct LabelsParams {
     #[arg(long, value_name = "FIELD")]
     pub correct_field: Option<String>,
 
+    /// Two or more polygon layers to compare (e.g. the clusters or tolerance regions found with
+    /// each label field by other runs), comma-separated: the Jaccard index of their regions, and
+    /// which features are found under every labeller or under only one.
+    #[arg(long, value_name = "LAYER,LAYER,…")]
+    pub compare_layers: Option<String>,
+
+    /// GeoPackage holding the --compare-layers (default: --input).
+    #[arg(long, value_name = "FILE")]
+    pub compare_file: Option<PathBuf>,
+
+    /// Jaccard index from which a feature counts as found again in another compared layer.
+    #[arg(long, value_name = "INDEX", default_value_t = 0.5)]
+    pub match_jaccard: f64,
+
     /// Further fields of the point layer copied (as text) to the records layer; no other field
     /// of the input (texts, authors) is carried.
     #[arg(long, value_name = "FIELD,…")]
@@ -104,6 +118,8 @@ pub struct Config {
     pub correct: Option<usize>,
     /// Fields kept on the records layer.
     pub keep: Vec<String>,
+    /// Layers compared, their file (None: --input), and the matching threshold.
+    pub compare: Option<(Vec<String>, Option<PathBuf>, f64)>,
 }
 
 fn list(text: &str) -> Vec<String> {
@@ -180,6 +196,7 @@ impl LabelsParams {
                 format!("'{k}' is a label or reference field, already written as a class"),
             ));
         }
+        let compare = self.compare()?;
         let correct = self
             .correct_field
             .as_ref()
@@ -200,6 +217,7 @@ impl LabelsParams {
             min_records: self.min_records,
             correct,
             keep,
+            compare,
             labels,
         })
     }
@@ -222,4 +240,36 @@ fn correct_index(params: &LabelsParams, labels: &[String], field: &str) -> Resul
             ),
         )
     })
+}
+
+impl LabelsParams {
+    /// `--compare-layers` with its file and threshold.
+    fn compare(&self) -> Result<Option<(Vec<String>, Option<PathBuf>, f64)>> {
+        if !(self.match_jaccard > 0.0 && self.match_jaccard <= 1.0) {
+            return Err(Error::argument(
+                "--match-jaccard",
+                format!("{} is not in (0, 1]", self.match_jaccard),
+            ));
+        }
+        let Some(text) = &self.compare_layers else {
+            if self.compare_file.is_some() {
+                return Err(Error::argument("--compare-file", "needs --compare-layers"));
+            }
+            return Ok(None);
+        };
+        let layers = list(text);
+        if layers.len() < 2 {
+            return Err(Error::argument(
+                "--compare-layers",
+                format!(
+                    "'{text}' names fewer than two layers; expected two or more, comma-separated"
+                ),
+            ));
+        }
+        Ok(Some((
+            layers,
+            self.compare_file.clone(),
+            self.match_jaccard,
+        )))
+    }
 }
