@@ -260,3 +260,152 @@ fn fewer_than_two_label_fields_is_refused_with_one_line() {
     .usage_error(&["author_id", "unknown stance values"]);
     assert!(!dir.join("x.gpkg").exists());
 }
+
+/// Around Saltrenne (a town far from every planted zone) a third classifier `label_c`, a copy of
+/// classifier A, calls half of A's non-oppose records (by a fixed hash of the fid) "oppose": a
+/// zone created only by one labeller's bias. The fids it changed.
+fn plant_biased_labeller(path: &Path) -> Vec<i64> {
+    let connection = rusqlite::Connection::open(path).expect("open copy");
+    // The layer's update triggers call the GeoPackage's ST_ functions.
+    stance_core::gpkg::blob::register_functions(&connection).expect("ST_ functions");
+    connection
+        .execute_batch(
+            "ALTER TABLE veldmark_records ADD COLUMN label_c TEXT;
+             UPDATE veldmark_records SET label_c = label_a;",
+        )
+        .expect("add label_c");
+    let box_sql = "SELECT id FROM rtree_veldmark_records_geom \
+         WHERE minx BETWEEN -139.98 AND -139.82 AND miny BETWEEN 34.64 AND 34.76";
+    let changed: Vec<i64> = {
+        let sql = format!(
+            "SELECT fid FROM veldmark_records WHERE label_a <> 'oppose' \
+             AND (fid * 2654435761) % 100 < 50 AND fid IN ({box_sql})"
+        );
+        let mut statement = connection.prepare(&sql).expect("prepare");
+        let fids = statement.query_map([], |r| r.get(0)).expect("query");
+        fids.map(|f| f.expect("fid")).collect()
+    };
+    for fid in &changed {
+        connection
+            .execute(
+                "UPDATE veldmark_records SET label_c = 'oppose' WHERE fid = ?1",
+                [fid],
+            )
+            .expect("bias");
+    }
+    changed
+}
+
+/// Clusters that survive the labeller: the ordinal scan (stance-scan) run with the truth, both
+/// classifiers and the biased one; stance-labels --compare-layers on the four cluster layers.
+/// A cluster of the truth is found again under every labeller (Jaccard ≥ 0.5 with a cluster
+/// leaning the same way), and the biased
+/// labeller's zone is a cluster matched in no other layer, made of the records it changed.
+#[test]
+fn a_planted_zone_survives_every_labeller_and_a_biased_zone_is_labeller_specific() {
+    let dir = out_dir("labels_robustness");
+    let input = dir.join("in.gpkg");
+    let _ = std::fs::remove_file(&input);
+    std::fs::copy(sample_gpkg(), &input).expect("copy sample");
+    let changed = plant_biased_labeller(&input);
+    assert!(changed.len() > 150, "{} records changed", changed.len());
+    let fields = ["stance", "label_a", "label_b", "label_c"];
+    for field in fields {
+        let name = format!("scan_{field}");
+        run_in(
+            &dir,
+            "stance-scan",
+            &[
+                "--input",
+                "in.gpkg",
+                "--layer",
+                "veldmark_records",
+                "--stance-field",
+                field,
+                "--model",
+                "ordinal",
+                "--toward",
+                "both",
+                "--max-radius-m",
+                "12000",
+                "--centres-cell-m",
+                "2000",
+                "--replicates",
+                "39",
+                "--report-p",
+                "0.05",
+                "--output",
+                "clusters.gpkg",
+                "--name",
+                &name,
+                "-q",
+            ],
+        )
+        .ok();
+    }
+    let layers: Vec<String> = fields
+        .iter()
+        .map(|f| format!("scan_{f}_clusters"))
+        .collect();
+    let summary = run_in(
+        &dir,
+        "stance-labels",
+        &[
+            "--input",
+            "in.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--label-fields",
+            "label_a,label_b,label_c",
+            "--compare-layers",
+            &layers.join(","),
+            "--compare-file",
+            "clusters.gpkg",
+            "--compare-side-field",
+            "leans_to",
+            "--output",
+            "clusters.gpkg",
+            "--name",
+            "robust",
+            "-q",
+        ],
+    )
+    .ok();
+    assert!(
+        summary["results"]["comparison"]["found_under_all"]
+            .as_u64()
+            .expect("count")
+            >= 1
+    );
+    let path = dir.join("clusters.gpkg");
+    let specific = rows(
+        &path,
+        "SELECT source_fid FROM robust_clusters \
+         WHERE source_layer = 'scan_label_c_clusters' AND labeller_specific = 1",
+    );
+    let changed: std::collections::HashSet<i64> = changed.into_iter().collect();
+    let biased_zone = specific.iter().any(|r| {
+        let members = rows(
+            &path,
+            &format!(
+                "SELECT feature_id FROM scan_label_c_members WHERE cluster_no = {}",
+                r[0]
+            ),
+        );
+        let hit = members
+            .iter()
+            .filter(|m| changed.contains(&m[0].parse::<i64>().expect("fid")))
+            .count();
+        !members.is_empty() && hit * 5 >= members.len()
+    });
+    assert!(
+        biased_zone,
+        "no labeller-specific cluster of label_c holds the changed records: {specific:?}"
+    );
+    let truth_found = rows(
+        &path,
+        "SELECT count(*) FROM robust_clusters \
+         WHERE source_layer = 'scan_stance_clusters' AND found_under_all = 1",
+    );
+    assert_ne!(truth_found[0][0], "0");
+}

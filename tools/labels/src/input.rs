@@ -170,14 +170,19 @@ pub fn read_compared(
     records: &Records,
     run: &mut Run,
 ) -> Result<Option<Vec<PolygonLayer>>> {
-    let Some((names, file, _)) = &config.compare else {
+    let Some(compare) = &config.compare else {
         return Ok(None);
     };
-    let path = file.clone().unwrap_or_else(|| records.path.clone());
+    let path = compare.file.clone().unwrap_or_else(|| records.path.clone());
+    let wants: Vec<(&str, FieldWant)> = compare
+        .side
+        .iter()
+        .map(|f| (f.as_str(), FieldWant::Text))
+        .collect();
     let mut layers = Vec::new();
-    for name in names {
-        let layer =
-            read::read_polygons(&path, Some(name), &[], PolygonCrs::Into(&records.layer.srs))?;
+    for name in &compare.layers {
+        let target = PolygonCrs::Into(&records.layer.srs);
+        let layer = read::read_polygons(&path, Some(name), &wants, target)?;
         if path == records.path {
             run.note_input_layer(&layer.layer);
         } else {

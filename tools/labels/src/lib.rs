@@ -51,7 +51,11 @@ impl Tool for Labels {
         and each pair's kappa (at least --min-records records); with --correct-field, the class \
         shares of that labeller corrected for its misclassification by the matrix-inversion \
         estimator with delta-method intervals (Buonaccorsi 2010, ch. 3), projected onto the simplex \
-        and flagged where clamping or an ill-conditioned matrix makes the correction unstable.";
+        and flagged where clamping or an ill-conditioned matrix makes the correction unstable. With \
+        --compare-layers (e.g. the clusters or tolerance regions found by other runs with each label \
+        field), the Jaccard (1912) index of their regions, and per feature its best match in every \
+        other layer (optionally only features leaning the same way): found under every labeller, \
+        or labeller-specific (matched nowhere).";
     const DEFAULT_NAME: &'static str = "labels";
     const INPUT: InputUse = InputUse::Required;
     const INPUT_DESCRIPTION: &'static str =
@@ -75,6 +79,15 @@ impl Tool for Labels {
                     count_total, all_agree_share, kappa_<a>_<b> per pair and, with --correct-field, \
                     share_<class>_raw, share_<class>_corrected, share_<class>_lower, \
                     share_<class>_upper, correction_clamped, correction_unstable.",
+                media_type: GEOPACKAGE_MEDIA_TYPE,
+            },
+            OutputDecl {
+                id: "clusters",
+                title: "Compared clusters and how many labellers find them",
+                description: "Polygon layer <name>_clusters (with --compare-layers; working CRS): every \
+                    feature of the compared layers with source_layer, source_fid, \
+                    best_jaccard_<layer> per compared layer, matched_layers, found_under_all, \
+                    labeller_specific.",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },
         ]
@@ -179,10 +192,17 @@ fn compare_clusters(config: &Config, records: &Records, run: &mut Run) -> Result
     let Some(layers) = input::read_compared(config, records, run)? else {
         return Ok(None);
     };
-    let threshold = config.compare.as_ref().map_or(0.5, |c| c.2);
+    let threshold = config.compare.as_ref().map_or(0.5, |c| c.threshold);
     let polygons: Vec<Vec<geo_types::MultiPolygon<f64>>> =
         layers.iter().map(|l| l.polygons.clone()).collect();
-    let comparison = overlap::compare(&polygons, threshold);
+    let side = config.compare.as_ref().and_then(|c| c.side.as_ref());
+    let sides: Option<Vec<Vec<Option<String>>>> = side.map(|_| {
+        let texts = |l: &stance_core::gpkg::read::PolygonLayer| {
+            l.columns.first().map(|c| c.as_texts()).unwrap_or_default()
+        };
+        layers.iter().map(texts).collect()
+    });
+    let comparison = overlap::compare(&polygons, sides.as_deref(), threshold);
     let name = run.layer_name("clusters");
     output::write_clusters(run, &name, &layers, &comparison)?;
     Ok(Some(output::comparison_json(&layers, &comparison, &name)))

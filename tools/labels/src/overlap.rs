@@ -48,8 +48,16 @@ pub struct Comparison {
 }
 
 /// Compares `layers` (all in one CRS); a feature is matched in another layer when its Jaccard
-/// index with one of that layer's features is at least `threshold`.
-pub fn compare(layers: &[Vec<MultiPolygon<f64>>], threshold: f64) -> Comparison {
+/// index with one of that layer's features is at least `threshold`. With `sides` (a label per
+/// feature, e.g. the side a cluster leans to), only features with the same label are compared.
+pub fn compare(
+    layers: &[Vec<MultiPolygon<f64>>],
+    sides: Option<&[Vec<Option<String>>]>,
+    threshold: f64,
+) -> Comparison {
+    let same = |a: (usize, usize), b: (usize, usize)| {
+        sides.is_none_or(|s| s[a.0].get(a.1) == s[b.0].get(b.1))
+    };
     let unions: Vec<MultiPolygon<f64>> = layers.iter().map(|l| union_all(l)).collect();
     let mut pairs = Vec::new();
     for a in 0..layers.len() {
@@ -67,7 +75,9 @@ pub fn compare(layers: &[Vec<MultiPolygon<f64>>], threshold: f64) -> Comparison 
                     }
                     layers[other]
                         .iter()
-                        .map(|g| jaccard(feature, g))
+                        .enumerate()
+                        .filter(|(gi, _)| same((li, index), (other, *gi)))
+                        .map(|(_, g)| jaccard(feature, g))
                         .filter(|v| v.is_finite())
                         .fold(0.0, f64::max)
                 })
@@ -116,7 +126,7 @@ mod tests {
             vec![shared.clone()],
             vec![square(0.0, 0.5, 10.0), square(50.0, 50.0, 5.0)],
         ];
-        let got = compare(&layers, 0.5);
+        let got = compare(&layers, None, 0.5);
         let only = got
             .features
             .iter()
@@ -128,5 +138,16 @@ mod tests {
         assert_eq!(got.pairs.len(), 3);
         // Unions of layers 0 and 1: 95 / 105.
         assert_relative_eq!(got.pairs[0].2, 95.0 / 105.0, epsilon = 1e-9);
+        // With sides: the same place leaning the other way is not the same finding.
+        let side = |s: &str| Some(s.to_owned());
+        let sides = vec![
+            vec![side("oppose")],
+            vec![side("support")],
+            vec![side("support"), side("oppose")],
+        ];
+        let got = compare(&layers, Some(&sides), 0.5);
+        let first = got.features.iter().find(|f| f.layer == 0).expect("feature");
+        assert_eq!(first.matched_in, 0);
+        assert_relative_eq!(first.best[1], 0.0);
     }
 }

@@ -83,6 +83,11 @@ pub struct LabelsParams {
     #[arg(long, value_name = "FILE")]
     pub compare_file: Option<PathBuf>,
 
+    /// Field of the --compare-layers holding the side a feature leans to (e.g. leans_to of the
+    /// scan's clusters): only features with the same value are matched.
+    #[arg(long, value_name = "FIELD")]
+    pub compare_side_field: Option<String>,
+
     /// Jaccard index from which a feature counts as found again in another compared layer.
     #[arg(long, value_name = "INDEX", default_value_t = 0.5)]
     pub match_jaccard: f64,
@@ -91,6 +96,19 @@ pub struct LabelsParams {
     /// of the input (texts, authors) is carried.
     #[arg(long, value_name = "FIELD,…")]
     pub keep_fields: Option<String>,
+}
+
+/// What `--compare-layers` compares.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Compare {
+    /// The layers.
+    pub layers: Vec<String>,
+    /// Their file (None: --input).
+    pub file: Option<PathBuf>,
+    /// The field of the side of each feature.
+    pub side: Option<String>,
+    /// Jaccard index of a match.
+    pub threshold: f64,
 }
 
 /// The checked parameters.
@@ -118,8 +136,8 @@ pub struct Config {
     pub correct: Option<usize>,
     /// Fields kept on the records layer.
     pub keep: Vec<String>,
-    /// Layers compared, their file (None: --input), and the matching threshold.
-    pub compare: Option<(Vec<String>, Option<PathBuf>, f64)>,
+    /// Layers compared (see [`Compare`]).
+    pub compare: Option<Compare>,
 }
 
 fn list(text: &str) -> Vec<String> {
@@ -244,7 +262,7 @@ fn correct_index(params: &LabelsParams, labels: &[String], field: &str) -> Resul
 
 impl LabelsParams {
     /// `--compare-layers` with its file and threshold.
-    fn compare(&self) -> Result<Option<(Vec<String>, Option<PathBuf>, f64)>> {
+    fn compare(&self) -> Result<Option<Compare>> {
         if !(self.match_jaccard > 0.0 && self.match_jaccard <= 1.0) {
             return Err(Error::argument(
                 "--match-jaccard",
@@ -252,8 +270,11 @@ impl LabelsParams {
             ));
         }
         let Some(text) = &self.compare_layers else {
-            if self.compare_file.is_some() {
-                return Err(Error::argument("--compare-file", "needs --compare-layers"));
+            if self.compare_file.is_some() || self.compare_side_field.is_some() {
+                return Err(Error::argument(
+                    "--compare-layers",
+                    "is needed by --compare-file and --compare-side-field",
+                ));
             }
             return Ok(None);
         };
@@ -266,10 +287,11 @@ impl LabelsParams {
                 ),
             ));
         }
-        Ok(Some((
+        Ok(Some(Compare {
             layers,
-            self.compare_file.clone(),
-            self.match_jaccard,
-        )))
+            file: self.compare_file.clone(),
+            side: self.compare_side_field.clone(),
+            threshold: self.match_jaccard,
+        }))
     }
 }
