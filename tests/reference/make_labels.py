@@ -14,7 +14,8 @@ fixed numpy seed and stored, and
   - per-class precision, recall, F1 of labeller 0 and 1 against the truth column from
     scikit-learn precision_recall_fscore_support, with Wilson 95 % intervals of precision and
     recall from statsmodels proportion_confint(method='wilson').
-Run: python3 -m venv /tmp/labels-venv && /tmp/labels-venv/bin/pip install \
+Run: make reference (.venv-reference, pinned in requirements-reference.txt), or alone:
+     python3 -m venv /tmp/labels-venv && /tmp/labels-venv/bin/pip install \
        scikit-learn==1.5.2 statsmodels==0.14.4 krippendorff==0.8.1 numpy==2.1.3
      /tmp/labels-venv/bin/python tests/reference/make_labels.py
 """
