@@ -110,6 +110,9 @@ impl Tool for Labels {
             .correct
             .zip(scores.as_ref())
             .map(|(j, s)| Misclassification::new(&s[j].matrix));
+        if correction.as_ref().is_some_and(|m| m.inverse.is_none()) {
+            run.log("stance-labels: the misclassification matrix of --correct-field is singular (or a class has no hand-coded record); no shares are corrected");
+        }
         run.progress.set(0.5);
         run.progress.phase("areas");
         let (per_area, outside) = per_area(&config, &records, areas.as_ref(), correction.as_ref());
