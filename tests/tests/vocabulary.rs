@@ -18,6 +18,7 @@ const TOOLS: &[&str] = &[
     "stance-weights",
     "stance-rates",
     "stance-moran",
+    "stance-local",
     "stance-render",
 ];
 

@@ -38,6 +38,7 @@ pub fn tools() -> Vec<Entry> {
         entry::<stance_weights::Weights>(),
         entry::<stance_rates::Rates>(),
         entry::<stance_moran::Moran>(),
+        entry::<stance_local::Local>(),
         entry::<stance_render::Render>(),
     ]
 }
