@@ -30,7 +30,11 @@ fn reference(name: &str) -> Value {
 }
 
 fn numbers(v: &Value) -> Vec<Option<f64>> {
-    v.as_array().expect("array").iter().map(Value::as_f64).collect()
+    v.as_array()
+        .expect("array")
+        .iter()
+        .map(Value::as_f64)
+        .collect()
 }
 
 fn num(v: &Value, key: &str) -> f64 {
@@ -67,7 +71,9 @@ fn fixture(dir: &Path, median: f64) -> PathBuf {
         "ALTER TABLE nc ADD COLUMN share_nw REAL".to_owned(),
         "UPDATE nc SET share_nw = CAST(NWBIR79 AS REAL) / BIR79".to_owned(),
         "ALTER TABLE nc ADD COLUMN label TEXT".to_owned(),
-        format!("UPDATE nc SET label = CASE WHEN rate79 > {median:e} THEN 'Oppose' ELSE 'support' END"),
+        format!(
+            "UPDATE nc SET label = CASE WHEN rate79 > {median:e} THEN 'Oppose' ELSE 'support' END"
+        ),
     ] {
         dataset
             .execute_sql(&statement, None, gdal::vector::sql::Dialect::DEFAULT)
@@ -121,9 +127,7 @@ fn hypergeometric_upper(total: u64, good: u64, k: u64, c: u64) -> f64 {
         (1..=r).map(|j| ((n - r + j) as f64 / j as f64).ln()).sum()
     };
     (c..=k.min(good))
-        .map(|m| {
-            (ln_choose(good, m) + ln_choose(total - good, k - m) - ln_choose(total, k)).exp()
-        })
+        .map(|m| (ln_choose(good, m) + ln_choose(total - good, k - m) - ln_choose(total, k)).exp())
         .sum()
 }
 
@@ -149,10 +153,21 @@ fn join_counts_match_esda_and_spdep() {
         &dir,
         &input,
         "uni",
-        &["--statistic", "join-count", "--field", "rate79", "--rule", &above],
+        &[
+            "--statistic",
+            "join-count",
+            "--field",
+            "rate79",
+            "--rule",
+            &above,
+        ],
     );
     let out = dir.join("out.gpkg");
-    let got = columns(&out, "uni", &["join_count", "p_permutation", "tested", "neighbours"]);
+    let got = columns(
+        &out,
+        "uni",
+        &["join_count", "p_permutation", "tested", "neighbours"],
+    );
     // esda Join_Counts_Local and spdep local_joincount_uni: the counts, exactly.
     let want = numbers(&esda["local_univariate_high"]["join_count"]);
     let want_r = numbers(&spdep["local_uni_join_count"]);
@@ -179,12 +194,30 @@ fn join_counts_match_esda_and_spdep() {
     // Global join counts: counts from esda Join_Counts, moments from spdep joincount.multi.
     let g = &summary["results"]["local"]["global_join_counts"][0];
     let e = &esda["global_high"];
-    for (ours, theirs, multi) in [("bb", "bb", "multi_bb"), ("ww", "ww", "multi_ww"), ("bw", "bw", "multi_bw")] {
+    for (ours, theirs, multi) in [
+        ("bb", "bb", "multi_bb"),
+        ("ww", "ww", "multi_ww"),
+        ("bw", "bw", "multi_bw"),
+    ] {
         assert_eq!(num(&g[ours], "count"), num(e, theirs), "{ours} vs esda");
         let r = &spdep[multi];
-        assert_eq!(num(&g[ours], "count"), num(r, "statistic"), "{ours} vs spdep");
-        close(num(&g[ours], "expected"), num(r, "expected"), 1e-9, &format!("E {ours}"));
-        close(num(&g[ours], "variance"), num(r, "variance"), 1e-9, &format!("Var {ours}"));
+        assert_eq!(
+            num(&g[ours], "count"),
+            num(r, "statistic"),
+            "{ours} vs spdep"
+        );
+        close(
+            num(&g[ours], "expected"),
+            num(r, "expected"),
+            1e-9,
+            &format!("E {ours}"),
+        );
+        close(
+            num(&g[ours], "variance"),
+            num(r, "variance"),
+            1e-9,
+            &format!("Var {ours}"),
+        );
         close(num(&g[ours], "z"), num(r, "z"), 1e-9, &format!("z {ours}"));
     }
     // spdep joincount.test (non-free sampling, greater): the BB p-value.
@@ -195,10 +228,21 @@ fn join_counts_match_esda_and_spdep() {
         &dir,
         &input,
         "uni_class",
-        &["--statistic", "join-count", "--class-field", "label", "--class", "oppose"],
+        &[
+            "--statistic",
+            "join-count",
+            "--class-field",
+            "label",
+            "--class",
+            "oppose",
+        ],
     );
     let by_class = columns(&out, "uni_class", &["join_count", "p_permutation"]);
-    assert_eq!(by_class, got[..2].to_vec(), "class rule = threshold rule, same seed");
+    assert_eq!(
+        by_class,
+        got[..2].to_vec(),
+        "class rule = threshold rule, same seed"
+    );
 
     // Bivariate without co-location: high next to low (esda BJC) and high next to not-high
     // (spdep's BJC case needs z = 1 − x).
@@ -207,32 +251,73 @@ fn join_counts_match_esda_and_spdep() {
         &dir,
         &input,
         "bv",
-        &["--statistic", "join-count-bivariate", "--field", "rate79", "--rule", &above, "--rule-b", &low],
+        &[
+            "--statistic",
+            "join-count-bivariate",
+            "--field",
+            "rate79",
+            "--rule",
+            &above,
+            "--rule-b",
+            &low,
+        ],
     );
     let bv = columns(&out, "bv", &["join_count"]);
-    assert_eq!(bv[0], numbers(&esda["local_bivariate_high_low"]["join_count"]), "BJC vs esda");
+    assert_eq!(
+        bv[0],
+        numbers(&esda["local_bivariate_high_low"]["join_count"]),
+        "BJC vs esda"
+    );
     let not_high = format!("<= {median:e}");
     local(
         &dir,
         &input,
         "bv2",
-        &["--statistic", "join-count-bivariate", "--field", "rate79", "--rule", &above, "--rule-b", &not_high],
+        &[
+            "--statistic",
+            "join-count-bivariate",
+            "--field",
+            "rate79",
+            "--rule",
+            &above,
+            "--rule-b",
+            &not_high,
+        ],
     );
     let bv2 = columns(&out, "bv2", &["join_count"]);
-    assert_eq!(bv2[0], numbers(&spdep["local_bv_high_nothigh_join_count"]), "BJC vs spdep");
+    assert_eq!(
+        bv2[0],
+        numbers(&spdep["local_bv_high_nothigh_join_count"]),
+        "BJC vs spdep"
+    );
     // Co-location of high rates and a high non-white birth share.
     let share = format!("> {share_median:e}");
     local(
         &dir,
         &input,
         "clc",
-        &["--statistic", "co-location", "--field", "rate79", "--rule", &above, "--field-b", "share_nw", "--rule-b", &share],
+        &[
+            "--statistic",
+            "co-location",
+            "--field",
+            "rate79",
+            "--rule",
+            &above,
+            "--field-b",
+            "share_nw",
+            "--rule-b",
+            &share,
+        ],
     );
     let clc = columns(&out, "clc", &["join_count"]);
     let c = &esda["local_colocation_high_nonwhite"];
     assert_eq!(clc[0], numbers(&c["join_count"]), "CLC vs esda BV");
     assert_eq!(clc[0], numbers(&c["join_count_mv"]), "CLC vs esda MV");
-    assert_eq!(clc[0], numbers(&spdep["local_clc_high_nonwhite_join_count"]), "CLC vs spdep");
+    assert_eq!(
+        clc[0],
+        numbers(&spdep["local_clc_high_nonwhite_join_count"]),
+        "CLC vs spdep"
+    );
 }
 
 #[test]
@@ -253,24 +338,60 @@ fn getis_ord_matches_esda_and_spdep() {
             &dir,
             &input,
             &name,
-            &["--statistic", statistic, "--field", "rate79", "--standardise", style],
+            &[
+                "--statistic",
+                statistic,
+                "--field",
+                "rate79",
+                "--standardise",
+                style,
+            ],
         );
-        let got = columns(&out, &name, &["g", "expected_g", "variance_g", "g_z", "p_permutation"]);
+        let got = columns(
+            &out,
+            &name,
+            &["g", "expected_g", "variance_g", "g_z", "p_permutation"],
+        );
         let e = &esda[key];
         let (g, z_r) = (numbers(&e["g"]), numbers(&spdep[r_key]));
         for i in 0..100 {
             let what = format!("{name} area {i}");
             // esda G_Local: the statistic (both styles).
-            close(got[0][i].expect("g"), g[i].expect("g"), 1e-12, &format!("{what}: G vs esda"));
+            close(
+                got[0][i].expect("g"),
+                g[i].expect("g"),
+                1e-12,
+                &format!("{what}: G vs esda"),
+            );
             // spdep localG (Ord & Getis 1995 moments, any weights): z.
-            close(got[3][i].expect("z"), z_r[i].expect("z"), 1e-9, &format!("{what}: z vs spdep"));
+            close(
+                got[3][i].expect("z"),
+                z_r[i].expect("z"),
+                1e-9,
+                &format!("{what}: z vs spdep"),
+            );
             if style == "binary" {
                 // esda's moments are the papers' for binary weights (with row-standardised
                 // weights esda uses W_i (n' − W_i) in place of n' S1_i − W_i², so only the
                 // statistic is compared there).
-                close(got[1][i].expect("E"), num_at(&e["expected"], i), 1e-9, &format!("{what}: E"));
-                close(got[2][i].expect("V"), num_at(&e["variance"], i), 1e-9, &format!("{what}: Var"));
-                close(got[3][i].expect("z"), num_at(&e["z"], i), 1e-9, &format!("{what}: z vs esda"));
+                close(
+                    got[1][i].expect("E"),
+                    num_at(&e["expected"], i),
+                    1e-9,
+                    &format!("{what}: E"),
+                );
+                close(
+                    got[2][i].expect("V"),
+                    num_at(&e["variance"], i),
+                    1e-9,
+                    &format!("{what}: Var"),
+                );
+                close(
+                    got[3][i].expect("z"),
+                    num_at(&e["z"], i),
+                    1e-9,
+                    &format!("{what}: z vs esda"),
+                );
             }
             // esda's pseudo p is one-sided (the smaller tail); ours is two-sided (twice it).
             // Where every neighbour's value is 0 (G = 0), esda's lower tail counts only draws
@@ -307,12 +428,28 @@ fn point_records_and_threads() {
             &input,
             &name,
             &[
-                "--layer", "veldmark_records", "--statistic", "join-count", "--class", "oppose",
-                "--method", "knn", "--k", "6", "--permutations", "199", "--threads", threads,
+                "--layer",
+                "veldmark_records",
+                "--statistic",
+                "join-count",
+                "--class",
+                "oppose",
+                "--method",
+                "knn",
+                "--k",
+                "6",
+                "--permutations",
+                "199",
+                "--threads",
+                threads,
             ],
         );
         assert_eq!(summary["results"]["places"], "points");
-        outputs.push(columns(&dir.join("out.gpkg"), &name, &["attribute", "join_count", "p_permutation", "tested"]));
+        outputs.push(columns(
+            &dir.join("out.gpkg"),
+            &name,
+            &["attribute", "join_count", "p_permutation", "tested"],
+        ));
     }
     assert_eq!(outputs[0], outputs[1], "results depend on --threads");
     let got = &outputs[0];
@@ -337,10 +474,44 @@ fn bad_arguments_give_one_line() {
         run_in(&dir, "stance-local", &args)
     };
     run(&["--statistic", "join-count", "--field", "rate79"]).usage_error(&["--rule"]);
-    run(&["--statistic", "join-count", "--field", "rate79", "--rule", "about 3"]).usage_error(&["--rule", "operator"]);
+    run(&[
+        "--statistic",
+        "join-count",
+        "--field",
+        "rate79",
+        "--rule",
+        "about 3",
+    ])
+    .usage_error(&["--rule", "operator"]);
     run(&["--statistic", "gi", "--field", "nope"]).usage_error(&["nope"]);
-    run(&["--statistic", "join-count", "--class-field", "label", "--class", "maybe"]).usage_error(&["maybe"]);
-    run(&["--statistic", "join-count", "--class-field", "NAME", "--class", "oppose"]).usage_error(&["NAME", "unknown stance values"]);
-    run(&["--statistic", "join-count", "--class", "oppose", "--method", "knn", "--k", "4"]).usage_error(&["point"]);
+    run(&[
+        "--statistic",
+        "join-count",
+        "--class-field",
+        "label",
+        "--class",
+        "maybe",
+    ])
+    .usage_error(&["maybe"]);
+    run(&[
+        "--statistic",
+        "join-count",
+        "--class-field",
+        "NAME",
+        "--class",
+        "oppose",
+    ])
+    .usage_error(&["NAME", "unknown stance values"]);
+    run(&[
+        "--statistic",
+        "join-count",
+        "--class",
+        "oppose",
+        "--method",
+        "knn",
+        "--k",
+        "4",
+    ])
+    .usage_error(&["point"]);
     assert!(!dir.join("o.gpkg").exists());
 }

@@ -79,7 +79,9 @@ impl Input {
         match attribute {
             Attribute::Threshold { field, rule } => {
                 let Column::Real(values) = self.column(field)? else {
-                    return Err(Error::Failed(format!("field '{field}' was not read as numbers")));
+                    return Err(Error::Failed(format!(
+                        "field '{field}' was not read as numbers"
+                    )));
                 };
                 values
                     .iter()
@@ -88,14 +90,18 @@ impl Input {
                         Some(x) if x.is_finite() => Ok(rule.holds(*x)),
                         _ => Err(self.bad_field(
                             field,
-                            format!("feature {fid} has no finite value; the rule '{rule}' needs one"),
+                            format!(
+                                "feature {fid} has no finite value; the rule '{rule}' needs one"
+                            ),
                         )),
                     })
                     .collect()
             }
             Attribute::Class { field, class } => {
                 let Column::Text(column) = self.column(field)? else {
-                    return Err(Error::Failed(format!("field '{field}' was not read as text")));
+                    return Err(Error::Failed(format!(
+                        "field '{field}' was not read as text"
+                    )));
                 };
                 let by_code = classify_codes(classes, &column.values, &column.codes)
                     .map_err(|m| self.bad_field(field, m))?;
@@ -237,7 +243,10 @@ pub fn neighbours(
     };
     let refused = |e: weights::WeightsError| Error::argument("--method", e.to_string());
     let (neighbours, srs) = match &input.layer {
-        Layer::Areas(l) => (weights::build(&l.polygons, method, snap_m).map_err(refused)?, &l.srs),
+        Layer::Areas(l) => (
+            weights::build(&l.polygons, method, snap_m).map_err(refused)?,
+            &l.srs,
+        ),
         Layer::Points(p) => {
             let built = match method {
                 Method::KNearest(k) => weights::k_nearest(&p.x, &p.y, k),

@@ -42,7 +42,10 @@ pub fn factor_and_value(kind: JoinKind, x: &[bool], z: &[bool]) -> (Vec<bool>, V
     let n = x.len();
     let both = |i: usize| x[i] && z[i];
     match kind {
-        JoinKind::Univariate => (x.to_vec(), x.iter().map(|&a| f64::from(u8::from(a))).collect()),
+        JoinKind::Univariate => (
+            x.to_vec(),
+            x.iter().map(|&a| f64::from(u8::from(a))).collect(),
+        ),
         JoinKind::Bivariate => (
             (0..n).map(|i| x[i] && !z[i]).collect(),
             (0..n).map(|i| f64::from(u8::from(z[i] && !x[i]))).collect(),
@@ -68,7 +71,13 @@ pub fn local_join_counts(
     let n = x.len();
     let has_neighbours = |i: usize| !w.row(i).0.is_empty();
     let lag: Vec<f64> = (0..n)
-        .map(|i| if has_neighbours(i) { w.lag(i, &v) } else { f64::NAN })
+        .map(|i| {
+            if has_neighbours(i) {
+                w.lag(i, &v)
+            } else {
+                f64::NAN
+            }
+        })
         .collect();
     let join_count = (0..n)
         .map(|i| if factor[i] { lag[i] } else { 0.0 * lag[i] })
@@ -165,8 +174,7 @@ pub fn global_join_counts(x: &[bool], w: &SparseWeights) -> GlobalJoins {
     let variance_bw = 0.25
         * (2.0 * m.s1 * n1 * n2 / falling(n, 2)
             + (m.s2 - 2.0 * m.s1) * n1 * n2 * (n1 + n2 - 2.0) / falling(n, 3)
-            + 4.0 * (m.s0 * m.s0 + m.s1 - m.s2) * falling(n1, 2) * falling(n2, 2)
-                / falling(n, 4))
+            + 4.0 * (m.s0 * m.s0 + m.s1 - m.s2) * falling(n1, 2) * falling(n2, 2) / falling(n, 4))
         - expected_bw * expected_bw;
     GlobalJoins {
         bb: same(bb / 2.0, n1),

@@ -123,7 +123,9 @@ impl Tool for Local {
             .copy_with_fields(&places.path, places.name(), &name, places.fids(), &extra)?;
         run.progress.set(1.0);
         run.log(output::log_line(&stats, &name));
-        Ok(output::summary(params, &config, &places, &links, &stats, &name))
+        Ok(output::summary(
+            params, &config, &places, &links, &stats, &name,
+        ))
     }
 }
 
@@ -140,7 +142,8 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
     let total = config.permutations as u64;
     let report = |done: usize| {
         let share = done as f64 / config.permutations.max(1) as f64;
-        run.progress.set_counted(0.2 + 0.7 * share, done as u64, total);
+        run.progress
+            .set_counted(0.2 + 0.7 * share, done as u64, total);
     };
     match &config.analysis {
         Analysis::Joins { kind, a, b } => {
@@ -151,7 +154,8 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
                 .transpose()?;
             let w = links.neighbours.standardise(Standardisation::Binary);
             let zz = z.clone().unwrap_or_else(|| vec![false; x.len()]);
-            let local = joincount::local_join_counts(*kind, &x, &zz, &w, replicates(config), &report);
+            let local =
+                joincount::local_join_counts(*kind, &x, &zz, &w, replicates(config), &report);
             let mut global = vec![joincount::global_join_counts(&x, &w)];
             if *kind != JoinKind::Univariate {
                 global.push(joincount::global_join_counts(&zz, &w));
@@ -161,18 +165,40 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
                 .map(|i| {
                     let p = adjusted[i];
                     (local.tested[i] && p.is_finite()).then(|| {
-                        if p <= config.alpha { "cluster" } else { "not significant" }.to_owned()
+                        if p <= config.alpha {
+                            "cluster"
+                        } else {
+                            "not significant"
+                        }
+                        .to_owned()
                     })
                 })
                 .collect();
-            Ok(Stats::Joins { x, z, local, adjusted, cluster, global })
+            Ok(Stats::Joins {
+                x,
+                z,
+                local,
+                adjusted,
+                cluster,
+                global,
+            })
         }
         Analysis::Getis { star, field, row } => {
             let values = places.values(field)?;
             let (w, self_weights) = getis_weights(links, *star, *row);
-            let local = getis_ord::local_g(&values, &w, self_weights.as_deref(), replicates(config), &report)
-                .map_err(|e| g_error(places, field, e))?;
-            let p = if config.permutations > 0 { &local.p_permutation } else { &local.p_analytic };
+            let local = getis_ord::local_g(
+                &values,
+                &w,
+                self_weights.as_deref(),
+                replicates(config),
+                &report,
+            )
+            .map_err(|e| g_error(places, field, e))?;
+            let p = if config.permutations > 0 {
+                &local.p_permutation
+            } else {
+                &local.p_analytic
+            };
             let adjusted = adjust(p, config.adjustment);
             let hot_cold = (0..values.len())
                 .map(|i| {
@@ -180,7 +206,13 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
                         .map(str::to_owned)
                 })
                 .collect();
-            Ok(Stats::Getis { values, local, self_weights, adjusted, hot_cold })
+            Ok(Stats::Getis {
+                values,
+                local,
+                self_weights,
+                adjusted,
+                hot_cold,
+            })
         }
     }
 }
@@ -191,13 +223,23 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
 fn getis_weights(links: &Links, star: bool, row: bool) -> (SparseWeights, Option<Vec<f64>>) {
     let lists = &links.neighbours.lists;
     if !star {
-        let style = if row { Standardisation::Row } else { Standardisation::Binary };
+        let style = if row {
+            Standardisation::Row
+        } else {
+            Standardisation::Binary
+        };
         return (links.neighbours.standardise(style), None);
     }
     let mut w = links.neighbours.standardise(Standardisation::Binary);
     let own: Vec<f64> = lists
         .iter()
-        .map(|l| if row { 1.0 / (l.len() as f64 + 1.0) } else { 1.0 })
+        .map(|l| {
+            if row {
+                1.0 / (l.len() as f64 + 1.0)
+            } else {
+                1.0
+            }
+        })
         .collect();
     if row {
         for (i, scale) in own.iter().enumerate() {

@@ -27,7 +27,14 @@ fn text(v: &[Option<String>]) -> ExtraColumn {
 pub fn fields(_places: &Input, links: &Links, stats: &Stats) -> Vec<(FieldDef, ExtraColumn)> {
     let f = |name: &str, kind| FieldDef::new(name, kind);
     let mut out = match stats {
-        Stats::Joins { x, z, local, adjusted, cluster, .. } => {
+        Stats::Joins {
+            x,
+            z,
+            local,
+            adjusted,
+            cluster,
+            ..
+        } => {
             let mut v = vec![(f("attribute", FieldKind::Integer), flag(x))];
             if let Some(z) = z {
                 v.push((f("attribute_b", FieldKind::Integer), flag(z)));
@@ -35,20 +42,32 @@ pub fn fields(_places: &Input, links: &Links, stats: &Stats) -> Vec<(FieldDef, E
             v.extend([
                 (f("join_count", FieldKind::Real), real(&local.join_count)),
                 (f("tested", FieldKind::Integer), flag(&local.tested)),
-                (f("p_permutation", FieldKind::Real), real(&local.p_permutation)),
+                (
+                    f("p_permutation", FieldKind::Real),
+                    real(&local.p_permutation),
+                ),
                 (f("p_adjusted", FieldKind::Real), real(adjusted)),
                 (f("cluster", FieldKind::Text), text(cluster)),
             ]);
             v
         }
-        Stats::Getis { values, local, adjusted, hot_cold, .. } => vec![
+        Stats::Getis {
+            values,
+            local,
+            adjusted,
+            hot_cold,
+            ..
+        } => vec![
             (f("value_analysed", FieldKind::Real), real(values)),
             (f("g", FieldKind::Real), real(&local.g)),
             (f("expected_g", FieldKind::Real), real(&local.expected)),
             (f("variance_g", FieldKind::Real), real(&local.variance)),
             (f("g_z", FieldKind::Real), real(&local.z)),
             (f("g_p_analytic", FieldKind::Real), real(&local.p_analytic)),
-            (f("p_permutation", FieldKind::Real), real(&local.p_permutation)),
+            (
+                f("p_permutation", FieldKind::Real),
+                real(&local.p_permutation),
+            ),
             (f("p_adjusted", FieldKind::Real), real(adjusted)),
             (f("hot_cold", FieldKind::Text), text(hot_cold)),
         ],
@@ -92,7 +111,11 @@ fn finite(x: f64) -> Value {
 }
 
 fn moments(m: &JoinMoments, upper: bool) -> Value {
-    let p = if upper { upper_tail(m.z) } else { upper_tail(-m.z) };
+    let p = if upper {
+        upper_tail(m.z)
+    } else {
+        upper_tail(-m.z)
+    };
     json!({
         "count": m.count,
         "expected": finite(m.expected),
@@ -151,7 +174,15 @@ pub fn summary(
         "alpha": params.alpha,
     });
     let detail = match (stats, &config.analysis) {
-        (Stats::Joins { local, cluster, global: g, .. }, Analysis::Joins { a, b, .. }) => {
+        (
+            Stats::Joins {
+                local,
+                cluster,
+                global: g,
+                ..
+            },
+            Analysis::Joins { a, b, .. },
+        ) => {
             let mut globals = vec![global(&g[0], a.describe())];
             if let (Some(g1), Some(b)) = (g.get(1), b) {
                 globals.push(global(g1, b.describe()));
@@ -167,7 +198,15 @@ pub fn summary(
                 "global_join_counts": globals,
             })
         }
-        (Stats::Getis { local, self_weights, hot_cold, .. }, Analysis::Getis { star, field, row }) => {
+        (
+            Stats::Getis {
+                local,
+                self_weights,
+                hot_cold,
+                ..
+            },
+            Analysis::Getis { star, field, row },
+        ) => {
             json!({
                 "field": field,
                 "star": star,

@@ -283,7 +283,12 @@ impl LocalParams {
             Places::Areas => self.class_field.clone(),
         };
         let a = attribute(
-            ("--field", self.field.as_ref(), self.rule.as_deref(), "--rule"),
+            (
+                "--field",
+                self.field.as_ref(),
+                self.rule.as_deref(),
+                "--rule",
+            ),
             class_field.as_ref(),
             self.class.as_deref(),
             "--class",
@@ -325,7 +330,10 @@ impl LocalParams {
             ));
         }
         let field = self.field.clone().ok_or_else(|| {
-            Error::argument("--field", "missing; name the numeric field (values ≥ 0) of Gi / Gi*")
+            Error::argument(
+                "--field",
+                "missing; name the numeric field (values ≥ 0) of Gi / Gi*",
+            )
         })?;
         Ok(Analysis::Getis {
             star: self.statistic == StatisticArg::GiStar,
@@ -436,35 +444,79 @@ mod tests {
 
     #[test]
     fn attribute_rules_and_places() {
-        let c = check(&["--statistic", "join-count", "--field", "share", "--rule", "> 0.5"])
-            .expect("valid");
+        let c = check(&[
+            "--statistic",
+            "join-count",
+            "--field",
+            "share",
+            "--rule",
+            "> 0.5",
+        ])
+        .expect("valid");
         assert_eq!(c.places, Places::Areas);
-        let c = check(&["--statistic", "join-count", "--class", "oppose", "--method", "knn", "--k", "6"])
-            .expect("valid");
+        let c = check(&[
+            "--statistic",
+            "join-count",
+            "--class",
+            "oppose",
+            "--method",
+            "knn",
+            "--k",
+            "6",
+        ])
+        .expect("valid");
         assert_eq!(c.places, Places::Points);
         // Points need knn or distance.
         let e = check(&["--statistic", "join-count", "--class", "oppose"]).expect_err("queen");
         assert!(e.to_string().contains("--method"), "{e}");
         let c = check(&[
-            "--statistic", "co-location", "--class-field", "majority", "--class", "oppose",
-            "--field", "rate", "--rule-b", ">= 0.3",
+            "--statistic",
+            "co-location",
+            "--class-field",
+            "majority",
+            "--class",
+            "oppose",
+            "--field",
+            "rate",
+            "--rule-b",
+            ">= 0.3",
         ]);
         assert!(c.is_err(), "field and class-field for attribute A");
         let c = check(&[
-            "--statistic", "join-count-bivariate", "--class-field", "majority", "--class", "oppose",
-            "--class-b", "support",
+            "--statistic",
+            "join-count-bivariate",
+            "--class-field",
+            "majority",
+            "--class",
+            "oppose",
+            "--class-b",
+            "support",
         ])
         .expect("valid");
-        let Analysis::Joins { b: Some(Attribute::Class { class, .. }), .. } = c.analysis else {
+        let Analysis::Joins {
+            b: Some(Attribute::Class { class, .. }),
+            ..
+        } = c.analysis
+        else {
             panic!("class B expected");
         };
         assert_eq!(class, Stance::Support);
         let e = check(&["--statistic", "join-count", "--field", "share"]).expect_err("no rule");
         assert!(e.to_string().contains("--rule"), "{e}");
-        let e = check(&["--statistic", "gi-star", "--field", "r", "--rule", "> 1"]).expect_err("rule");
+        let e =
+            check(&["--statistic", "gi-star", "--field", "r", "--rule", "> 1"]).expect_err("rule");
         assert!(e.to_string().contains("--rule"), "{e}");
-        let e = check(&["--statistic", "join-count", "--field", "r", "--rule", "> 1", "--standardise", "row"])
-            .expect_err("row");
+        let e = check(&[
+            "--statistic",
+            "join-count",
+            "--field",
+            "r",
+            "--rule",
+            "> 1",
+            "--standardise",
+            "row",
+        ])
+        .expect_err("row");
         assert!(e.to_string().contains("binary"), "{e}");
         let e = check(&["--statistic", "gi", "--field", "r", "--alpha", "1.5"]).expect_err("alpha");
         assert!(e.to_string().contains("--alpha"), "{e}");

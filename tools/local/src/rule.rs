@@ -97,7 +97,10 @@ mod tests {
         assert!(Rule::parse("<= 2").expect("valid").holds(2.0));
         assert!(!Rule::parse("< 2").expect("valid").holds(2.0));
         assert!(Rule::parse("== 1").expect("valid").holds(1.0));
-        assert_eq!(Rule::parse(">= 0.25").expect("valid").to_string(), ">= 0.25");
+        assert_eq!(
+            Rule::parse(">= 0.25").expect("valid").to_string(),
+            ">= 0.25"
+        );
         for bad in ["0.5", "> x", "=> 1", "> inf", ""] {
             assert!(Rule::parse(bad).is_err(), "{bad}");
         }
