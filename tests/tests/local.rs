@@ -453,11 +453,11 @@ fn point_records_and_threads() {
     }
     assert_eq!(outputs[0], outputs[1], "results depend on --threads");
     let got = &outputs[0];
-    assert!(got[0].iter().any(|a| *a == Some(1.0)));
-    for i in 0..got[0].len() {
+    assert!(got[0].contains(&Some(1.0)));
+    for (i, attribute) in got[0].iter().enumerate() {
         // With k = 6 every record has 6 neighbours; only oppose records are tested.
-        assert_eq!(got[3][i], got[0][i]);
-        assert_eq!(got[2][i].is_some(), got[0][i] == Some(1.0));
+        assert_eq!(got[3][i], *attribute);
+        assert_eq!(got[2][i].is_some(), *attribute == Some(1.0));
         assert!(got[1][i].expect("count") <= 6.0);
     }
 }
