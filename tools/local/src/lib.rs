@@ -96,7 +96,7 @@ impl Tool for Local {
             description: "Copy of the input layer <name> with, for join counts, attribute \
                 (attribute_b), join_count, tested, p_permutation, p_adjusted, cluster; for Gi / Gi*, \
                 value_analysed, g, expected_g, variance_g, g_z, g_p_analytic, p_permutation, \
-                p_adjusted, hot_cold; and is_island, neighbours. Global join counts in the summary.",
+                p_adjusted, hot_cold (Gi*: self_weight); and is_island, neighbours. Global join counts in the summary.",
             media_type: GEOPACKAGE_MEDIA_TYPE,
         }]
     }
@@ -118,7 +118,7 @@ impl Tool for Local {
         run.check_interrupted()?;
         run.progress.phase("writing");
         let name = run.layer_name("");
-        let extra = output::fields(&places, &links, &stats);
+        let extra = output::fields(&links, &stats);
         run.output()
             .copy_with_fields(&places.path, places.name(), &name, places.fids(), &extra)?;
         run.progress.set(1.0);

@@ -24,7 +24,7 @@ fn text(v: &[Option<String>]) -> ExtraColumn {
 }
 
 /// The fields added to the copy of the input layer.
-pub fn fields(_places: &Input, links: &Links, stats: &Stats) -> Vec<(FieldDef, ExtraColumn)> {
+pub fn fields(links: &Links, stats: &Stats) -> Vec<(FieldDef, ExtraColumn)> {
     let f = |name: &str, kind| FieldDef::new(name, kind);
     let mut out = match stats {
         Stats::Joins {
@@ -56,21 +56,27 @@ pub fn fields(_places: &Input, links: &Links, stats: &Stats) -> Vec<(FieldDef, E
             local,
             adjusted,
             hot_cold,
-            ..
-        } => vec![
-            (f("value_analysed", FieldKind::Real), real(values)),
-            (f("g", FieldKind::Real), real(&local.g)),
-            (f("expected_g", FieldKind::Real), real(&local.expected)),
-            (f("variance_g", FieldKind::Real), real(&local.variance)),
-            (f("g_z", FieldKind::Real), real(&local.z)),
-            (f("g_p_analytic", FieldKind::Real), real(&local.p_analytic)),
-            (
-                f("p_permutation", FieldKind::Real),
-                real(&local.p_permutation),
-            ),
-            (f("p_adjusted", FieldKind::Real), real(adjusted)),
-            (f("hot_cold", FieldKind::Text), text(hot_cold)),
-        ],
+            self_weights,
+        } => {
+            let mut v = vec![
+                (f("value_analysed", FieldKind::Real), real(values)),
+                (f("g", FieldKind::Real), real(&local.g)),
+                (f("expected_g", FieldKind::Real), real(&local.expected)),
+                (f("variance_g", FieldKind::Real), real(&local.variance)),
+                (f("g_z", FieldKind::Real), real(&local.z)),
+                (f("g_p_analytic", FieldKind::Real), real(&local.p_analytic)),
+                (
+                    f("p_permutation", FieldKind::Real),
+                    real(&local.p_permutation),
+                ),
+                (f("p_adjusted", FieldKind::Real), real(adjusted)),
+                (f("hot_cold", FieldKind::Text), text(hot_cold)),
+            ];
+            if let Some(own) = self_weights {
+                v.push((f("self_weight", FieldKind::Real), real(own)));
+            }
+            v
+        }
     };
     let lists = &links.neighbours.lists;
     let islands: Vec<bool> = lists.iter().map(Vec::is_empty).collect();
@@ -200,10 +206,7 @@ pub fn summary(
         }
         (
             Stats::Getis {
-                local,
-                self_weights,
-                hot_cold,
-                ..
+                local, hot_cold, ..
             },
             Analysis::Getis { star, field, row },
         ) => {
@@ -214,7 +217,6 @@ pub fn summary(
                 "self_weight": if !star { Value::Null } else if *row {
                     json!("1 / (|N(i)| + 1), the same as each neighbour (Ord & Getis 1995)")
                 } else { json!(1.0) },
-                "self_weight_min": self_weights.as_ref().map(|s| s.iter().copied().fold(f64::INFINITY, f64::min)).map(finite),
                 "moments": "Ord & Getis (1995), eqs. 5-6: E = W_i / n', Var = s² (n' S1_i − W_i²) / ((n' − 1) n'² x̄²)",
                 "p_analytic": "two-sided normal",
                 "p_permutation": "two-sided: min(1, 2 × the smaller tail)",
