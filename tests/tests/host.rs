@@ -13,6 +13,7 @@ const TOOLS: &[&str] = &[
     "stance-rates",
     "stance-moran",
     "stance-labels",
+    "stance-local",
     "stance-render",
 ];
 

@@ -19,6 +19,7 @@ const TOOLS: &[&str] = &[
     "stance-rates",
     "stance-moran",
     "stance-labels",
+    "stance-local",
     "stance-render",
 ];
 

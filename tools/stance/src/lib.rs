@@ -39,6 +39,7 @@ pub fn tools() -> Vec<Entry> {
         entry::<stance_rates::Rates>(),
         entry::<stance_moran::Moran>(),
         entry::<stance_labels::Labels>(),
+        entry::<stance_local::Local>(),
         entry::<stance_render::Render>(),
     ]
 }
