@@ -432,6 +432,36 @@ impl Run {
         }
     }
 
+    /// Notes a layer read from `path`: the input file, or another file (hashed for provenance).
+    ///
+    /// # Errors
+    /// As [`Run::note_extra_input`].
+    pub fn note_layer(&mut self, path: &Path, layer: &str) -> Result<()> {
+        if path == self.input()? {
+            self.note_input_layer(layer);
+            Ok(())
+        } else {
+            self.note_extra_input(path, layer)
+        }
+    }
+
+    /// Reads the weights table `name` from `file` (default `default_file`) and notes it as an
+    /// input of the run.
+    ///
+    /// # Errors
+    /// A missing or malformed table.
+    pub fn weights_table(
+        &mut self,
+        name: &str,
+        file: Option<&Path>,
+        default_file: &Path,
+    ) -> Result<(PathBuf, gpkg::weights_table::WeightsTable)> {
+        let path = file.map_or_else(|| default_file.to_owned(), Path::to_owned);
+        let table = gpkg::weights_table::read(&path, name)?;
+        self.note_layer(&path, &table.table)?;
+        Ok((path, table))
+    }
+
     /// Records another input file (a mask, a weights table in another file…) for provenance.
     ///
     /// # Errors

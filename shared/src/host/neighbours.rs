@@ -88,3 +88,59 @@ impl NeighbourArgs {
         })
     }
 }
+
+/// Where the neighbours of a run come from: a weights table (`--weights`, in `--weights-file`)
+/// or built here in the working CRS from the neighbour options.
+#[derive(Debug, Clone, PartialEq)]
+pub enum WeightsSource {
+    /// A weights table, in `file` (None: the tool's default file).
+    Table {
+        /// Table name.
+        name: String,
+        /// GeoPackage holding it.
+        file: Option<std::path::PathBuf>,
+    },
+    /// Built here.
+    Built {
+        /// How.
+        method: Method,
+        /// Snap tolerance, metres.
+        snap_m: f64,
+    },
+}
+
+impl NeighbourArgs {
+    /// `--weights` / `--weights-file`, or these options, checked into a [`WeightsSource`]:
+    /// a table brings its own neighbours, so `--k` and `--max-distance-m` are refused with it.
+    ///
+    /// # Errors
+    /// [`Error::BadArgument`] naming the option.
+    pub fn source(
+        &self,
+        weights: Option<&str>,
+        weights_file: Option<&std::path::Path>,
+    ) -> Result<WeightsSource> {
+        match weights {
+            Some(name) => {
+                if self.k.is_some() || self.max_distance_m.is_some() {
+                    return Err(Error::argument(
+                        "--weights",
+                        "takes its neighbours from the table; drop --k / --max-distance-m",
+                    ));
+                }
+                Ok(WeightsSource::Table {
+                    name: name.to_owned(),
+                    file: weights_file.map(std::path::Path::to_owned),
+                })
+            }
+            None if weights_file.is_some() => Err(Error::argument(
+                "--weights-file",
+                "needs --weights (the table to read from it)",
+            )),
+            None => Ok(WeightsSource::Built {
+                method: self.method()?,
+                snap_m: self.snap_m,
+            }),
+        }
+    }
+}

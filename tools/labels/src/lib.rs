@@ -4,7 +4,6 @@
 //! (Buonaccorsi 2010, ch. 3).
 
 pub mod analysis;
-pub mod assign;
 pub mod confusion;
 pub mod consensus;
 pub mod correct;
@@ -155,7 +154,12 @@ fn per_area(
         return (Vec::new(), 0);
     };
     let layer = &records.layer;
-    let area_of = assign::assign(&areas.layer.polygons, &layer.x, &layer.y);
+    let area_of: Vec<Option<usize>> =
+        stance_core::assign::assign(&areas.layer.polygons, &layer.x, &layer.y)
+            .area
+            .into_iter()
+            .map(|a| a.map(|i| i as usize))
+            .collect();
     let outside = area_of.iter().filter(|a| a.is_none()).count() as u64;
     let results = analysis::per_area(AreaInputs {
         labels: &records.labels,

@@ -14,8 +14,8 @@
 use rayon::prelude::*;
 use stance_core::weights::SparseWeights;
 
-use crate::normal::two_sided_p;
 use crate::permutation::{conditional_counts, p_two_sided, Replicates};
+use stance_core::normal::two_sided_p;
 
 /// The local Getis–Ord statistics of every area (NaN for areas without neighbours).
 #[derive(Debug, Clone, PartialEq)]

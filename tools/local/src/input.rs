@@ -8,12 +8,13 @@ use stance_core::gpkg::areas;
 use stance_core::gpkg::read::{
     read_points, read_polygons, Column, FieldWant, PointLayer, PolygonCrs, PolygonLayer,
 };
-use stance_core::gpkg::weights_table::{self, WeightsTable};
+use stance_core::gpkg::weights_table::WeightsTable;
 use stance_core::host::Run;
 use stance_core::stance::{classify_codes, ClassMap};
 use stance_core::weights::{self, Method, Neighbours};
 
-use crate::params::{Analysis, Attribute, Config, Places, WeightsSource};
+use crate::params::{Analysis, Attribute, Config, Places};
+use stance_core::host::neighbours::WeightsSource;
 
 /// The layer read, in the working CRS.
 pub enum Layer {
@@ -195,7 +196,7 @@ pub struct Links {
     pub crs: Option<String>,
 }
 
-/// The weights table named by `--weights`, with its file.
+/// The weights table named by `--weights`, with its file (default: the input).
 ///
 /// # Errors
 /// A missing or malformed table.
@@ -204,14 +205,7 @@ pub fn read_table(config: &Config, run: &mut Run) -> Result<Option<(PathBuf, Wei
         return Ok(None);
     };
     let input = run.input()?.to_owned();
-    let path = file.clone().unwrap_or_else(|| input.clone());
-    let table = weights_table::read(&path, name)?;
-    if path == input {
-        run.note_input_layer(&table.table);
-    } else {
-        run.note_extra_input(&path, &table.table)?;
-    }
-    Ok(Some((path, table)))
+    run.weights_table(name, file.as_deref(), &input).map(Some)
 }
 
 /// The neighbours: from the table, matched by id, or built in the working CRS.

@@ -6,7 +6,6 @@
 pub mod getis_ord;
 pub mod input;
 pub mod joincount;
-pub mod normal;
 pub mod output;
 pub mod params;
 pub mod permutation;

@@ -7,9 +7,9 @@ use stance_core::gpkg::stage::{ExtraColumn, FieldDef, FieldKind};
 
 use crate::input::{Input, Links};
 use crate::joincount::{GlobalJoins, JoinMoments};
-use crate::normal::upper_tail;
 use crate::params::{Analysis, Config, LocalParams, Places};
 use crate::Stats;
+use stance_core::normal::upper_tail;
 
 fn real(v: &[f64]) -> ExtraColumn {
     ExtraColumn::Real(v.iter().map(|x| x.is_finite().then_some(*x)).collect())

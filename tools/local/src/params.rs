@@ -4,6 +4,7 @@ use std::path::PathBuf;
 
 use stance_core::error::{Error, Result};
 use stance_core::host::neighbours::NeighbourArgs;
+use stance_core::host::neighbours::WeightsSource;
 use stance_core::multiple::Adjustment;
 use stance_core::stance::{class_map_option, parse_class, ClassMap, Stance};
 use stance_core::weights::Method;
@@ -184,25 +185,6 @@ pub enum Places {
     Points,
 }
 
-/// Where the neighbours come from.
-#[derive(Debug, Clone, PartialEq)]
-pub enum WeightsSource {
-    /// A stance-weights table, in `file` (None: the input).
-    Table {
-        /// Table name.
-        name: String,
-        /// GeoPackage holding it.
-        file: Option<PathBuf>,
-    },
-    /// Built here in the working CRS.
-    Built {
-        /// How.
-        method: Method,
-        /// Snap tolerance, metres.
-        snap_m: f64,
-    },
-}
-
 /// The checked parameters.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Config {
@@ -343,44 +325,26 @@ impl LocalParams {
     }
 
     fn weights_source(&self, places: Places) -> Result<WeightsSource> {
-        let neighbours = &self.neighbours;
-        match &self.weights {
-            Some(_) if places == Places::Points => Err(Error::argument(
+        if places == Places::Points && self.weights.is_some() {
+            return Err(Error::argument(
                 "--weights",
                 "point records take knn or distance neighbours built here (--method)",
-            )),
-            Some(name) => {
-                if neighbours.k.is_some() || neighbours.max_distance_m.is_some() {
-                    return Err(Error::argument(
-                        "--weights",
-                        "takes its neighbours from the table; drop --k / --max-distance-m",
-                    ));
-                }
-                Ok(WeightsSource::Table {
-                    name: name.clone(),
-                    file: self.weights_file.clone(),
-                })
-            }
-            None if self.weights_file.is_some() => Err(Error::argument(
-                "--weights-file",
-                "needs --weights (the table to read from it)",
-            )),
-            None => {
-                let method = neighbours.method()?;
-                if places == Places::Points
-                    && !matches!(method, Method::KNearest(_) | Method::DistanceBand(_))
-                {
-                    return Err(Error::argument(
-                        "--method",
-                        "point records need --method knn (with --k) or distance (with --max-distance-m)",
-                    ));
-                }
-                Ok(WeightsSource::Built {
-                    method,
-                    snap_m: neighbours.snap_m,
-                })
+            ));
+        }
+        let source = self
+            .neighbours
+            .source(self.weights.as_deref(), self.weights_file.as_deref())?;
+        if let WeightsSource::Built { method, .. } = &source {
+            if places == Places::Points
+                && !matches!(method, Method::KNearest(_) | Method::DistanceBand(_))
+            {
+                return Err(Error::argument(
+                    "--method",
+                    "point records need --method knn (with --k) or distance (with --max-distance-m)",
+                ));
             }
         }
+        Ok(source)
     }
 }
 

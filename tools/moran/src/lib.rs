@@ -12,13 +12,14 @@ use serde_json::Value;
 use stance_core::error::{Error, Result};
 use stance_core::gpkg::areas;
 use stance_core::gpkg::read::{read_polygons, FieldWant, PolygonCrs, PolygonLayer};
-use stance_core::gpkg::weights_table::{self, WeightsTable};
+use stance_core::gpkg::weights_table::WeightsTable;
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 use stance_core::multiple::adjust;
 use stance_core::weights::{self, Neighbours};
 
 use maths::{GlobalMoran, LocalMoran, MoranError};
-pub use params::{Config, MoranParams, Variable, WeightsSource};
+pub use params::{Config, MoranParams, Variable};
+pub use stance_core::host::neighbours::WeightsSource;
 
 /// The Moran tool.
 #[derive(Debug)]
@@ -124,20 +125,13 @@ impl Tool for Moran {
     }
 }
 
-/// The weights table named by `--weights`, with its file.
+/// The weights table named by `--weights`, with its file (default: the input).
 fn read_table(config: &Config, run: &mut Run) -> Result<Option<(PathBuf, WeightsTable)>> {
     let WeightsSource::Table { name, file } = &config.weights else {
         return Ok(None);
     };
     let input = run.input()?.to_owned();
-    let path = file.clone().unwrap_or_else(|| input.clone());
-    let table = weights_table::read(&path, name)?;
-    if path == input {
-        run.note_input_layer(&table.table);
-    } else {
-        run.note_extra_input(&path, &table.table)?;
-    }
-    Ok(Some((path, table)))
+    run.weights_table(name, file.as_deref(), &input).map(Some)
 }
 
 /// The area layer in the working CRS and the analysed value of each area.

@@ -60,57 +60,7 @@ pub enum MoranError {
     },
 }
 
-/// Standard normal upper tail 1 − Φ(x) = erfc(x / √2) / 2, to ~1e-15 relative.
-pub fn normal_upper_tail(x: f64) -> f64 {
-    0.5 * erfc(x / std::f64::consts::SQRT_2)
-}
-
-/// Complementary error function: the Maclaurin series of erf for |x| < 2.5 (all terms positive
-/// in the form 2/√π e^{−x²} Σ 2ⁿ x^{2n+1} / (2n+1)!!, Abramowitz & Stegun 7.1.6) and the
-/// continued fraction of erfc otherwise (A&S 7.1.14, evaluated by Lentz's method).
-pub fn erfc(x: f64) -> f64 {
-    if x.is_nan() {
-        return f64::NAN;
-    }
-    if x < 0.0 {
-        return 2.0 - erfc(-x);
-    }
-    if x < 2.5 {
-        let mut term = x;
-        let mut sum = x;
-        let x2 = x * x;
-        let mut n = 0.0;
-        while term > sum * 1e-17 {
-            n += 1.0;
-            term *= 2.0 * x2 / (2.0 * n + 1.0);
-            sum += term;
-        }
-        let erf = 2.0 / std::f64::consts::PI.sqrt() * (-x2).exp() * sum;
-        return 1.0 - erf;
-    }
-    if x > 27.0 {
-        return 0.0;
-    }
-    // erfc(x) = e^{−x²}/√π · 1/(x + (1/2)/(x + 1/(x + (3/2)/(x + 2/(x + …))))).
-    let tiny = 1e-300;
-    let mut f = x;
-    let mut c = x;
-    let mut d = 0.0;
-    for k in 1..500 {
-        let a = k as f64 / 2.0;
-        d = x + a * d;
-        d = if d.abs() < tiny { tiny } else { d };
-        c = x + a / c;
-        c = if c.abs() < tiny { tiny } else { c };
-        d = 1.0 / d;
-        let delta = c * d;
-        f *= delta;
-        if (delta - 1.0).abs() < 1e-16 {
-            break;
-        }
-    }
-    (-x * x).exp() / std::f64::consts::PI.sqrt() / f
-}
+pub use stance_core::normal::{erfc, upper_tail as normal_upper_tail};
 
 /// The analytic p-value of a standard normal deviate `z` under `alternative`.
 pub fn normal_p(z: f64, alternative: Alternative) -> f64 {

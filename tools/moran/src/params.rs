@@ -3,9 +3,9 @@
 use std::path::PathBuf;
 
 use stance_core::error::{Error, Result};
-use stance_core::host::neighbours::NeighbourArgs;
+use stance_core::host::neighbours::{NeighbourArgs, WeightsSource};
 use stance_core::multiple::Adjustment;
-use stance_core::weights::{Method, Standardisation};
+use stance_core::weights::Standardisation;
 
 use crate::maths::{Alternative, Inference};
 
@@ -123,25 +123,6 @@ impl Variable {
     }
 }
 
-/// Where the neighbours come from.
-#[derive(Debug, Clone, PartialEq)]
-pub enum WeightsSource {
-    /// A stance-weights table, in `file` (None: the input).
-    Table {
-        /// Table name.
-        name: String,
-        /// GeoPackage holding it.
-        file: Option<PathBuf>,
-    },
-    /// Built here on the areas projected to the working CRS.
-    Built {
-        /// How.
-        method: Method,
-        /// Snap tolerance, metres.
-        snap_m: f64,
-    },
-}
-
 /// The checked parameters.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Config {
@@ -219,28 +200,7 @@ impl MoranParams {
     }
 
     fn weights_source(&self) -> Result<WeightsSource> {
-        let neighbours = &self.neighbours;
-        match &self.weights {
-            Some(name) => {
-                if neighbours.k.is_some() || neighbours.max_distance_m.is_some() {
-                    return Err(Error::argument(
-                        "--weights",
-                        "takes its neighbours from the table; drop --k / --max-distance-m",
-                    ));
-                }
-                Ok(WeightsSource::Table {
-                    name: name.clone(),
-                    file: self.weights_file.clone(),
-                })
-            }
-            None if self.weights_file.is_some() => Err(Error::argument(
-                "--weights-file",
-                "needs --weights (the table to read from it)",
-            )),
-            None => Ok(WeightsSource::Built {
-                method: neighbours.method()?,
-                snap_m: neighbours.snap_m,
-            }),
-        }
+        self.neighbours
+            .source(self.weights.as_deref(), self.weights_file.as_deref())
     }
 }

@@ -7,12 +7,11 @@ use std::path::PathBuf;
 use serde_json::{json, Value};
 use stance_core::error::{Error, Result};
 use stance_core::gpkg::read::{self, Column, FieldWant, PointLayer, PolygonCrs, PolygonLayer};
-use stance_core::gpkg::weights_table::{self, WeightsTable};
+use stance_core::gpkg::weights_table::WeightsTable;
 use stance_core::gpkg::{areas, crs};
 use stance_core::host::Run;
 use stance_core::stance::{classify_codes, Stance};
 
-use crate::assign;
 use crate::params::{AtRisk, Config, LocalNeighbours, Source};
 
 /// The areas as read.
@@ -70,20 +69,8 @@ pub fn read_table(
     let Some(LocalNeighbours::Table { name, file }) = &config.local else {
         return Ok(None);
     };
-    let path = file.clone().unwrap_or_else(|| areas_path.to_owned());
-    let table = weights_table::read(&path, name)?;
-    note(run, &path, &table.table)?;
-    Ok(Some((path, table)))
-}
-
-/// Records a layer read, in the input or in another file.
-fn note(run: &mut Run, path: &std::path::Path, layer: &str) -> Result<()> {
-    if path == run.input()? {
-        run.note_input_layer(layer);
-        Ok(())
-    } else {
-        run.note_extra_input(path, layer)
-    }
+    run.weights_table(name, file.as_deref(), areas_path)
+        .map(Some)
 }
 
 /// The point records (with points) in the working CRS, each classified.
@@ -154,7 +141,7 @@ pub fn read_areas(
     let layer = read::read_polygons(&path, Some(&config.areas), &wants, target)?;
     fields.extend(id_field.map(str::to_owned));
     let invalid = run.warn_invalid_polygons(&layer, "areas");
-    note(run, &path, &layer.layer)?;
+    run.note_layer(&path, &layer.layer)?;
     Ok(Areas {
         path,
         layer,
@@ -196,7 +183,8 @@ pub fn count(config: &Config, areas: &Areas, points: Option<&Points>, run: &Run)
     let Some(points) = points else {
         return Err(Error::Failed("points were not read".into()));
     };
-    let assignment = assign::assign(&areas.layer.polygons, &points.layer.x, &points.layer.y);
+    let assignment =
+        stance_core::assign::assign(&areas.layer.polygons, &points.layer.x, &points.layer.y);
     run.check_interrupted()?;
     let mut per_class = vec![[0u64; 3]; areas.layer.fids.len()];
     for (area, class) in assignment.area.iter().zip(&points.classes) {

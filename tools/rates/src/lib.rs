@@ -9,7 +9,6 @@
 //! - Local EB measures each neighbour's spread around the area's own local mean (see [`eb`]).
 //! - Surface statistics are taken in the surface's own CRS, the polygons projected into it.
 
-pub mod assign;
 pub mod eb;
 pub mod input;
 pub mod output;
