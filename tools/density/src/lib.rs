@@ -19,6 +19,7 @@ pub mod mask;
 pub mod output;
 pub mod params;
 pub mod plan;
+pub mod segregation;
 pub mod slice;
 pub mod surfaces;
 pub mod tolerance;
