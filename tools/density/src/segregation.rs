@@ -300,7 +300,11 @@ pub fn p_value(observed: f64, replicates: &[f64]) -> f64 {
 /// The test statistic summed over the data points with leave-one-out estimates and exact
 /// Gaussian sums (σ = `sigma_m`): Σ_i Σ_k (p̂₋ᵢ(k | x_i) − n_k/n)², labels 0…`classes`−1.
 pub fn loo_statistic_at_points(x: &[f64], y: &[f64], labels: &[u8], sigma_m: f64) -> f64 {
-    let classes = labels.iter().map(|&l| usize::from(l) + 1).max().unwrap_or(0);
+    let classes = labels
+        .iter()
+        .map(|&l| usize::from(l) + 1)
+        .max()
+        .unwrap_or(0);
     let n = x.len() as f64;
     let mut share = vec![0.0; classes];
     for &l in labels {

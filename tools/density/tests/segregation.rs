@@ -98,7 +98,10 @@ fn type_probabilities_match_spatstat_on_every_cell() {
         let cell = cell_of(&g, *x, *y).expect("cell");
         for k in 0..3 {
             let (got, want) = (p[k][cell], expected[k][j]);
-            assert!((got - want).abs() < 1e-10, "cell ({x}, {y}) class {k}: {got} vs {want}");
+            assert!(
+                (got - want).abs() < 1e-10,
+                "cell ({x}, {y}) class {k}: {got} vs {want}"
+            );
         }
     }
 }
@@ -147,5 +150,111 @@ fn type_cross_validation_matches_spatstat_likelihood_criterion() {
         .max_by(|a, b| a.log_likelihood.total_cmp(&b.log_likelihood))
         .expect("best");
     let want = reference["cv_sigma_m"].as_f64().expect("sigma");
-    assert!((best.bandwidth_m - want).abs() < 1e-9, "{} vs {want}", best.bandwidth_m);
+    assert!(
+        (best.bandwidth_m - want).abs() < 1e-9,
+        "{} vs {want}",
+        best.bandwidth_m
+    );
+}
+
+#[test]
+fn constant_type_probabilities_reject_at_about_alpha_on_any_thread_count() {
+    // Property (Diggle, Zheng & Durr 2005: the Monte Carlo test is exact under random
+    // labelling): 60 data sets of 200 uniform points with labels drawn independently with
+    // constant probabilities 0.3/0.3/0.4, 39 relabellings each, α = 0.1. Under H0,
+    // P(p ≤ 0.1) = 4/40 = 0.1, so the rejections are Binomial(60, 0.1): mean 6; accept 1–12
+    // (P(X = 0) = 0.002, P(X ≥ 13) ≈ 0.007).
+    use rand::{Rng, SeedableRng};
+    use stance_density::estimate::{Bandwidths, Estimator, Method};
+    use stance_density::segregation::{
+        monte_carlo, p_value, probabilities, region, statistic, Relabelling,
+    };
+    use std::sync::atomic::AtomicBool;
+    let g = grid();
+    let estimator = Estimator::new(
+        g,
+        Kernel::Gaussian,
+        Bandwidths::fixed(150.0),
+        Method::Direct,
+        None,
+        false,
+    );
+    let stop = AtomicBool::new(false);
+    let mut rejected = 0;
+    for seed in 0..60u64 {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let n = 200;
+        let x: Vec<f64> = (0..n).map(|_| rng.random::<f64>() * 1000.0).collect();
+        let y: Vec<f64> = (0..n).map(|_| rng.random::<f64>() * 1000.0).collect();
+        let labels: Vec<u8> = (0..n)
+            .map(|_| {
+                let u = rng.random::<f64>();
+                if u < 0.3 {
+                    0
+                } else if u < 0.6 {
+                    1
+                } else {
+                    2
+                }
+            })
+            .collect();
+        let points = Points {
+            x: &x,
+            y: &y,
+            weight: None,
+        };
+        let members: Vec<usize> = (0..n).collect();
+        let sums: Vec<Vec<f64>> = (0..3u8)
+            .map(|k| {
+                let idx: Vec<usize> = members
+                    .iter()
+                    .copied()
+                    .filter(|&i| labels[i] == k)
+                    .collect();
+                estimator.sum(&points, &idx)
+            })
+            .collect();
+        let p = probabilities(&sums);
+        let pooled: Vec<f64> = (0..g.len())
+            .map(|c| sums.iter().map(|s| s[c]).sum())
+            .collect();
+        let inside = region(&pooled);
+        let mean: Vec<f64> = (0..3u8)
+            .map(|k| labels.iter().filter(|&&l| l == k).count() as f64 / n as f64)
+            .collect();
+        let observed = statistic(&p, &mean, &inside);
+        let job = Relabelling {
+            estimator: &estimator,
+            points: &points,
+            members: &members,
+            labels: &labels,
+            pooled_sum: &pooled,
+            region: &inside,
+            observed: &p,
+            mean: &mean,
+            permutations: 39,
+            seed,
+        };
+        let outcome = monte_carlo(&job, &stop, &|_| {}).expect("run");
+        if seed == 0 {
+            // The same replicates and pointwise p-values on one thread as on several.
+            let one = rayon::ThreadPoolBuilder::new()
+                .num_threads(1)
+                .build()
+                .expect("pool");
+            let again = one
+                .install(|| monte_carlo(&job, &stop, &|_| {}))
+                .expect("run");
+            assert_eq!(again.replicates, outcome.replicates);
+            assert_eq!(
+                format!("{:?}", again.pointwise),
+                format!("{:?}", outcome.pointwise)
+            );
+        }
+        if p_value(observed, &outcome.replicates) <= 0.1 {
+            rejected += 1;
+        }
+    }
+    eprintln!("{rejected} of 60 rejected at 0.1");
+    assert!((1..=12).contains(&rejected), "{rejected} of 60");
 }
