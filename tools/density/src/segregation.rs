@@ -42,22 +42,36 @@ pub const CLASSES: usize = 3;
 /// region: the type probabilities there rest on almost no points.
 pub const REGION_FLOOR_FRACTION: f64 = 1e-3;
 
-/// p̂_k = S_k / Σ_j S_j per cell from the per-class kernel sums `sums[k]`; NaN where the pooled
-/// sum is not positive or not finite (outside the mask).
+/// Cells whose pooled sum is below this fraction of its maximum get no probability (NaN): FFT
+/// round-off (~1e-16 of the peak) would otherwise decide the ratio far from every point.
+pub const DEFINED_FLOOR_FRACTION: f64 = 1e-10;
+
+/// p̂_k = S_k / Σ_j S_j per cell from the per-class kernel sums `sums[k]` (negative round-off
+/// clipped to 0 first, so the classes sum to 1); NaN where the pooled sum is not finite
+/// (outside the mask) or below [`DEFINED_FLOOR_FRACTION`] of its maximum.
 pub fn probabilities(sums: &[Vec<f64>]) -> Vec<Vec<f64>> {
     let cells = sums.first().map_or(0, Vec::len);
     let pooled: Vec<f64> = (0..cells)
-        .map(|c| sums.iter().map(|s| s[c]).sum())
+        .map(|c| sums.iter().map(|s| s[c].max(0.0)).sum::<f64>())
         .collect();
+    let nan_cells: Vec<bool> = (0..cells)
+        .map(|c| sums.iter().any(|s| !s[c].is_finite()))
+        .collect();
+    let max = pooled
+        .iter()
+        .zip(&nan_cells)
+        .filter(|(_, bad)| !**bad)
+        .map(|(t, _)| *t)
+        .fold(0.0, f64::max);
+    let floor = (DEFINED_FLOOR_FRACTION * max).max(f64::MIN_POSITIVE);
     sums.iter()
         .map(|s| {
-            s.iter()
-                .zip(&pooled)
-                .map(|(v, t)| {
-                    if t.is_finite() && *t > 0.0 {
-                        (v / t).clamp(0.0, 1.0)
-                    } else {
+            (0..cells)
+                .map(|c| {
+                    if nan_cells[c] || pooled[c] < floor {
                         f64::NAN
+                    } else {
+                        s[c].max(0.0) / pooled[c]
                     }
                 })
                 .collect()
