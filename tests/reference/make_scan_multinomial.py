@@ -14,7 +14,7 @@ distances tie), three classes, with a zone around (8, 20) richer in class 0; gen
 from a fixed seed and stored in the JSON with the results.
 
 Run from the repository root:
-    .venv/bin/python tests/reference/make_scan_multinomial.py
+    .venv-reference/bin/python tests/reference/make_scan_multinomial.py
 Writes tests/reference/data/scan_multinomial.json.
 """
 import json
