@@ -1,6 +1,7 @@
 """Benchmark data for stance-scan: 100,000 stance-synth records moved onto 20,000 distinct
 locations (the first 20,000 distinct record positions; every other record snaps to the nearest
-of them), projected to a Lambert azimuthal equal-area CRS in metres, with cases = oppose.
+of them), projected to a Lambert azimuthal equal-area CRS in metres, with cases = oppose (and
+classes 0/1/2 = oppose/neutral/support for the multinomial scan).
 Writes a GeoPackage point layer `records` (for stance-scan) and an .npz (for the peer).
 
 Usage: scan_prepare_data.py SYNTH.gpkg OUT.gpkg OUT.npz
@@ -21,5 +22,7 @@ _, nearest = cKDTree(sites).query(xy)
 xy = sites[nearest]
 records = records.set_geometry(gpd.points_from_xy(xy[:, 0], xy[:, 1], crs=records.crs))
 records.to_file(out_gpkg, layer="records", driver="GPKG")
-np.savez(out_npz, x=xy[:, 0], y=xy[:, 1], labels=(records["stance"].to_numpy() == "oppose").astype(np.int8))
+stance = records["stance"].to_numpy()
+classes = np.select([stance == "oppose", stance == "neutral", stance == "support"], [0, 1, 2], -1).astype(np.int8)
+np.savez(out_npz, x=xy[:, 0], y=xy[:, 1], labels=(stance == "oppose").astype(np.int8), classes=classes)
 print(f"{len(records)} records on {len(np.unique(xy, axis=0))} distinct locations")

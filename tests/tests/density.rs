@@ -2,7 +2,7 @@
 //! `_diff` and as significant in the tolerance p-values; bad inputs exit 2 with one line.
 
 use stance_core::gpkg::{crs, raster};
-use stance_tests::{out_dir, rows, run_in, synth, tables};
+use stance_tests::{out_dir, rows, run_in, sample_gpkg, synth, tables};
 
 #[test]
 fn planted_zones_show_in_diff_and_tolerance() {
@@ -88,6 +88,99 @@ fn planted_zones_show_in_diff_and_tolerance() {
         elevated,
         vec![vec!["oppose".to_owned()], vec!["support".to_owned()]]
     );
+}
+
+#[test]
+fn type_probabilities_find_the_sample_zones_and_reject_constant_probabilities() {
+    // The sample (sample-gpkg/veldmark.gpkg: 20,000 records, four planted zones with odds ×3
+    // toward support or oppose over 6–10 km; tools/synth/src/scenario/places.rs). Type
+    // probabilities with the bandwidth by likelihood cross-validation of the type labels and
+    // the Monte Carlo test of constant type probabilities (Diggle, Zheng & Durr 2005), 39
+    // relabellings (smallest p 0.025): the test rejects at 0.05, and at each zone's centre the
+    // favoured class is more likely than its share of all records, with pointwise p ≤ 0.05.
+    let dir = out_dir("density_types");
+    let sample = sample_gpkg();
+    let out = dir.join("types.gpkg");
+    let _ = std::fs::remove_file(&out);
+    let summary = run_in(
+        &dir,
+        "stance-density",
+        &[
+            "--input",
+            sample.to_str().expect("path"),
+            "--layer",
+            "veldmark_records",
+            "--output",
+            out.to_str().expect("path"),
+            "--cell-m",
+            "1000",
+            "--type-probabilities",
+            "--permutations",
+            "39",
+            "-q",
+        ],
+    )
+    .ok();
+    let results = &summary["results"];
+    let chosen = results["type_probabilities"]["bandwidth_chosen_by"]
+        .as_str()
+        .expect("how");
+    assert!(chosen.contains("cross-validation"), "{chosen}");
+    let segregation = &results["slices"][0]["segregation"];
+    assert!(
+        segregation["p_value"].as_f64().expect("p") <= 0.05,
+        "{segregation}"
+    );
+    assert!(segregation["statistic_t"].as_f64().expect("t") > 0.0);
+    let names = tables(&out);
+    for class in ["oppose", "neutral", "support"] {
+        for t in [
+            format!("density_prob_{class}"),
+            format!("density_prob_{class}_p"),
+        ] {
+            assert!(names.contains(&t), "missing {t}: {names:?}");
+        }
+    }
+    assert!(names.iter().any(|n| n == "density_prob_tolerance"));
+    let read = |class: &str, suffix: &str| {
+        raster::read(&out, &format!("density_prob_{class}{suffix}")).expect("surface")
+    };
+    let probs: Vec<_> = ["oppose", "neutral", "support"]
+        .iter()
+        .map(|c| read(c, ""))
+        .collect();
+    // p_oppose + p_neutral + p_support = 1 wherever defined (Float32: tolerance 1e-6).
+    for k in 0..probs[0].values.len() {
+        let v: Vec<f32> = probs.iter().map(|p| p.values[k]).collect();
+        if v.iter().all(|x| x.is_finite()) {
+            let sum: f32 = v.iter().sum();
+            assert!((sum - 1.0).abs() < 1e-6, "cell {k}: {v:?}");
+        }
+    }
+    let working = crs::parse(&probs[0].crs_wkt).expect("crs");
+    let truth = rows(
+        &sample,
+        "SELECT favours, centre_lon, centre_lat FROM veldmark_truth WHERE kind = 'stance_zone'",
+    );
+    assert_eq!(truth.len(), 4);
+    for zone in truth {
+        let mut x = [zone[1].parse::<f64>().expect("lon")];
+        let mut y = [zone[2].parse::<f64>().expect("lat")];
+        crs::transform(&crs::wgs84().expect("wgs84"), &working, &mut x, &mut y).expect("xy");
+        let class = zone[0].as_str();
+        let (p, p_value) = (read(class, ""), read(class, "_p"));
+        let g = p.grid;
+        let col = ((x[0] - g.x_min) / g.cell_m).floor() as usize;
+        let row = ((g.y_max() - y[0]) / g.cell_m).floor() as usize;
+        let k = row * g.cols + col;
+        let share = segregation["class_shares"][class].as_f64().expect("share");
+        assert!(
+            f64::from(p.values[k]) > share && p_value.values[k] <= 0.05,
+            "{class} zone: p {} vs share {share}, pointwise p {}",
+            p.values[k],
+            p_value.values[k]
+        );
+    }
 }
 
 fn s_path(dir: &std::path::Path) -> std::path::PathBuf {

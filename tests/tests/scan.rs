@@ -4,7 +4,7 @@
 use std::path::Path;
 
 use stance_core::gpkg::crs;
-use stance_tests::{out_dir, rows, run_in, synth, tables};
+use stance_tests::{out_dir, rows, run_in, sample_gpkg, synth, tables};
 
 /// Planted stance zones of a stance-synth file: (favours, x, y, radius) in the CRS `srs`.
 fn planted_zones(
@@ -117,6 +117,103 @@ fn ordinal_scan_recovers_planted_zones() {
     }
     eprintln!("zones found: {zones_found} of 80; seeds with at least one: {seeds_with_a_zone}");
     assert!(seeds_with_a_zone >= 18, "{seeds_with_a_zone} of 20 seeds");
+}
+
+#[test]
+fn multinomial_scan_finds_the_sample_zones_the_same_on_any_thread_count() {
+    // The sample (sample-gpkg/veldmark.gpkg, 20,000 records) has four planted zones, two
+    // toward support and two toward oppose (odds ×3, radius 6–10 km; its veldmark_truth layer,
+    // from tools/synth/src/scenario/places.rs). The multinomial scan (Jung, Kulldorff & Richard
+    // 2010) looks for any unusual mix of the three classes; each zone must be found: a cluster
+    // with p < 0.05 leaning to the zone's class (its most over-represented class) and centred
+    // within the zone's radius. Centres on a 2 km grid and 39 replicates keep the debug build
+    // quick (smallest attainable p 0.025).
+    let dir = out_dir("scan_multinomial");
+    let sample = sample_gpkg();
+    let mut outputs = Vec::new();
+    let mut summaries = Vec::new();
+    for threads in ["1", "2"] {
+        let out = dir.join(format!("t{threads}.gpkg"));
+        let _ = std::fs::remove_file(&out);
+        let summary = run_in(
+            &dir,
+            "stance-scan",
+            &[
+                "--input",
+                sample.to_str().expect("path"),
+                "--layer",
+                "veldmark_records",
+                "--output",
+                out.to_str().expect("path"),
+                "--model",
+                "multinomial",
+                "--max-radius-m",
+                "12000",
+                "--centres-cell-m",
+                "2000",
+                "--replicates",
+                "39",
+                "--report-p",
+                "0.05",
+                "--threads",
+                threads,
+                "-q",
+            ],
+        )
+        .ok();
+        outputs.push(out);
+        summaries.push(summary);
+    }
+    let results = &summaries[0]["results"];
+    assert_eq!(results["model"], "multinomial");
+    assert!(results.get("toward").is_none());
+    let all = "SELECT * FROM scan_clusters ORDER BY cluster_no";
+    assert_eq!(rows(&outputs[0], all), rows(&outputs[1], all));
+    let members = "SELECT feature_id, cluster_no FROM scan_members ORDER BY feature_id";
+    assert_eq!(rows(&outputs[0], members), rows(&outputs[1], members));
+    // leans_to is the class with the largest share inside over share outside, and risk_ratio
+    // that ratio; shares inside and outside each sum to 1.
+    for c in results["clusters"].as_array().expect("clusters") {
+        let ratio = |k: &str| {
+            c[format!("share_in_{k}")].as_f64().expect("in")
+                / c[format!("share_out_{k}")].as_f64().expect("out")
+        };
+        let top = ["oppose", "neutral", "support"]
+            .into_iter()
+            .max_by(|a, b| ratio(a).total_cmp(&ratio(b)))
+            .expect("class");
+        assert_eq!(c["leans_to"], top, "{c}");
+        assert!((c["risk_ratio"].as_f64().expect("rr") - ratio(top)).abs() < 1e-12);
+        for side in ["in", "out"] {
+            let sum: f64 = ["oppose", "neutral", "support"]
+                .iter()
+                .map(|k| c[format!("share_{side}_{k}")].as_f64().expect("share"))
+                .sum();
+            assert!((sum - 1.0).abs() < 1e-12, "{c}");
+        }
+    }
+    let srs = clusters_srs(&outputs[0], "scan_clusters");
+    let clusters = rows(
+        &outputs[0],
+        "SELECT c.leans_to, (r.minx + r.maxx) / 2, (r.miny + r.maxy) / 2, c.p_monte_carlo \
+         FROM scan_clusters c JOIN rtree_scan_clusters_geom r ON r.id = c.fid ORDER BY c.cluster_no",
+    );
+    let zones = planted_zones(&sample, &srs);
+    assert_eq!(zones.len(), 4);
+    for (favours, zx, zy, radius) in zones {
+        let found = clusters.iter().any(|c| {
+            let (x, y, p): (f64, f64, f64) = (
+                c[1].parse().expect("x"),
+                c[2].parse().expect("y"),
+                c[3].parse().expect("p"),
+            );
+            c[0] == favours && p < 0.05 && (x - zx).hypot(y - zy) <= radius
+        });
+        assert!(
+            found,
+            "zone toward {favours} at ({zx:.0}, {zy:.0}) not found: {clusters:?}"
+        );
+    }
 }
 
 #[test]

@@ -1,7 +1,9 @@
 //! stance-density: kernel density surfaces of stance classes, the log ratio of two classes'
 //! densities (Kelsall & Diggle 1995) and its tolerance contours (Hazelton & Davies 2009) from
 //! Monte Carlo p-values by random relabelling (Diggle 2013, *Statistical Analysis of Spatial and
-//! Spatio-Temporal Point Patterns*, 3rd ed., ch. 5).
+//! Spatio-Temporal Point Patterns*, 3rd ed., ch. 5); with `--type-probabilities`, the
+//! probability of each class at every cell and the Monte Carlo test of spatial segregation
+//! (Diggle, Zheng & Durr 2005).
 //!
 //! `run` reads as check → read → plan (bandwidth, grid) → per slice: surfaces and tolerance,
 //! written as they are made → summary.
@@ -19,9 +21,11 @@ pub mod mask;
 pub mod output;
 pub mod params;
 pub mod plan;
+pub mod segregation;
 pub mod slice;
 pub mod surfaces;
 pub mod tolerance;
+pub mod types;
 
 use serde_json::Value;
 use stance_core::error::Result;
@@ -48,7 +52,11 @@ impl Tool for Density {
         ratio of their normalised densities (Kelsall & Diggle 1995) with per-cell Monte Carlo \
         p-values from random relabelling (Besag & Clifford 1991) and tolerance contours \
         (Hazelton & Davies 2009; Davies & Hazelton 2010) where either class is significantly \
-        elevated. Optional weights and time slices.";
+        elevated. With --type-probabilities, the probability of each class at every cell \
+        (λ_k/Σλ, one bandwidth chosen by likelihood cross-validation of the type labels), the \
+        Monte Carlo test that these probabilities are constant over the region, and per-cell \
+        p-values with tolerance contours for each class (Diggle, Zheng & Durr 2005). Optional \
+        weights and time slices.";
     const DEFAULT_NAME: &'static str = "density";
     const INPUT: InputUse = InputUse::Required;
 
@@ -78,6 +86,17 @@ impl Tool for Density {
                     _2026_03.",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },
+            OutputDecl {
+                id: "type_probabilities",
+                title: "Type probabilities and segregation",
+                description: "With --type-probabilities: Float32 rasters <name>_prob_<class> \
+                    (probability that a record at the cell is of the class), \
+                    <name>_prob_<class>_p (Monte Carlo p-value that it is higher than under \
+                    constant type probabilities; nodata outside the data's region) and polygon \
+                    layer <name>_prob_tolerance with field elevated (the class significantly \
+                    likely at --alpha); the test statistic and its p-value in the summary.",
+                media_type: GEOPACKAGE_MEDIA_TYPE,
+            },
         ]
     }
 
@@ -101,11 +120,16 @@ impl Tool for Density {
                 "warning: {missing} records have no usable time and are left out of the slices"
             ));
         }
+        let types_plan = match config.type_probabilities {
+            true => Some(types::plan(&config, run, &records, &plan)?),
+            false => None,
+        };
         let context = Context {
             config: &config,
             records: &records,
             plan: &plan,
             slices: slices.len(),
+            types: types_plan.as_ref(),
         };
         let mut summaries = Vec::with_capacity(slices.len());
         // Time spent in the class estimates alone (for benchmarks; logged with -v).
@@ -122,6 +146,10 @@ impl Tool for Density {
             run.progress.set(context.fraction(index, 1.0));
         }
         run.debug(format!("class estimates compute_s: {compute_s:.3}"));
-        Ok(output::summary(&config, &records, &plan, &summaries))
+        let mut results = output::summary(&config, &records, &plan, &summaries);
+        if let Some(t) = &types_plan {
+            results["type_probabilities"] = t.summary();
+        }
+        Ok(results)
     }
 }

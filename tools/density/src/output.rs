@@ -32,6 +32,8 @@ pub const LOG_RATIO_P_UPPER: &str = "log_ratio_p_upper";
 pub const LOG_RATIO_P_LOWER: &str = "log_ratio_p_lower";
 /// Layer suffix of the tolerance contour polygons.
 pub const TOLERANCE: &str = "tolerance";
+/// Layer prefix of the type probabilities (`prob_<class>`, `prob_<class>_p`, `prob_tolerance`).
+pub const PROB: &str = "prob";
 
 /// Where surfaces go: the grid and the working CRS.
 #[derive(Debug, Clone, Copy)]
@@ -119,6 +121,24 @@ impl Quantity {
         Quantity::new("p_value_upper", "probability", description)
     }
 
+    /// The type probability of `class` (Diggle, Zheng & Durr 2005).
+    pub fn probability(class: Stance, h_m: f64) -> Self {
+        let description = format!(
+            "kernel estimate of the probability that a record here is {class}, \
+             lambda_{class} / sum of the class intensities (one bandwidth, {h_m:.0} m)"
+        );
+        Quantity::new(format!("probability_{class}"), "probability", description)
+    }
+
+    /// Pointwise p-values that `class` is more likely than under constant type probabilities.
+    pub fn p_probability(class: Stance, permutations: usize) -> Self {
+        let description = format!(
+            "Monte Carlo p-value that the probability of {class} here exceeds what random \
+             relabelling gives ({permutations} relabellings); nodata outside the data's region"
+        );
+        Quantity::new(format!("p_value_{class}"), "probability", description)
+    }
+
     /// Lower-tail p-values (B elevated).
     pub fn p_lower(b: Stance, permutations: usize) -> Self {
         let description = format!(
@@ -178,7 +198,7 @@ pub struct Contours<'a> {
     /// Relabellings behind the p-values.
     pub permutations: usize,
     /// Each class with the polygons where it is elevated.
-    pub sides: [(Stance, &'a [Polygon<f64>]); 2],
+    pub sides: &'a [(Stance, &'a [Polygon<f64>])],
 }
 
 /// Writes the polygon layer `name` with fields elevated, alpha, permutations, area_km2.
@@ -199,7 +219,7 @@ pub fn write_tolerance(
     ];
     let (staging, _, _) = run.writing();
     let mut writer = staging.create_vector(name, GeometryKind::MultiPolygon, Some(srs), &fields)?;
-    for (class, polygons) in contours.sides {
+    for &(class, polygons) in contours.sides {
         for polygon in polygons {
             writer.add(
                 Shape::Polygon(polygon),
@@ -229,6 +249,8 @@ pub struct SliceSummary {
     pub log_ratio_floor: Option<f64>,
     /// The tolerance figures, when computed.
     pub tolerance: Option<ToleranceSummary>,
+    /// Type probabilities and the segregation test (`--type-probabilities`).
+    pub segregation: Option<Value>,
 }
 
 /// Tolerance figures of one slice.
@@ -289,6 +311,9 @@ fn slice_json(slice: &SliceSummary) -> Value {
             "share_of_cells_flagged": { a.label(): flagged_a, b.label(): flagged_b },
             "polygons": { a.label(): polygons_a, b.label(): polygons_b },
         });
+    }
+    if let Some(segregation) = &slice.segregation {
+        result["segregation"] = segregation.clone();
     }
     result
 }

@@ -124,6 +124,14 @@ pub struct DensityParams {
     /// How kernel sums are computed.
     #[arg(long, value_enum, value_name = "METHOD", default_value_t = MethodChoice::Auto)]
     pub method: MethodChoice,
+
+    /// Also estimate the type probabilities p_k(x) = λ_k(x)/Σλ(x) of every class on the grid
+    /// with one bandwidth (likelihood cross-validation of the type labels unless --bandwidth-m
+    /// is given), test that they are constant over the region by --permutations random
+    /// relabellings, and write per-cell p-values and tolerance contours at --alpha (Diggle,
+    /// Zheng & Durr 2005).
+    #[arg(long)]
+    pub type_probabilities: bool,
 }
 
 /// The parameters after [`DensityParams::check`]: numbers in range, classes parsed.
@@ -161,6 +169,8 @@ pub struct Config {
     pub method: MethodChoice,
     /// Time slices.
     pub slice: Slice,
+    /// Type probabilities and the segregation test.
+    pub type_probabilities: bool,
 }
 
 impl DensityParams {
@@ -217,6 +227,7 @@ impl DensityParams {
             alpha: self.alpha,
             method: self.method,
             slice: self.slice,
+            type_probabilities: self.type_probabilities,
         })
     }
 }

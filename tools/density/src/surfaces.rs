@@ -18,6 +18,7 @@ use crate::output::{self, Contours, Quantity, SliceSummary, Target, ToleranceSum
 use crate::params::{Config, Scale};
 use crate::plan::Plan;
 use crate::tolerance::{self, PValues, Relabelling};
+use crate::types::{self, TypesPlan};
 
 /// Slices with fewer points than this in a compared class get a warning.
 pub const FEW_POINTS: usize = 50;
@@ -33,6 +34,8 @@ pub struct Context<'a> {
     pub plan: &'a Plan,
     /// Number of slices (for the progress).
     pub slices: usize,
+    /// The type-probability estimator (`--type-probabilities`).
+    pub types: Option<&'a TypesPlan>,
 }
 
 impl Context<'_> {
@@ -43,7 +46,7 @@ impl Context<'_> {
     }
 
     /// Names the phase and shows it at `within` of slice `index`.
-    fn enter(&self, run: &Run, phase: &str, index: usize, within: f64) {
+    pub fn enter(&self, run: &Run, phase: &str, index: usize, within: f64) {
         run.progress.phase(phase);
         run.progress.set(self.fraction(index, within));
     }
@@ -62,7 +65,7 @@ pub struct SliceRef<'a> {
 
 impl SliceRef<'_> {
     /// `base` with the slice's key appended (`diff_2026_03`).
-    fn suffix(&self, base: &str) -> String {
+    pub fn suffix(&self, base: &str) -> String {
         if self.key.is_empty() {
             base.to_owned()
         } else {
@@ -98,6 +101,7 @@ pub fn slice_surfaces(
         maxima: Vec::new(),
         log_ratio_floor: None,
         tolerance: None,
+        segregation: None,
     };
     let points = records.points();
     let mut sums: BTreeMap<Stance, Vec<f64>> = BTreeMap::new();
@@ -118,6 +122,9 @@ pub fn slice_surfaces(
         let max = output::write_surface(run, target, &name, &scaled, &quantity)?;
         summary.maxima.push((class, max));
         sums.insert(class, sum);
+    }
+    if let Some(plan) = context.types {
+        summary.segregation = Some(types::slice_types(context, run, slice, plan, &class_idx)?);
     }
     let (a, b) = (config.class_a, config.class_b);
     for class in [a, b] {
@@ -260,7 +267,7 @@ fn tolerance_outputs(
     let contours = Contours {
         alpha,
         permutations,
-        sides: [(class_a, &polygons_a), (class_b, &polygons_b)],
+        sides: &[(class_a, &polygons_a), (class_b, &polygons_b)],
     };
     let name = run.layer_name(&slice.suffix(output::TOLERANCE));
     output::write_tolerance(run, &context.records.srs, &name, &contours)?;

@@ -1,11 +1,12 @@
-//! Whole scans from plain arrays: records (Bernoulli or ordinal) or areas (Poisson), windows,
-//! Monte Carlo inference and cluster selection (Kulldorff 1997; Jung, Kulldorff & Klassen 2007).
+//! Whole scans from plain arrays: records (Bernoulli, ordinal or multinomial) or areas (Poisson),
+//! windows, Monte Carlo inference and cluster selection (Kulldorff 1997; Jung, Kulldorff & Klassen 2007;
+//! Jung, Kulldorff & Richard 2010).
 
 use std::sync::atomic::AtomicBool;
 
 use crate::clusters::{select, Cluster, Selection};
 use crate::engine::{scan, AreaCases, PointLabels, ScanSetup, Stopped};
-use crate::models::{Bernoulli, Direction, Ordinal, Poisson, ORDINAL_CLASSES};
+use crate::models::{Bernoulli, Direction, Multinomial, Ordinal, Poisson, ORDINAL_CLASSES};
 use crate::windows::{grid_centres, merge_locations, WindowLimits};
 
 /// Memory for the counts of one block of labellings; more replicates run in several passes.
@@ -39,6 +40,8 @@ pub enum PointModel {
     Bernoulli,
     /// Labels 0 < 1 < 2 (oppose < neutral < support).
     Ordinal,
+    /// Labels 0, 1, 2 (oppose, neutral, support), unordered.
+    Multinomial,
 }
 
 /// A finished scan.
@@ -81,7 +84,7 @@ fn centres_for(config: &ScanConfig, x: &[f64], y: &[f64]) -> Vec<(f64, f64)> {
     }
 }
 
-/// Scans records at (`x`, `y`) (m) with class `labels`.
+/// Scans records at (`x`, `y`) (m) with class `labels` (Bernoulli, ordinal or multinomial).
 ///
 /// # Errors
 /// [`Stopped`] once `stop` is set.
@@ -125,19 +128,29 @@ pub fn scan_points(
                 vec![total - cases, cases],
             )
         }
-        PointModel::Ordinal => {
+        PointModel::Ordinal | PointModel::Multinomial => {
             let mut totals = [0u64; ORDINAL_CLASSES];
             for &l in labels {
                 totals[usize::from(l).min(ORDINAL_CLASSES - 1)] += 1;
             }
-            let m = Ordinal::new(totals, config.direction);
             let l = PointLabels {
                 of_point: &locations.of_point,
                 labels,
                 width: ORDINAL_CLASSES,
                 seed: config.seed,
             };
-            (scan(&setup, &m, &l, progress, stop)?, totals.to_vec())
+            let outcome = if model == PointModel::Ordinal {
+                scan(
+                    &setup,
+                    &Ordinal::new(totals, config.direction),
+                    &l,
+                    progress,
+                    stop,
+                )?
+            } else {
+                scan(&setup, &Multinomial::new(totals), &l, progress, stop)?
+            };
+            (outcome, totals.to_vec())
         }
     };
     let clusters = select(

@@ -1,5 +1,5 @@
-//! Reading what a scan works on: stance records (Bernoulli, ordinal) or areas with case counts
-//! (Poisson), as plain arrays in the working CRS.
+//! Reading what a scan works on: stance records (Bernoulli, ordinal, multinomial) or areas with
+//! case counts (Poisson), as plain arrays in the working CRS.
 
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -19,7 +19,8 @@ use crate::windows;
 pub enum DataKind {
     /// Records with a class each.
     Points {
-        /// Label of each record as scanned: Bernoulli 1 = case, 0 = control; ordinal 0…2.
+        /// Label of each record as scanned: Bernoulli 1 = case, 0 = control; ordinal and
+        /// multinomial 0…2.
         labels: Vec<u8>,
         /// Stance class of each record.
         stances: Vec<Stance>,
@@ -134,21 +135,25 @@ pub fn read_records(
             at_risk.push(*cases);
             (at_risk, PointModel::Bernoulli)
         }
-        RecordRoles::Ordinal { classes } => {
+        RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
+            let (name, model) = match roles {
+                RecordRoles::Ordinal { .. } => ("ordinal", PointModel::Ordinal),
+                _ => ("multinomial", PointModel::Multinomial),
+            };
             let present = classes.iter().filter(|s| per_record.contains(s)).count();
             if present < 2 {
                 return Err(bad_field(format!(
-                    "the ordinal model needs at least two classes present; found {}",
+                    "the {name} model needs at least two classes present; found {}",
                     counts_text(&per_record)
                 )));
             }
-            (classes.clone(), PointModel::Ordinal)
+            (classes.clone(), model)
         }
     };
     let label_of = |s: Stance| -> u8 {
         match roles {
             RecordRoles::Bernoulli { cases, .. } => u8::from(s == *cases),
-            RecordRoles::Ordinal { .. } => (s.value() + 1) as u8,
+            RecordRoles::Ordinal { .. } | RecordRoles::Multinomial { .. } => (s.value() + 1) as u8,
         }
     };
     let (mut fids, mut x, mut y) = (Vec::new(), Vec::new(), Vec::new());

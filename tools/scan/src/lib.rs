@@ -1,7 +1,8 @@
 //! stance-scan: circular scan statistics for clusters of stance — Bernoulli on records and
 //! Poisson on areas (Kulldorff 1997), ordinal on oppose < neutral < support (Jung, Kulldorff &
-//! Klassen 2007) — with Monte Carlo p-values (Dwass 1957) and Gumbel-approximated p-values
-//! (Abrams, Kleinman & Kulldorff 2010).
+//! Klassen 2007), multinomial on the unordered mix of classes (Jung, Kulldorff & Richard 2010)
+//! — with Monte Carlo p-values (Dwass 1957) and Gumbel-approximated p-values (Abrams, Kleinman
+//! & Kulldorff 2010).
 
 pub mod analysis;
 pub mod clusters;
@@ -41,9 +42,10 @@ impl Tool for Scan {
         distinct location (or a grid) and grow through the nearest locations up to --max-share of the records; each is \
         scored with a log-likelihood ratio: Bernoulli (the records of --case-class against the other \
         --at-risk-classes; Kulldorff 1997), ordinal (a shift toward support or toward oppose on oppose < neutral < \
-        support; Jung, Kulldorff & Klassen 2007) or Poisson (case counts on areas against the population at risk or \
-        expected counts; Kulldorff 1997). Sides are named by stance with --toward (bernoulli, ordinal) or as \
-        high/low with --direction (poisson). The most likely cluster and secondary clusters sharing no location are \
+        support; Jung, Kulldorff & Klassen 2007), multinomial (any unusual mix of the unordered classes inside against \
+        outside; Jung, Kulldorff & Richard 2010) or Poisson (case counts on areas against the population at risk or \
+        expected counts; Kulldorff 1997). Sides are named by stance with --toward (bernoulli, ordinal; a multinomial \
+        cluster leans to the class most over-represented inside) or as high/low with --direction (poisson). The most likely cluster and secondary clusters sharing no location are \
         compared with the largest ratio of each random relabelling (p = rank/(R+1); Dwass 1957) and with a Gumbel \
         distribution fitted to those maxima (Abrams, Kleinman & Kulldorff 2010). Records are a biased sample of \
         people: a cluster says where the labels differ from the rest of the map, not why.";
@@ -57,10 +59,11 @@ impl Tool for Scan {
                 title: "Clusters",
                 description: "Polygon layer <name>_clusters in the working CRS (circles of 72 vertices), one row per \
                     cluster: cluster_no (1 = most likely), leans_to (the side: a stance class, control classes joined \
-                    by '+', or high/low for poisson), radius_m, records_in (null for poisson); bernoulli and ordinal: \
-                    share_in_<class> and share_out_<class> for each class present (share of the at-risk records \
+                    by '+', or high/low for poisson; multinomial: the class with the largest share inside against \
+                    outside), radius_m, records_in (null for poisson); bernoulli, ordinal and \
+                    multinomial: share_in_<class> and share_out_<class> for each class present (share of the at-risk records \
                     inside and outside the circle); poisson: cases_in, expected_in; then risk_ratio (inside against \
-                    outside), llr (log-likelihood ratio), p_monte_carlo, p_gumbel and replicates (how many random \
+                    outside; multinomial: share inside over share outside of the leans_to class), llr (log-likelihood ratio), p_monte_carlo, p_gumbel and replicates (how many random \
                     relabellings the p-values rest on).",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },

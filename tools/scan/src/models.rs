@@ -1,6 +1,7 @@
 //! Log-likelihood ratios of one scan window: Bernoulli and Poisson (Kulldorff 1997, Commun.
 //! Statist. Theory Meth. 26:1481–1496) and ordinal (Jung, Kulldorff & Klassen 2007, Statist.
-//! Med. 26:1594–1607).
+//! Med. 26:1594–1607) and multinomial (Jung, Kulldorff & Richard 2010, Statist. Med.
+//! 29:1910–1918).
 
 /// Which way a window departs from the rest of the map.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
@@ -492,6 +493,69 @@ impl WindowModel for Ordinal {
     }
 }
 
+/// Multinomial model for K unordered classes with totals C_1…C_K (N = ΣC_k).
+///
+/// Jung, Kulldorff & Richard (2010), Statist. Med. 29:1910–1918 (the formula written here from
+/// memory of the paper): inside the window the class probabilities are p_k, outside q_k;
+/// H0: p_k = q_k for every k; H1: p_k ≠ q_k for some k, any mix. The maximum likelihood
+/// estimates are p̂_k = c_k/n and q̂_k = (C_k−c_k)/(N−n), so
+///
+/// ln Λ = Σ_k [c_k ln(c_k/n) + (C_k−c_k) ln((C_k−c_k)/(N−n))] − Σ_k C_k ln(C_k/N)
+///      = Σ_k [c_k ln c_k + (C_k−c_k) ln(C_k−c_k) − C_k ln C_k] − n ln n − (N−n) ln(N−n) + N ln N.
+///
+/// The ratio has no side: every window is scored (reported as [`Side::High`]); which class a
+/// cluster leans to is read from its shares afterwards.
+#[derive(Debug, Clone)]
+pub struct Multinomial {
+    table: XLogX,
+    class_totals: [u64; ORDINAL_CLASSES],
+    total: u64,
+}
+
+impl Multinomial {
+    /// The model for classes with `class_totals` records each (empty classes take no part).
+    pub fn new(class_totals: [u64; ORDINAL_CLASSES]) -> Self {
+        let total = class_totals.iter().sum();
+        Multinomial {
+            table: XLogX::new(total),
+            class_totals,
+            total,
+        }
+    }
+
+    /// ln Λ of a window with `inside[k]` records of class k.
+    pub fn ratio(&self, inside: &[u32]) -> f64 {
+        let records: u64 = inside.iter().map(|c| u64::from(*c)).sum();
+        self.llr(&self.window(records as f64), inside).0
+    }
+}
+
+impl WindowModel for Multinomial {
+    const WIDTH: usize = ORDINAL_CLASSES;
+    type Window = OrdinalWindow;
+
+    fn window(&self, size: f64) -> OrdinalWindow {
+        let records = size.round() as u64;
+        let t = &self.table;
+        OrdinalWindow {
+            records,
+            constant: t.at(records) + t.at(self.total - records) - t.at(self.total),
+        }
+    }
+
+    #[inline(always)]
+    fn llr(&self, w: &OrdinalWindow, inside: &[u32]) -> (f64, Side) {
+        let t = &self.table;
+        let mut value = -w.constant;
+        for (&c, &class_total) in inside.iter().zip(&self.class_totals) {
+            let c = u64::from(c);
+            value += t.at(c) + t.at(class_total - c) - t.at(class_total);
+        }
+        // Rounding leaves ±1e-12 where the mix inside equals the mix outside.
+        (value.max(0.0), Side::High)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -644,6 +708,52 @@ mod tests {
             }
             assert!(ll - null <= best + 1e-12, "feasible point beats the MLE");
         }
+    }
+
+    #[test]
+    fn multinomial_is_the_unrestricted_three_class_ratio() {
+        // Totals 7/5/9, inside 5/1/4 (n = 10, N = 21), term by term from the published form
+        // Σ c_k ln(c_k/n) + Σ (C_k−c_k) ln((C_k−c_k)/(N−n)) − Σ C_k ln(C_k/N).
+        let model = Multinomial::new([7, 5, 9]);
+        let by_hand = 5.0 * (5.0f64 / 10.0).ln()
+            + 1.0 * (1.0f64 / 10.0).ln()
+            + 4.0 * (4.0f64 / 10.0).ln()
+            + 2.0 * (2.0f64 / 11.0).ln()
+            + 4.0 * (4.0f64 / 11.0).ln()
+            + 5.0 * (5.0f64 / 11.0).ln()
+            - 7.0 * (7.0f64 / 21.0).ln()
+            - 5.0 * (5.0f64 / 21.0).ln()
+            - 9.0 * (9.0f64 / 21.0).ln();
+        assert_relative_eq!(model.ratio(&[5, 1, 4]), by_hand, max_relative = 1e-12);
+        // It is at least the ordinal ratio on either side (a restricted maximum of the same
+        // likelihood) and equals it when the shares are already ordered.
+        let ordinal = Ordinal::new([7, 5, 9], Direction::Both);
+        for a in 0..=7u32 {
+            for b in 0..=5u32 {
+                for c in 0..=9u32 {
+                    let n = a + b + c;
+                    if n == 0 || n == 21 {
+                        continue;
+                    }
+                    let m = model.ratio(&[a, b, c]);
+                    assert!(m >= ordinal.ratio(&[a, b, c]).0 - 1e-12);
+                }
+            }
+        }
+        let ordered = Multinomial::new([10, 10, 10]);
+        let up = Ordinal::new([10, 10, 10], Direction::High);
+        assert_relative_eq!(
+            ordered.ratio(&[1, 3, 6]),
+            up.ratio(&[1, 3, 6]).0,
+            max_relative = 1e-12
+        );
+        // The same mix inside and outside scores 0; an empty class takes no part.
+        assert_eq!(Multinomial::new([10, 20, 30]).ratio(&[1, 2, 3]), 0.0);
+        assert_relative_eq!(
+            Multinomial::new([7, 0, 9]).ratio(&[5, 0, 1]),
+            Bernoulli::new(16, 7, Direction::Both).ratio(6, 5).0,
+            max_relative = 1e-12
+        );
     }
 
     #[test]

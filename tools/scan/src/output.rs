@@ -73,8 +73,29 @@ fn leans_to(config: &Config, present: &[Stance], side: Side) -> String {
             (RecordRoles::Ordinal { .. }, Side::Low) => {
                 present.first().map_or("oppose", |s| s.label()).into()
             }
+            // Read from the shares once they are known (`most_over_represented`).
+            (RecordRoles::Multinomial { .. }, _) => String::new(),
         },
     }
+}
+
+/// Multinomial: the class whose share inside is largest against its share outside (ties: the
+/// first in class order; a class present inside and absent outside wins), with that ratio.
+fn most_over_represented(shares: &[(Stance, f64, f64)]) -> Option<(Stance, Option<f64>)> {
+    let mut best: Option<(Stance, f64)> = None;
+    for &(class, share_in, share_out) in shares {
+        let r = if share_out > 0.0 {
+            share_in / share_out
+        } else if share_in > 0.0 {
+            f64::INFINITY
+        } else {
+            0.0
+        };
+        if best.is_none_or(|(_, b)| r > b) {
+            best = Some((class, r));
+        }
+    }
+    best.map(|(class, r)| (class, r.is_finite().then_some(r)))
 }
 
 /// Records per class inside the cluster (its locations), counted from the records.
@@ -131,6 +152,18 @@ pub fn cluster_row(config: &Config, data: &Data, scanned: &ScanResult, c: &Clust
             for (&class, &total) in &totals {
                 let k = inside.get(&class).copied().unwrap_or(0) as f64;
                 row.shares.push((class, k / n, (total as f64 - k) / rest));
+            }
+            if let Subject::Records {
+                roles: RecordRoles::Multinomial { .. },
+                ..
+            } = &config.subject
+            {
+                // The class most over-represented inside, and its ratio of shares.
+                if let Some((class, r)) = most_over_represented(&row.shares) {
+                    row.leans_to = class.label().into();
+                    row.risk_ratio = r;
+                }
+                return row;
             }
             // The class the risk ratio is about: the cases (Bernoulli) or the end of the
             // order the cluster is shifted toward (ordinal).
@@ -364,12 +397,16 @@ pub fn summary(
                     all.push(*cases);
                     all
                 }
-                RecordRoles::Ordinal { classes } => classes.clone(),
+                RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
+                    classes.clone()
+                }
             };
             at_risk.sort();
             let labels: Vec<&str> = at_risk.iter().map(|c| c.label()).collect();
             s.insert("at_risk_classes".into(), json!(labels));
-            s.insert("toward".into(), json!(config.side_asked));
+            if !matches!(roles, RecordRoles::Multinomial { .. }) {
+                s.insert("toward".into(), json!(config.side_asked));
+            }
             let by_class: BTreeMap<&str, u64> = data
                 .class_totals()
                 .into_iter()

@@ -18,6 +18,9 @@ pub enum ModelChoice {
     Ordinal,
     /// Case counts against the population at risk or expected counts on areas (Kulldorff 1997).
     Poisson,
+    /// The mix of the unordered classes inside against outside on records (Jung, Kulldorff &
+    /// Richard 2010).
+    Multinomial,
 }
 
 impl ModelChoice {
@@ -27,6 +30,7 @@ impl ModelChoice {
             ModelChoice::Bernoulli => "bernoulli",
             ModelChoice::Ordinal => "ordinal",
             ModelChoice::Poisson => "poisson",
+            ModelChoice::Multinomial => "multinomial",
         }
     }
 }
@@ -50,11 +54,12 @@ pub enum DirectionChoice {
 #[serde(rename_all = "kebab-case")]
 pub struct ScanParams {
     /// Scan statistic: bernoulli (the case class against the other at-risk classes), ordinal
-    /// (oppose < neutral < support) or poisson (case counts on areas).
+    /// (oppose < neutral < support), multinomial (the mix of the classes, unordered) or poisson
+    /// (case counts on areas).
     #[arg(long, value_enum, value_name = "MODEL", default_value = "bernoulli")]
     pub model: ModelChoice,
 
-    /// Field holding the stance label (bernoulli, ordinal).
+    /// Field holding the stance label (bernoulli, ordinal, multinomial).
     #[arg(long, value_name = "FIELD", default_value = "stance")]
     pub stance_field: String,
 
@@ -66,8 +71,8 @@ pub struct ScanParams {
     #[arg(long, value_name = "CLASS", default_value = "oppose")]
     pub case_class: String,
 
-    /// Bernoulli, ordinal: the stance classes whose records form the population at risk,
-    /// comma-separated, or all; Bernoulli controls are these minus the case class.
+    /// Bernoulli, ordinal, multinomial: the stance classes whose records form the population at
+    /// risk, comma-separated, or all; Bernoulli controls are these minus the case class.
     #[arg(long, value_name = "CLASSES", default_value = "all")]
     pub at_risk_classes: String,
 
@@ -139,6 +144,11 @@ pub enum RecordRoles {
         /// The classes analysed.
         classes: Vec<Stance>,
     },
+    /// Multinomial: the at-risk classes, in class order (their order plays no part).
+    Multinomial {
+        /// The classes analysed.
+        classes: Vec<Stance>,
+    },
 }
 
 /// The Poisson model's inputs.
@@ -192,7 +202,9 @@ impl ScanParams {
         self.check_limits()?;
         let (subject, direction, side_asked) = match self.model {
             ModelChoice::Poisson => self.check_poisson()?,
-            ModelChoice::Bernoulli | ModelChoice::Ordinal => self.check_records()?,
+            ModelChoice::Bernoulli | ModelChoice::Ordinal | ModelChoice::Multinomial => {
+                self.check_records()?
+            }
         };
         Ok(Config {
             model: self.model,
@@ -317,10 +329,11 @@ impl ScanParams {
             None => ClassMap::default(),
         };
         let at_risk = parse_class_list("--at-risk-classes", &self.at_risk_classes)?;
-        let (roles, direction, asked) = if self.model == ModelChoice::Bernoulli {
-            bernoulli_roles(&self.case_class, at_risk, self.toward.as_deref())?
-        } else {
-            ordinal_roles(at_risk, self.toward.as_deref())?
+        let toward = self.toward.as_deref();
+        let (roles, direction, asked) = match self.model {
+            ModelChoice::Bernoulli => bernoulli_roles(&self.case_class, at_risk, toward)?,
+            ModelChoice::Multinomial => multinomial_roles(at_risk, toward)?,
+            _ => ordinal_roles(at_risk, toward)?,
         };
         let subject = Subject::Records {
             field: self.stance_field.clone(),
@@ -445,6 +458,27 @@ fn ordinal_roles(
     Ok((RecordRoles::Ordinal { classes: at_risk }, direction, asked))
 }
 
+fn multinomial_roles(
+    at_risk: Vec<Stance>,
+    toward: Option<&str>,
+) -> Result<(RecordRoles, Direction, String)> {
+    if toward.is_some() {
+        return Err(Error::argument(
+            "--toward",
+            "is not for the multinomial model: it looks for any unusual mix of the classes and \
+             reports in leans_to the class most over-represented inside",
+        ));
+    }
+    if at_risk.len() < 2 {
+        return Err(Error::argument(
+            "--at-risk-classes",
+            "the multinomial model needs at least two classes",
+        ));
+    }
+    let classes = RecordRoles::Multinomial { classes: at_risk };
+    Ok((classes, Direction::Both, "any".to_owned()))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -558,5 +592,30 @@ mod tests {
             "--at-risk-field"
         );
         assert_eq!(option_of(&["--case-field", "c"]), "--case-field");
+    }
+
+    #[test]
+    fn multinomial_takes_classes_and_no_side() {
+        let c = check(&["--model", "multinomial"]).expect("multinomial");
+        assert_eq!(c.side_asked, "any");
+        match c.subject {
+            Subject::Records {
+                roles: RecordRoles::Multinomial { classes },
+                ..
+            } => assert_eq!(classes, Stance::ALL),
+            other => panic!("{other:?}"),
+        }
+        assert_eq!(
+            option_of(&["--model", "multinomial", "--toward", "support"]),
+            "--toward"
+        );
+        assert_eq!(
+            option_of(&["--model", "multinomial", "--at-risk-classes", "neutral"]),
+            "--at-risk-classes"
+        );
+        assert_eq!(
+            option_of(&["--model", "multinomial", "--direction", "high"]),
+            "--direction"
+        );
     }
 }

@@ -3,7 +3,7 @@
 //! Bernoulli, Poisson and ordinal models, in every direction.
 
 use proptest::prelude::*;
-use stance_scan::models::{Bernoulli, Direction, Ordinal, Poisson};
+use stance_scan::models::{Bernoulli, Direction, Multinomial, Ordinal, Poisson};
 
 fn direction(i: u8) -> Direction {
     [Direction::High, Direction::Low, Direction::Both][usize::from(i % 3)]
@@ -37,5 +37,17 @@ proptest! {
         let inside: Vec<u32> = totals.iter().zip(shares).map(|(t, s)| ((*t as f64) * s) as u32).collect();
         let (llr, _) = Ordinal::new(totals, direction(d)).ratio(&inside);
         prop_assert!(llr >= 0.0 && llr.is_finite(), "ln Λ = {llr}");
+    }
+
+    #[test]
+    fn multinomial_llr_is_never_negative_and_bounds_the_ordinal(totals in prop::array::uniform3(0u64..400), shares in prop::array::uniform3(0.0f64..1.0)) {
+        // The multinomial maximum is over all (p, q); the ordinal one over an ordered subset
+        // of the same likelihood (Jung, Kulldorff & Richard 2010; Jung, Kulldorff & Klassen 2007).
+        prop_assume!(totals.iter().sum::<u64>() >= 2);
+        let inside: Vec<u32> = totals.iter().zip(shares).map(|(t, s)| ((*t as f64) * s) as u32).collect();
+        let llr = Multinomial::new(totals).ratio(&inside);
+        prop_assert!(llr >= 0.0 && llr.is_finite(), "ln Λ = {llr}");
+        let (ordinal, _) = Ordinal::new(totals, Direction::Both).ratio(&inside);
+        prop_assert!(llr >= ordinal - 1e-9 * ordinal.max(1.0), "{llr} < {ordinal}");
     }
 }

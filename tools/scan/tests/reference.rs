@@ -4,7 +4,7 @@ use std::sync::atomic::AtomicBool;
 
 use serde_json::Value;
 use stance_scan::analysis::{scan_points, PointModel, ScanConfig};
-use stance_scan::models::{Direction, Ordinal};
+use stance_scan::models::{Direction, Multinomial, Ordinal};
 
 fn reference(name: &str) -> Value {
     let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -91,6 +91,65 @@ fn humberside_max_llr_matches_brute_force_numpy() {
     // The worked example the script also computed: N = 10, C = 4, n = c = 3.
     let w = &expected["worked_example"]["llr"];
     assert!((w.as_f64().expect("llr") - 3.859302442).abs() < 1e-9);
+}
+
+#[test]
+fn multinomial_top_window_matches_brute_force_numpy() {
+    // Reference: brute-force NumPy 2.1.3 multinomial scan (Jung, Kulldorff & Richard 2010),
+    // every window of every centre with the published ratio written with numpy.log,
+    // tests/reference/make_scan_multinomial.py → scan_multinomial.json: 300 records on a
+    // 30 × 30 integer grid (shared locations, tied distances), three classes, a planted zone.
+    // Tolerance 1e-9 (the issue's): ~10 terms of size ≤ 400 in f64, rounding ~1e-12.
+    let expected = reference("scan_multinomial.json");
+    let x = numbers(&expected["x"]);
+    let y = numbers(&expected["y"]);
+    let labels: Vec<u8> = numbers(&expected["class"])
+        .iter()
+        .map(|v| *v as u8)
+        .collect();
+    for case in expected["scans"].as_array().expect("scans") {
+        let mut settings = config(
+            Direction::Both,
+            case["max_share"].as_f64().expect("share"),
+            0,
+            1,
+        );
+        settings.max_radius_m = case["max_radius"].as_f64();
+        let result = scan_points(
+            &x,
+            &y,
+            &labels,
+            PointModel::Multinomial,
+            &settings,
+            &|_| {},
+            &AtomicBool::new(false),
+        )
+        .expect("scan");
+        let top = &result.clusters[0];
+        let want = case["max_llr"].as_f64().expect("llr");
+        assert!(
+            (top.window.llr - want).abs() < 1e-9,
+            "{case}: got {}",
+            top.window.llr
+        );
+        assert_eq!(
+            top.window.size as i64,
+            case["records"].as_i64().expect("records")
+        );
+        let inside: Vec<u32> = numbers(&case["inside"]).iter().map(|v| *v as u32).collect();
+        assert_eq!(top.window.inside.to_vec(), inside, "{case}");
+        assert!((top.window.radius_m - case["radius"].as_f64().expect("radius")).abs() < 1e-12);
+        // The same window: its centre is one of the centres reaching the maximum.
+        let (cx, cy) = result.centres[top.centre];
+        let centres = case["top_centres"].as_array().expect("centres");
+        assert!(
+            centres.iter().any(|c| numbers(c) == [cx, cy]),
+            "centre ({cx}, {cy}) not among {centres:?}"
+        );
+    }
+    let w = &expected["worked_example"];
+    let model = Multinomial::new([7, 5, 9]);
+    assert!((model.ratio(&[5, 1, 4]) - w["llr"].as_f64().expect("llr")).abs() < 1e-12);
 }
 
 #[test]

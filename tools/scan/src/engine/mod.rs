@@ -618,7 +618,7 @@ fn scan_centre<M: WindowModel, W: Count>(
 mod tests {
     use super::kernels::tests::kernel_sets;
     use super::*;
-    use crate::models::{Bernoulli, Direction, Ordinal, Poisson};
+    use crate::models::{Bernoulli, Direction, Multinomial, Ordinal, Poisson};
 
     /// Every window of every centre, evaluated without pruning, for one labelling.
     fn brute_max<M: WindowModel>(setup: &ScanSetup<'_>, model: &M, counts: &[u32]) -> f64 {
@@ -933,6 +933,8 @@ mod tests {
             seed: 6,
         };
         assert_same_as_straightforward(&setup, &Ordinal::new(totals, Direction::Both), &labels);
+        // Multinomial: the same counts, the unrestricted ratio.
+        assert_same_as_straightforward(&setup, &Multinomial::new(totals), &labels);
     }
 
     #[test]
