@@ -2,6 +2,7 @@
 //! zones) used by the demo, the tests and the benchmarks.
 
 mod csv_export;
+pub mod dialect;
 pub mod defects;
 pub mod geodesy;
 mod output;
@@ -73,7 +74,7 @@ impl Tool for Synth {
             declare(
                 "csv",
                 "CSV export",
-                "With --csv FILE: the records as CSV.",
+                "With --csv FILE: the records as CSV (or another dialect, --csv-dialect).",
                 "text/csv",
             ),
         ]

@@ -23,12 +23,16 @@ pub struct CsvReader {
     pub(super) encoding: String,
     pub(super) decimal_comma: bool,
     row: u64,
+    /// Added to the reader's line numbers: with CRLF line ends a record's position is taken
+    /// before the previous record's LF, one line early.
+    line_shift: u64,
 }
 
 impl CsvReader {
     pub(super) fn open(path: &Path, request: &Request, tabs: bool) -> Result<Self> {
         let dialect = &request.dialect;
         let text = text::open(path, dialect.encoding)?;
+        let line_shift = u64::from(text.sample.contains("\r\n"));
         let delimiter = dialect.delimiter.unwrap_or_else(|| {
             dialect::sniff_delimiter(&text.sample, text.complete)
                 .unwrap_or(if tabs { b'\t' } else { b',' })
@@ -39,7 +43,7 @@ impl CsvReader {
             .from_reader(text.reader);
         let headers: Vec<String> = reader
             .headers()
-            .map_err(|e| csv_error(path, &e, 0))?
+            .map_err(|e| csv_error(path, &e, 0, line_shift))?
             .iter()
             .map(|h| h.trim().to_owned())
             .collect();
@@ -60,6 +64,7 @@ impl CsvReader {
             decimal_comma: dialect.decimal_comma,
             reader,
             row: 0,
+            line_shift,
         })
     }
 
@@ -67,13 +72,15 @@ impl CsvReader {
         let more = self
             .reader
             .read_record(&mut self.record)
-            .map_err(|e| csv_error(&self.path, &e, self.row))?;
+            .map_err(|e| csv_error(&self.path, &e, self.row, self.line_shift))?;
         if !more {
             return Ok(None);
         }
         self.row += 1;
         let record = &self.record;
-        let line = record.position().map_or(self.row + 1, |p| p.line());
+        let line = record
+            .position()
+            .map_or(self.row + 1, |p| p.line() + self.line_shift);
         let get = |i: &usize| record.get(*i).and_then(non_empty);
         build_row(&self.columns, self.row, get, None, self.decimal_comma)
             .map(Some)
@@ -86,11 +93,12 @@ impl CsvReader {
 }
 
 /// A CSV error as one line naming the file and line; invalid UTF-8 suggests `--encoding`.
-fn csv_error(path: &Path, e: &csv::Error, row: u64) -> Error {
+fn csv_error(path: &Path, e: &csv::Error, row: u64, line_shift: u64) -> Error {
     match e.kind() {
-        csv::ErrorKind::Utf8 { pos, .. } => {
-            text::not_utf8(path, pos.as_ref().map_or(row + 2, csv::Position::line))
-        }
+        csv::ErrorKind::Utf8 { pos, .. } => text::not_utf8(
+            path,
+            pos.as_ref().map_or(row + 2, |p| p.line() + line_shift),
+        ),
         _ => Error::InputFile {
             path: path.to_owned(),
             reason: format!("malformed CSV after data row {row}: {e}"),

@@ -134,12 +134,15 @@ impl GdalReader {
 /// Opens `path` read-only as a vector source.
 fn open_vector(path: &Path, spreadsheet: bool) -> Result<gdal::Dataset> {
     // A spreadsheet's first row is always its header, even when every cell is text.
-    let header: &[&str] = &["HEADERS=FORCE"];
+    let headers = if spreadsheet { "FORCE" } else { "AUTO" };
+    for key in ["OGR_XLSX_HEADERS", "OGR_ODS_HEADERS"] {
+        gdal::config::set_thread_local_config_option(key, headers)
+            .map_err(Error::gdal("setting the spreadsheet header option"))?;
+    }
     gdal::Dataset::open_ex(
         path,
         gdal::DatasetOptions {
             open_flags: gdal::GdalOpenFlags::GDAL_OF_READONLY | gdal::GdalOpenFlags::GDAL_OF_VECTOR,
-            open_options: spreadsheet.then_some(header),
             ..Default::default()
         },
     )
