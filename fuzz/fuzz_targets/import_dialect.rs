@@ -3,7 +3,9 @@
 //! patterns, day/month-ambiguous dates); a guessed delimiter is always one of the four.
 #![no_main]
 use libfuzzer_sys::fuzz_target;
-use stance_import::dialect::{looks_like_decimal_comma, parse_coordinate, sniff_delimiter, DELIMITERS};
+use stance_import::dialect::{
+    looks_like_decimal_comma, parse_coordinate, sniff_delimiter, DELIMITERS,
+};
 use stance_import::times::{ambiguous_day_month, TimeFormat};
 
 fuzz_target!(|data: &[u8]| {
@@ -23,7 +25,11 @@ fuzz_target!(|data: &[u8]| {
             assert!(parse_coordinate(field, true).is_ok());
         }
         let _ = ambiguous_day_month(field);
-        for format in [TimeFormat::Iso, TimeFormat::EpochSeconds, TimeFormat::EpochMillis] {
+        for format in [
+            TimeFormat::Iso,
+            TimeFormat::EpochSeconds,
+            TimeFormat::EpochMillis,
+        ] {
             let _ = format.read(field);
         }
         if let Ok(format) = TimeFormat::parse_option(field) {

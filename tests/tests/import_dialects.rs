@@ -178,12 +178,24 @@ fn every_dialect_imports_like_the_clean_csv() {
     assert_eq!(clean.rows_read, 800);
     assert!(clean.rejected.len() > 20, "the export has defects to drop");
     let dropped_ambiguous = clean.dropped["ambiguous_day_month"].as_u64();
-    assert!(dropped_ambiguous.is_some_and(|n| n > 0), "{:?}", clean.dropped);
+    assert!(
+        dropped_ambiguous.is_some_and(|n| n > 0),
+        "{:?}",
+        clean.dropped
+    );
 
     let mut checked = 0;
     for (dialect, file, extra) in [
-        ("semicolon-latin1", "s1.csv", &["--encoding", "windows-1252"][..]),
-        ("semicolon-bom-crlf-decimal-comma", "s2.csv", &["--decimal-comma"][..]),
+        (
+            "semicolon-latin1",
+            "s1.csv",
+            &["--encoding", "windows-1252"][..],
+        ),
+        (
+            "semicolon-bom-crlf-decimal-comma",
+            "s2.csv",
+            &["--decimal-comma"][..],
+        ),
         (
             "semicolon-latin1-crlf-decimal-comma",
             "s3.txt",
@@ -291,8 +303,13 @@ fn failing_dialects_name_file_line_and_option() {
         &[],
     )
     .usage_error(&["latin.jsonl", "line 1", "--encoding"]);
-    failing(&dir, "x.csv", b"lon,lat,stance\n1,2,oppose\n", &["--encoding", "klingon"])
-        .usage_error(&["--encoding", "klingon", "WHATWG"]);
+    failing(
+        &dir,
+        "x.csv",
+        b"lon,lat,stance\n1,2,oppose\n",
+        &["--encoding", "klingon"],
+    )
+    .usage_error(&["--encoding", "klingon", "WHATWG"]);
     failing(
         &dir,
         "dates.csv",
@@ -307,8 +324,13 @@ fn failing_dialects_name_file_line_and_option() {
         &[],
     )
     .usage_error(&["swapped.csv", "look swapped", "--x-field", "--y-field"]);
-    failing(&dir, "x.csv", b"lon,lat,stance\n1,2,oppose\n", &["--time-format", "%Q"])
-        .usage_error(&["--time-format"]);
+    failing(
+        &dir,
+        "x.csv",
+        b"lon,lat,stance\n1,2,oppose\n",
+        &["--time-format", "%Q"],
+    )
+    .usage_error(&["--time-format"]);
 }
 
 /// Day/month-ambiguous dates are counted apart with an example and the fix; with
@@ -323,7 +345,14 @@ fn ambiguous_dates_are_never_guessed_and_time_formats_read_them() {
     )
     .expect("write");
     let run = |args: &[&str]| {
-        let mut all = vec!["--input", "d.csv", "--output", "d.gpkg", "--overwrite", "-q"];
+        let mut all = vec![
+            "--input",
+            "d.csv",
+            "--output",
+            "d.gpkg",
+            "--overwrite",
+            "-q",
+        ];
         all.extend_from_slice(&["--time-field", "t", "--keep", "id"]);
         all.extend_from_slice(args);
         run_in(&dir, "stance-import", &all).ok()["results"].clone()
@@ -333,7 +362,12 @@ fn ambiguous_dates_are_never_guessed_and_time_formats_read_them() {
     assert_eq!(results["warnings"][0]["kind"], "ambiguous_day_month");
     assert_eq!(results["warnings"][0]["example"], "03/04/2026");
     assert_eq!(results["warnings"][0]["fix"], "--time-format");
-    let day_first = |dir: &Path| rows(&dir.join("d.gpkg"), "SELECT id, time_utc FROM records ORDER BY id");
+    let day_first = |dir: &Path| {
+        rows(
+            &dir.join("d.gpkg"),
+            "SELECT id, time_utc FROM records ORDER BY id",
+        )
+    };
     std::fs::write(
         dir.join("d.csv"),
         "id,lon,lat,stance,t\n1,-140.2,35.1,oppose,03/04/2026\n2,-140.2,35.1,oppose,3/4/2026 14:30\n",
@@ -365,7 +399,10 @@ fn text_is_stored_as_utf8_and_odd_inputs_are_reported() {
         let mut args = vec!["--input", file, "--output", &output, "--keep", "text", "-q"];
         args.extend_from_slice(extra);
         let summary = run_in(&dir, "stance-import", &args).ok();
-        (rows(&dir.join(&output), "SELECT text FROM records"), summary)
+        (
+            rows(&dir.join(&output), "SELECT text FROM records"),
+            summary,
+        )
     };
     // "Müller, café" in windows-1252: ü = FC, é = E9.
     std::fs::write(
@@ -395,12 +432,25 @@ fn text_is_stored_as_utf8_and_odd_inputs_are_reported() {
     .expect("write");
     let (texts, summary) = text_of(
         "n.jsonl",
-        &["--x-field", "place.x", "--y-field", "place.y", "--rejects", "bad"],
+        &[
+            "--x-field",
+            "place.x",
+            "--y-field",
+            "place.y",
+            "--rejects",
+            "bad",
+        ],
     );
     assert_eq!(texts, [["a"], ["b"]]);
-    assert_eq!(summary["results"]["dropped_by_reason"]["malformed_record"], 1);
     assert_eq!(
-        rows(&dir.join("n.jsonl.gpkg"), "SELECT source_row, reason FROM bad"),
+        summary["results"]["dropped_by_reason"]["malformed_record"],
+        1
+    );
+    assert_eq!(
+        rows(
+            &dir.join("n.jsonl.gpkg"),
+            "SELECT source_row, reason FROM bad"
+        ),
         [["2", "malformed_record"]]
     );
 
@@ -423,7 +473,10 @@ fn text_is_stored_as_utf8_and_odd_inputs_are_reported() {
     )
     .expect("write");
     let (_, summary) = text_of("z.csv", &[]);
-    assert_eq!(summary["results"]["warnings"][0]["kind"], "all_coordinates_at_origin");
+    assert_eq!(
+        summary["results"]["warnings"][0]["kind"],
+        "all_coordinates_at_origin"
+    );
     assert_eq!(summary["results"]["warnings"][0]["pairs"], 2);
 }
 
@@ -438,17 +491,36 @@ fn forced_delimiter_and_quoted_fields() {
     )
     .expect("write");
     for extra in [&[][..], &["--delimiter", "pipe"][..]] {
-        let mut args = vec!["--input", "q.txt", "--output", "q.gpkg", "--keep", "text", "-q", "--overwrite"];
+        let mut args = vec![
+            "--input",
+            "q.txt",
+            "--output",
+            "q.gpkg",
+            "--keep",
+            "text",
+            "-q",
+            "--overwrite",
+        ];
         args.extend_from_slice(extra);
         let summary = run_in(&dir, "stance-import", &args).ok();
         assert_eq!(summary["results"]["read_as"]["delimiter"], "pipe");
-        assert_eq!(rows(&dir.join("q.gpkg"), "SELECT text FROM records"), [["a|b;c,d\nnext line"]]);
+        assert_eq!(
+            rows(&dir.join("q.gpkg"), "SELECT text FROM records"),
+            [["a|b;c,d\nnext line"]]
+        );
     }
     // Forced to a delimiter the file does not use: one column, so no lon column.
     let ran = run_in(
         &dir,
         "stance-import",
-        &["--input", "q.txt", "--output", "r.gpkg", "--delimiter", "tab"],
+        &[
+            "--input",
+            "q.txt",
+            "--output",
+            "r.gpkg",
+            "--delimiter",
+            "tab",
+        ],
     );
     ran.usage_error(&["--x-field"]);
 }

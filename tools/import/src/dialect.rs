@@ -144,7 +144,10 @@ mod tests {
         assert_eq!(sniff_delimiter("a\tb\tc\n1\t2\t3\n", false), Some(b'\t'));
         assert_eq!(sniff_delimiter("a|b|c\n1|2|3", true), Some(b'|'));
         assert_eq!(
-            sniff_delimiter("id,text,x\n1,\"a;b;c;d\",2\n2,\"line\nbreak; here\",3\n", false),
+            sniff_delimiter(
+                "id,text,x\n1,\"a;b;c;d\",2\n2,\"line\nbreak; here\",3\n",
+                false
+            ),
             Some(b',')
         );
         assert_eq!(sniff_delimiter("only\n1\n", false), None);
@@ -168,6 +171,9 @@ mod tests {
             parse_coordinate("1.234,5", true),
             Err(NumberProblem::NotANumber)
         );
-        assert_eq!(parse_coordinate("abc", false), Err(NumberProblem::NotANumber));
+        assert_eq!(
+            parse_coordinate("abc", false),
+            Err(NumberProblem::NotANumber)
+        );
     }
 }

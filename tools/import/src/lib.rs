@@ -74,7 +74,14 @@ impl Tool for Import {
         let mut checker = Checker::new(config.rules(reader.srs().is_geographic()));
         let (rows_read, rejects) = stream_records(run, &config, &mut reader, &mut checker)?;
         let warnings = whole::warnings(&checker);
-        whole::check(&input, reader.layer_name(), &config, &checker, rows_read, &warnings)?;
+        whole::check(
+            &input,
+            reader.layer_name(),
+            &config,
+            &checker,
+            rows_read,
+            &warnings,
+        )?;
         for warning in &warnings {
             run.log(format!("stance-import: warning: {}", warning.message));
         }

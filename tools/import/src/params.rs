@@ -107,7 +107,9 @@ pub struct ImportParams {
 }
 
 /// A field delimiter of delimited text.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize, schemars::JsonSchema)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "kebab-case")]
 pub enum DelimiterChoice {
     /// `,` (RFC 4180).
@@ -189,11 +191,17 @@ impl ImportParams {
             Some(_) if self.time_field.is_none() => {
                 return Err(Error::argument("--time-format", "needs --time-field"))
             }
-            Some(f) => TimeFormat::parse_option(f).map_err(|m| Error::argument("--time-format", m))?,
+            Some(f) => {
+                TimeFormat::parse_option(f).map_err(|m| Error::argument("--time-format", m))?
+            }
         };
         let dialect = Dialect {
             delimiter: self.delimiter.map(DelimiterChoice::byte),
-            encoding: self.encoding.as_deref().map(encoding_for_label).transpose()?,
+            encoding: self
+                .encoding
+                .as_deref()
+                .map(encoding_for_label)
+                .transpose()?,
             decimal_comma: self.decimal_comma,
         };
         Ok(ImportConfig {

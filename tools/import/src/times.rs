@@ -132,8 +132,14 @@ mod tests {
             Err(TimeProblem::AmbiguousDayMonth)
         );
         // Day > 12 or day = month: only one reading, but still not ISO: unparseable.
-        assert_eq!(TimeFormat::Iso.read("13/04/2026"), Err(TimeProblem::Unparseable));
-        assert_eq!(TimeFormat::Iso.read("04/04/2026"), Err(TimeProblem::Unparseable));
+        assert_eq!(
+            TimeFormat::Iso.read("13/04/2026"),
+            Err(TimeProblem::Unparseable)
+        );
+        assert_eq!(
+            TimeFormat::Iso.read("04/04/2026"),
+            Err(TimeProblem::Unparseable)
+        );
         assert_eq!(TimeFormat::Iso.read("2026-03-04"), Ok(MARCH_4));
     }
 
@@ -147,7 +153,10 @@ mod tests {
         assert_eq!(zoned.read("04/03/2026 02:00 +0200"), Ok(MARCH_4));
         assert_eq!(TimeFormat::EpochSeconds.read("1772582400"), Ok(MARCH_4));
         assert_eq!(TimeFormat::EpochMillis.read("1772582400999"), Ok(MARCH_4));
-        assert_eq!(TimeFormat::EpochSeconds.read("soon"), Err(TimeProblem::Unparseable));
+        assert_eq!(
+            TimeFormat::EpochSeconds.read("soon"),
+            Err(TimeProblem::Unparseable)
+        );
         assert!(TimeFormat::parse_option("%Q").is_err());
         assert!(TimeFormat::parse_option("dd/mm/yyyy").is_err());
     }

@@ -5,7 +5,15 @@ use std::io::Write;
 
 /// A dialect of the records export.
 #[derive(
-    Debug, Clone, Copy, Default, PartialEq, Eq, clap::ValueEnum, serde::Serialize, schemars::JsonSchema,
+    Debug,
+    Clone,
+    Copy,
+    Default,
+    PartialEq,
+    Eq,
+    clap::ValueEnum,
+    serde::Serialize,
+    schemars::JsonSchema,
 )]
 #[serde(rename_all = "kebab-case")]
 pub enum CsvDialect {

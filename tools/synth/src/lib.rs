@@ -2,8 +2,8 @@
 //! zones) used by the demo, the tests and the benchmarks.
 
 mod csv_export;
-pub mod dialect;
 pub mod defects;
+pub mod dialect;
 pub mod geodesy;
 mod output;
 pub mod params;

@@ -84,17 +84,20 @@ pub fn resolve(
 ) -> Result<Columns<usize>> {
     let require = |name: &str| find(names, name).ok_or_else(|| missing(name));
     let first_of = |option: &str, candidates: &[&str]| {
-        candidates.iter().find_map(|c| find(names, c)).ok_or_else(|| {
-            Error::argument(
-                option,
-                format!(
-                    "{}: none of the columns {} found (columns: {}); name one with {option}",
-                    path.display(),
-                    candidates.join(", "),
-                    names.join(", ")
-                ),
-            )
-        })
+        candidates
+            .iter()
+            .find_map(|c| find(names, c))
+            .ok_or_else(|| {
+                Error::argument(
+                    option,
+                    format!(
+                        "{}: none of the columns {} found (columns: {}); name one with {option}",
+                        path.display(),
+                        candidates.join(", "),
+                        names.join(", ")
+                    ),
+                )
+            })
     };
     let columns = &request.geometry;
     let geometry = match (&columns.wkt, &columns.x, &columns.y) {

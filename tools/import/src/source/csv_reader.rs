@@ -34,8 +34,11 @@ impl CsvReader {
         let text = text::open(path, dialect.encoding)?;
         let line_shift = u64::from(text.sample.contains("\r\n"));
         let delimiter = dialect.delimiter.unwrap_or_else(|| {
-            dialect::sniff_delimiter(&text.sample, text.complete)
-                .unwrap_or(if tabs { b'\t' } else { b',' })
+            dialect::sniff_delimiter(&text.sample, text.complete).unwrap_or(if tabs {
+                b'\t'
+            } else {
+                b','
+            })
         });
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)

@@ -36,8 +36,12 @@ impl GdalReader {
     ) -> Result<Self> {
         let dataset = open_vector(path, spreadsheet)?;
         let driver = match path.extension().and_then(|e| e.to_str()) {
-            Some(e) if e.eq_ignore_ascii_case("xlsx") => "Office Open XML spreadsheet (ECMA-376)".into(),
-            Some(e) if e.eq_ignore_ascii_case("ods") => "OpenDocument spreadsheet (ISO/IEC 26300)".into(),
+            Some(e) if e.eq_ignore_ascii_case("xlsx") => {
+                "Office Open XML spreadsheet (ECMA-376)".into()
+            }
+            Some(e) if e.eq_ignore_ascii_case("ods") => {
+                "OpenDocument spreadsheet (ISO/IEC 26300)".into()
+            }
             _ => dataset.driver().long_name(),
         };
         let names: Vec<String> = dataset.layers().map(|l| l.name()).collect();

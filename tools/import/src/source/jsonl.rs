@@ -14,6 +14,9 @@ use super::columns::{self, Columns};
 use super::{build_row, non_empty, source_srs, text, Request, Row};
 use crate::checks::Location;
 
+/// A non-blank line: its number, and its object (None when it is not a JSON object).
+type Line = (u64, Option<Map<String, Value>>);
+
 pub struct JsonlReader {
     path: PathBuf,
     lines: BufReader<Box<dyn Read>>,
@@ -22,7 +25,7 @@ pub struct JsonlReader {
     size: u64,
     line: u64,
     /// Lines read ahead while looking for the first record: (line, the object or None).
-    pending: VecDeque<(u64, Option<Map<String, Value>>)>,
+    pending: VecDeque<Line>,
     columns: Columns<String>,
     decimal_comma: bool,
     pub(super) srs: SpatialRef,
@@ -71,7 +74,7 @@ impl JsonlReader {
     }
 
     /// The next non-blank line: its number and its object, or None when it is not one.
-    fn next_line(&mut self) -> Result<Option<(u64, Option<Map<String, Value>>)>> {
+    fn next_line(&mut self) -> Result<Option<Line>> {
         loop {
             self.buffer.clear();
             let n = self

@@ -167,8 +167,15 @@ pub fn open(path: &Path, layer: Option<&str>, request: &Request) -> Result<Reade
     let text_only = dialect.delimiter.is_some() || dialect.encoding.is_some();
     if text_only && matches!(kind, Kind::Spreadsheet | Kind::Vector) {
         return Err(Error::argument(
-            if dialect.delimiter.is_some() { "--delimiter" } else { "--encoding" },
-            format!("applies to text input only (.csv, .tsv, .txt, .jsonl, .ndjson); {} is not", path.display()),
+            if dialect.delimiter.is_some() {
+                "--delimiter"
+            } else {
+                "--encoding"
+            },
+            format!(
+                "applies to text input only (.csv, .tsv, .txt, .jsonl, .ndjson); {} is not",
+                path.display()
+            ),
         ));
     }
     match kind {
@@ -371,4 +378,3 @@ pub(crate) fn location_of(geometry: &gdal::vector::Geometry) -> Location {
         Location::NotPoint(geometry.geometry_name())
     }
 }
-
