@@ -42,6 +42,8 @@ impl Tool for Import {
         author and text) or beyond a per-author cap. Every dropped row is counted by reason in the summary \
         and can be written to a rejects table. Author and text are not copied unless asked.";
     const DEFAULT_NAME: &'static str = "records";
+    const INPUT_DESCRIPTION: &'static str = "Records to import: delimited text (.csv, .tsv, .txt), JSON lines (.jsonl, .ndjson), a \
+        spreadsheet (.xlsx, .ods; the sheet by --layer) or a vector layer of points (e.g. GeoPackage, shapefile, GeoJSON).";
     const INPUT: InputUse = InputUse::Required;
 
     fn outputs() -> Vec<OutputDecl> {

@@ -139,6 +139,15 @@ pub fn summary(
         "crs": stance_core::gpkg::crs::label(srs),
         "rejects_layer": config.rejects,
         "read_as": read_as,
-        "warnings": warnings.iter().map(|w| w.entry.clone()).collect::<Vec<_>>(),
+        "warnings": warnings.iter().map(warning_entry).collect::<Vec<_>>(),
     })
+}
+
+/// A warning as the summary shows it: its counts and its one-line message.
+fn warning_entry(warning: &Warning) -> Value {
+    let mut entry = warning.entry.clone();
+    if let Value::Object(map) = &mut entry {
+        map.insert("message".into(), Value::String(warning.message.clone()));
+    }
+    entry
 }
