@@ -11,6 +11,7 @@ fuzz_target!(|data: &[u8]| {
         classes: ClassMap::default(),
         geographic: true,
         uses_time: true,
+        time_format: stance_import::times::TimeFormat::Iso,
         quality_order: Some(vec!["exact".into(), "street".into(), "town".into()]),
         min_quality_index: Some(1),
         drop_duplicates: true,

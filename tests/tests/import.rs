@@ -43,7 +43,7 @@ const ROWS: &[(&str, Option<&str>)] = &[
     ),
     (
         "10,-140.30,35.20,neutral,03/05/2026,a10,t10,street",
-        Some("unparseable_time"),
+        Some("ambiguous_day_month"),
     ),
     (
         "11,-140.30,35.20,neutral,last tuesday,a11,t11,street",

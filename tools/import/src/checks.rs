@@ -5,9 +5,13 @@ use std::hash::{Hash, Hasher};
 
 use stance_core::stance::{ClassMap, Stance};
 
+use crate::times::{TimeFormat, TimeProblem};
+
 /// Why a record was dropped. Checked in this order; a record counts under the first that applies.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub enum Reason {
+    /// A line that is not a record (JSON lines: not a JSON object).
+    MalformedRecord,
     /// No coordinates, or coordinates that are not numbers.
     MissingCoordinates,
     /// Longitude outside −180..180 or latitude outside −90..90 (geographic input), or non-finite.
@@ -20,6 +24,9 @@ pub enum Reason {
     UnknownStance,
     /// No time in the time field.
     MissingTime,
+    /// A numeric date whose day and month could be either way round (`03/04/2026`), without
+    /// `--time-format`.
+    AmbiguousDayMonth,
     /// A time that is not an RFC 3339 / ISO 8601 date or date-time.
     UnparseableTime,
     /// A geocoding-quality level not in `--quality-order`.
@@ -34,13 +41,15 @@ pub enum Reason {
 
 impl Reason {
     /// Every reason, in checking order.
-    pub const ALL: [Reason; 11] = [
+    pub const ALL: [Reason; 13] = [
+        Reason::MalformedRecord,
         Reason::MissingCoordinates,
         Reason::CoordinatesOutOfRange,
         Reason::EmptyGeometry,
         Reason::NotAPoint,
         Reason::UnknownStance,
         Reason::MissingTime,
+        Reason::AmbiguousDayMonth,
         Reason::UnparseableTime,
         Reason::UnknownQuality,
         Reason::QualityBelowMinimum,
@@ -51,12 +60,14 @@ impl Reason {
     /// The snake_case name used in the summary and the rejects layer.
     pub fn name(self) -> &'static str {
         match self {
+            Reason::MalformedRecord => "malformed_record",
             Reason::MissingCoordinates => "missing_coordinates",
             Reason::CoordinatesOutOfRange => "coordinates_out_of_range",
             Reason::EmptyGeometry => "empty_geometry",
             Reason::NotAPoint => "not_a_point",
             Reason::UnknownStance => "unknown_stance",
             Reason::MissingTime => "missing_time",
+            Reason::AmbiguousDayMonth => "ambiguous_day_month",
             Reason::UnparseableTime => "unparseable_time",
             Reason::UnknownQuality => "unknown_quality",
             Reason::QualityBelowMinimum => "quality_below_minimum",
@@ -77,6 +88,8 @@ pub enum Location {
     Empty,
     /// Another geometry type, by name.
     NotPoint(String),
+    /// The line could not be read as a record at all.
+    Malformed,
 }
 
 /// One record before checking.
@@ -120,6 +133,8 @@ pub struct Rules {
     pub geographic: bool,
     /// Whether a time field is used.
     pub uses_time: bool,
+    /// How its times are written.
+    pub time_format: TimeFormat,
     /// Quality levels from best to worst (lower-cased), when a quality field is used.
     pub quality_order: Option<Vec<String>>,
     /// Index of the worst level still kept.
@@ -150,6 +165,49 @@ pub struct Checker {
     pub times_parsed: u64,
     /// Stance labels recognised (kept or not).
     pub stances_recognised: u64,
+    /// The first day/month-ambiguous time seen.
+    pub ambiguous_example: Option<String>,
+    /// What the coordinates look like, for the whole-input warnings.
+    pub coordinates: CoordinateTally,
+}
+
+/// Counts of coordinate pairs that hint at a misread input as a whole.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct CoordinateTally {
+    /// Rows with a numeric coordinate pair.
+    pub points: u64,
+    /// Of those, pairs outside the longitude/latitude range.
+    pub out_of_range: u64,
+    /// Of those, pairs inside the range once swapped.
+    pub in_range_swapped: u64,
+    /// Pairs at exactly (0, 0).
+    pub at_origin: u64,
+}
+
+impl CoordinateTally {
+    fn add(&mut self, x: f64, y: f64, geographic: bool) {
+        self.points += 1;
+        if x == 0.0 && y == 0.0 {
+            self.at_origin += 1;
+        }
+        let in_range = |lon: f64, lat: f64| lon.abs() <= 180.0 && lat.abs() <= 90.0;
+        if geographic && x.is_finite() && y.is_finite() && !in_range(x, y) {
+            self.out_of_range += 1;
+            if in_range(y, x) {
+                self.in_range_swapped += 1;
+            }
+        }
+    }
+
+    /// Whether most pairs are out of range as (longitude, latitude) but in range swapped.
+    pub fn looks_swapped(&self) -> bool {
+        self.in_range_swapped > 0 && self.in_range_swapped * 2 > self.points
+    }
+
+    /// Whether every pair is (0, 0).
+    pub fn all_at_origin(&self) -> bool {
+        self.points > 0 && self.at_origin == self.points
+    }
 }
 
 /// Key of (author, text) for exact-duplicate detection: two independent SipHash digests, so a
@@ -195,6 +253,8 @@ impl Checker {
             kept: BTreeMap::new(),
             times_parsed: 0,
             stances_recognised: 0,
+            ambiguous_example: None,
+            coordinates: CoordinateTally::default(),
         }
     }
 
@@ -214,25 +274,11 @@ impl Checker {
         if stance.is_some() {
             self.stances_recognised += 1;
         }
+        if raw.location == Location::Malformed {
+            return Err(Reason::MalformedRecord);
+        }
         let time = if self.rules.uses_time {
-            match raw.time.map(str::trim).filter(|t| !t.is_empty()) {
-                None => Err(Reason::MissingTime),
-                Some(t) => match stance_core::time::parse_utc_seconds(t) {
-                    Some(s) => {
-                        self.times_parsed += 1;
-                        Ok(Some(s))
-                    }
-                    None => {
-                        let form = text_form(t);
-                        if self.time_examples.len() < 20 || self.time_examples.contains_key(&form) {
-                            self.time_examples
-                                .entry(form)
-                                .or_insert_with(|| t.chars().take(60).collect());
-                        }
-                        Err(Reason::UnparseableTime)
-                    }
-                },
-            }
+            self.read_time(raw.time)
         } else {
             Ok(None)
         };
@@ -241,8 +287,10 @@ impl Checker {
             Location::Missing(_) => return Err(Reason::MissingCoordinates),
             Location::Empty => return Err(Reason::EmptyGeometry),
             Location::NotPoint(_) => return Err(Reason::NotAPoint),
+            Location::Malformed => return Err(Reason::MalformedRecord),
             Location::Point(x, y) => (*x, *y),
         };
+        self.coordinates.add(x, y, self.rules.geographic);
         if !x.is_finite()
             || !y.is_finite()
             || (self.rules.geographic && (x.abs() > 180.0 || y.abs() > 90.0))
@@ -311,6 +359,35 @@ impl Checker {
     }
 }
 
+impl Checker {
+    /// Reads a time text, keeping one example per form of the texts not read.
+    fn read_time(&mut self, time: Option<&str>) -> Result<Option<i64>, Reason> {
+        let Some(t) = time.map(str::trim).filter(|t| !t.is_empty()) else {
+            return Err(Reason::MissingTime);
+        };
+        match self.rules.time_format.read(t) {
+            Ok(s) => {
+                self.times_parsed += 1;
+                Ok(Some(s))
+            }
+            Err(problem) => {
+                let form = text_form(t);
+                if self.time_examples.len() < 20 || self.time_examples.contains_key(&form) {
+                    self.time_examples
+                        .entry(form)
+                        .or_insert_with(|| t.chars().take(60).collect());
+                }
+                if problem == TimeProblem::AmbiguousDayMonth {
+                    self.ambiguous_example
+                        .get_or_insert_with(|| t.chars().take(60).collect());
+                    return Err(Reason::AmbiguousDayMonth);
+                }
+                Err(Reason::UnparseableTime)
+            }
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -320,6 +397,7 @@ mod tests {
             classes: ClassMap::default(),
             geographic: true,
             uses_time: true,
+            time_format: TimeFormat::Iso,
             quality_order: Some(vec![
                 "exact".into(),
                 "street".into(),
@@ -435,7 +513,23 @@ mod tests {
                     text: Some("t11"),
                     ..good()
                 },
+                Some(Reason::AmbiguousDayMonth),
+            ),
+            (
+                RawRecord {
+                    time: Some("13/04/2026"),
+                    text: Some("t11b"),
+                    ..good()
+                },
                 Some(Reason::UnparseableTime),
+            ),
+            (
+                RawRecord {
+                    location: Location::Malformed,
+                    text: Some("t11c"),
+                    ..good()
+                },
+                Some(Reason::MalformedRecord),
             ),
             (
                 RawRecord {
@@ -492,7 +586,32 @@ mod tests {
         assert_eq!(checker.unknown_labels["(null)"], 1);
         assert_eq!(checker.time_examples["99/99/9999"], "03/04/2026");
         assert_eq!(checker.unknown_quality["rooftop"], 1);
+        assert_eq!(checker.ambiguous_example.as_deref(), Some("03/04/2026"));
         assert_eq!(kept, 3);
+    }
+
+    /// Swapped pairs (latitude first) and all-(0, 0) inputs are recognised as a whole.
+    #[test]
+    fn coordinate_tally_recognises_swapped_and_null_island() {
+        let mut tally = CoordinateTally::default();
+        // (35, -140) read as lon 35, lat -140: out of range, in range swapped.
+        for _ in 0..3 {
+            tally.add(35.0, -140.0, true);
+        }
+        tally.add(-140.0, 35.0, true);
+        assert_eq!(tally.out_of_range, 3);
+        assert_eq!(tally.in_range_swapped, 3);
+        assert!(tally.looks_swapped());
+        assert!(!tally.all_at_origin());
+        let mut origin = CoordinateTally::default();
+        origin.add(0.0, 0.0, true);
+        origin.add(0.0, 0.0, true);
+        assert!(origin.all_at_origin());
+        assert!(!origin.looks_swapped());
+        // Projected input is never range-checked.
+        let mut projected = CoordinateTally::default();
+        projected.add(512_000.0, 4_100_000.0, false);
+        assert!(!projected.looks_swapped());
     }
 
     #[test]

@@ -1,9 +1,11 @@
 //! stance-import: CSV or any GDAL vector source → a checked point layer of stance records.
 
 pub mod checks;
+pub mod dialect;
 mod output;
 pub mod params;
 mod source;
+pub mod times;
 mod whole;
 
 use serde_json::Value;
@@ -29,13 +31,19 @@ impl Tool for Import {
     const ID: &'static str = "import";
     const TITLE: &'static str =
         "Import stance records into a GeoPackage point layer, checking every row";
-    const DESCRIPTION: &'static str = "Reads stance records from a CSV or TSV file (.csv, .tsv, .txt; x/y or WKT columns) or from any \
-        vector source GDAL reads (a GeoPackage, shapefile or GeoJSON layer of points), maps stance labels to \
-        oppose/neutral/support, parses times to UTC, and drops rows with missing or out-of-range coordinates, \
+    const DESCRIPTION: &'static str = "Reads stance records from delimited text (.csv, .tsv, .txt: RFC 4180, delimiter comma, \
+        semicolon, tab or pipe guessed or given; UTF-8, UTF-16 with byte-order mark or a legacy encoding named by its \
+        WHATWG Encoding Standard label; decimal point or comma), JSON lines (.jsonl, .ndjson; nested fields by \
+        dotted path), spreadsheets (.xlsx ECMA-376, .ods ISO/IEC 26300; a sheet by --layer), all with x/y or WKT \
+        columns, or from a vector layer of points (a GeoPackage, shapefile or GeoJSON layer of points), maps stance labels to \
+        oppose/neutral/support, parses times to UTC (RFC 3339 / ISO 8601, or the form --time-format gives; \
+        day/month-ambiguous dates are never guessed), and drops rows with missing or out-of-range coordinates, \
         empty geometries, unknown labels, unparseable times, low geocoding quality, exact duplicates (same \
         author and text) or beyond a per-author cap. Every dropped row is counted by reason in the summary \
         and can be written to a rejects table. Author and text are not copied unless asked.";
     const DEFAULT_NAME: &'static str = "records";
+    const INPUT_DESCRIPTION: &'static str = "Records to import: delimited text (.csv, .tsv, .txt), JSON lines (.jsonl, .ndjson), a \
+        spreadsheet (.xlsx, .ods; the sheet by --layer) or a vector layer of points (e.g. GeoPackage, shapefile, GeoJSON).";
     const INPUT: InputUse = InputUse::Required;
 
     fn outputs() -> Vec<OutputDecl> {
@@ -67,7 +75,18 @@ impl Tool for Import {
         }
         let mut checker = Checker::new(config.rules(reader.srs().is_geographic()));
         let (rows_read, rejects) = stream_records(run, &config, &mut reader, &mut checker)?;
-        whole::check(&input, reader.layer_name(), &config, &checker, rows_read)?;
+        let warnings = whole::warnings(&checker);
+        whole::check(
+            &input,
+            reader.layer_name(),
+            &config,
+            &checker,
+            rows_read,
+            &warnings,
+        )?;
+        for warning in &warnings {
+            run.log(format!("stance-import: warning: {}", warning.message));
+        }
 
         if let Some(name) = &config.rejects {
             run.progress.phase("writing");
@@ -80,7 +99,14 @@ impl Tool for Import {
             config.records_layer,
             rows_read - kept
         ));
-        Ok(output::summary(&config, &checker, rows_read, reader.srs()))
+        let read_as = reader.dialect_summary();
+        Ok(output::summary(
+            &config,
+            (&checker, rows_read),
+            reader.srs(),
+            read_as,
+            &warnings,
+        ))
     }
 }
 

@@ -10,6 +10,7 @@ use stance_core::gpkg::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Sha
 use crate::checks::{Checker, CleanRecord, Reason};
 use crate::params::ImportConfig;
 use crate::source::{RawValues, Row};
+use crate::whole::Warning;
 
 /// A dropped record, as the rejects table shows it.
 #[derive(Debug, Clone)]
@@ -118,9 +119,10 @@ pub fn dropped_by_reason(checker: &Checker) -> BTreeMap<&'static str, u64> {
 /// classes kept, the CRS and the layers written.
 pub fn summary(
     config: &ImportConfig,
-    checker: &Checker,
-    rows_read: u64,
+    (checker, rows_read): (&Checker, u64),
     srs: &SpatialRef,
+    read_as: Value,
+    warnings: &[Warning],
 ) -> Value {
     let kept: u64 = checker.kept.values().sum();
     let classes: BTreeMap<&str, u64> = checker.kept.iter().map(|(s, c)| (s.label(), *c)).collect();
@@ -136,5 +138,16 @@ pub fn summary(
         "records_by_class": classes,
         "crs": stance_core::gpkg::crs::label(srs),
         "rejects_layer": config.rejects,
+        "read_as": read_as,
+        "warnings": warnings.iter().map(warning_entry).collect::<Vec<_>>(),
     })
+}
+
+/// A warning as the summary shows it: its counts and its one-line message.
+fn warning_entry(warning: &Warning) -> Value {
+    let mut entry = warning.entry.clone();
+    if let Value::Object(map) = &mut entry {
+        map.insert("message".into(), Value::String(warning.message.clone()));
+    }
+    entry
 }

@@ -4,7 +4,8 @@ use stance_core::error::{Error, Result};
 use stance_core::stance::ClassMap;
 
 use crate::checks::Rules;
-use crate::source::{Fields, GeometryColumns, Request};
+use crate::source::{encoding_for_label, Dialect, Fields, GeometryColumns, Request};
+use crate::times::TimeFormat;
 
 /// Parameters of stance-import.
 #[derive(Debug, Clone, clap::Args, serde::Serialize, schemars::JsonSchema)]
@@ -19,15 +20,18 @@ pub struct ImportParams {
     #[arg(long, value_name = "LABEL=CLASS,…")]
     pub classes: Option<String>,
 
-    /// CSV: column of longitudes or x (default: the first of lon, lng, long, longitude, x).
+    /// Text and spreadsheet input: column of longitudes or x (default: the first of lon, lng,
+    /// long, longitude, x); in JSON lines a dotted path such as `location.lon`.
     #[arg(long, value_name = "FIELD")]
     pub x_field: Option<String>,
 
-    /// CSV: column of latitudes or y (default: the first of lat, latitude, y).
+    /// Text and spreadsheet input: column of latitudes or y (default: the first of lat,
+    /// latitude, y); in JSON lines a dotted path such as `location.lat`.
     #[arg(long, value_name = "FIELD")]
     pub y_field: Option<String>,
 
-    /// CSV: column of WKT point geometries, instead of x/y columns.
+    /// Text and spreadsheet input: column of WKT point geometries (ISO/IEC 13249-3), instead of
+    /// x/y columns.
     #[arg(long, value_name = "FIELD")]
     pub wkt_field: Option<String>,
 
@@ -35,9 +39,33 @@ pub struct ImportParams {
     #[arg(long, value_name = "CRS")]
     pub source_crs: Option<String>,
 
-    /// Field holding the record's date or date-time (RFC 3339 / ISO 8601); written as UTC.
+    /// Field holding the record's date or date-time (RFC 3339 / ISO 8601 unless --time-format
+    /// says otherwise); written as UTC. JSON lines: a dotted path such as `meta.created`.
     #[arg(long, value_name = "FIELD")]
     pub time_field: Option<String>,
+
+    /// How the times are written when not RFC 3339 / ISO 8601: a strftime-style pattern (e.g.
+    /// `%d/%m/%Y %H:%M`, taken as UTC unless it has `%z`), `epoch` (seconds since 1970, Unix
+    /// time) or `epoch-ms` (milliseconds). Without it a day/month-ambiguous date such as
+    /// 03/04/2026 is never guessed: its row is dropped as ambiguous_day_month.
+    #[arg(long, value_name = "FORMAT")]
+    pub time_format: Option<String>,
+
+    /// Delimited text: the field delimiter, `comma`, `semicolon`, `tab` or `pipe` (default:
+    /// guessed from the header and the first rows among these four; RFC 4180 quoting).
+    #[arg(long, value_name = "DELIMITER")]
+    pub delimiter: Option<DelimiterChoice>,
+
+    /// Text input: its character encoding, a WHATWG Encoding Standard label such as
+    /// `windows-1252`, `iso-8859-1` or `iso-8859-15` (default: UTF-8, or UTF-16 when the file
+    /// starts with its byte-order mark; a byte-order mark always wins). Stored as UTF-8.
+    #[arg(long, value_name = "LABEL")]
+    pub encoding: Option<String>,
+
+    /// Coordinates are written with a decimal comma (`12,7`), as in semicolon-separated
+    /// exports; without it such values stop the import with an error naming the line.
+    #[arg(long)]
+    pub decimal_comma: bool,
 
     /// Field holding the author id (for duplicates and --max-per-author; not copied unless kept).
     #[arg(long, value_name = "FIELD")]
@@ -78,6 +106,33 @@ pub struct ImportParams {
     pub rejects: Option<String>,
 }
 
+/// A field delimiter of delimited text.
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize, schemars::JsonSchema,
+)]
+#[serde(rename_all = "kebab-case")]
+pub enum DelimiterChoice {
+    /// `,` (RFC 4180).
+    Comma,
+    /// `;`, usual where the comma is the decimal separator.
+    Semicolon,
+    /// A tab character (tab-separated values).
+    Tab,
+    /// `|`.
+    Pipe,
+}
+
+impl DelimiterChoice {
+    fn byte(self) -> u8 {
+        match self {
+            DelimiterChoice::Comma => b',',
+            DelimiterChoice::Semicolon => b';',
+            DelimiterChoice::Tab => b'\t',
+            DelimiterChoice::Pipe => b'|',
+        }
+    }
+}
+
 /// Validated parameters.
 #[derive(Debug, Clone)]
 pub struct ImportConfig {
@@ -99,6 +154,8 @@ pub struct ImportConfig {
     pub kept_columns: Vec<String>,
     /// Name of the rejects table, when asked for.
     pub rejects: Option<String>,
+    /// How times are written.
+    pub time_format: TimeFormat,
 }
 
 impl ImportParams {
@@ -129,9 +186,28 @@ impl ImportParams {
             }
         }
         let keep = split_list(self.keep.as_deref());
+        let time_format = match &self.time_format {
+            None => TimeFormat::Iso,
+            Some(_) if self.time_field.is_none() => {
+                return Err(Error::argument("--time-format", "needs --time-field"))
+            }
+            Some(f) => {
+                TimeFormat::parse_option(f).map_err(|m| Error::argument("--time-format", m))?
+            }
+        };
+        let dialect = Dialect {
+            delimiter: self.delimiter.map(DelimiterChoice::byte),
+            encoding: self
+                .encoding
+                .as_deref()
+                .map(encoding_for_label)
+                .transpose()?,
+            decimal_comma: self.decimal_comma,
+        };
         Ok(ImportConfig {
+            time_format,
             kept_columns: kept_columns(&keep, &self.leading_columns())?,
-            request: self.request(keep),
+            request: self.request(keep, dialect),
             classes_shown: match &self.classes {
                 Some(spec) => spec.clone(),
                 None => classes.describe(),
@@ -188,7 +264,7 @@ impl ImportParams {
         columns
     }
 
-    fn request(&self, keep: Vec<String>) -> Request {
+    fn request(&self, keep: Vec<String>, dialect: Dialect) -> Request {
         Request {
             geometry: GeometryColumns {
                 x: self.x_field.clone(),
@@ -204,6 +280,7 @@ impl ImportParams {
                 quality: self.quality_field.clone(),
                 keep,
             },
+            dialect,
         }
     }
 }
@@ -216,6 +293,7 @@ impl ImportConfig {
             classes: self.classes.clone(),
             geographic,
             uses_time: fields.time.is_some(),
+            time_format: self.time_format.clone(),
             quality_order: self.quality_levels.clone(),
             min_quality_index: self.min_quality_index,
             drop_duplicates: fields.author.is_some() && fields.text.is_some(),

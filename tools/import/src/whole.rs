@@ -5,7 +5,9 @@ use std::path::Path;
 
 use stance_core::error::{Error, Result};
 
-use crate::checks::Checker;
+use serde_json::{json, Value};
+
+use crate::checks::{Checker, Reason};
 use crate::output::dropped_by_reason;
 use crate::params::ImportConfig;
 
@@ -20,6 +22,7 @@ pub fn check(
     config: &ImportConfig,
     checker: &Checker,
     rows_read: u64,
+    warnings: &[Warning],
 ) -> Result<()> {
     let whole = |message: String| match &layer {
         Some(layer) => Error::BadLayer {
@@ -69,7 +72,11 @@ pub fn check(
             return Err(field_error(
                 time_field,
                 format!(
-                    "no value is an RFC 3339 / ISO 8601 date or date-time (examples: {})",
+                    "no value is {} (examples: {}); give their form with --time-format (e.g. --time-format '%d/%m/%Y %H:%M', epoch or epoch-ms)",
+                    match config.time_format {
+                        crate::times::TimeFormat::Iso => "an RFC 3339 / ISO 8601 date or date-time",
+                        _ => "in the form --time-format gives",
+                    },
                     examples.join(" | ")
                 ),
             ));
@@ -81,10 +88,71 @@ pub fn check(
             .filter(|(_, c)| **c > 0)
             .map(|(r, c)| format!("{r}: {c}"))
             .collect();
+        let hints: Vec<&str> = warnings.iter().map(|w| w.message.as_str()).collect();
         return Err(whole(format!(
-            "every row was dropped ({})",
-            reasons.join(", ")
+            "every row was dropped ({}){}{}",
+            reasons.join(", "),
+            if hints.is_empty() { "" } else { "; " },
+            hints.join("; ")
         )));
     }
     Ok(())
+}
+
+/// Something about the input as a whole that looks wrong but does not stop the import.
+#[derive(Debug, Clone)]
+pub struct Warning {
+    /// One line saying what and how to fix it.
+    pub message: String,
+    /// The same as a summary entry, with the counts.
+    pub entry: Value,
+}
+
+/// The whole-input warnings: coordinates that look swapped, all at (0, 0), and day/month-
+/// ambiguous dates dropped.
+pub fn warnings(checker: &Checker) -> Vec<Warning> {
+    let mut out = Vec::new();
+    let tally = checker.coordinates;
+    if tally.looks_swapped() {
+        out.push(Warning {
+            message: format!(
+                "{} of {} coordinate pairs are out of range as longitude/latitude but in range swapped; the columns look swapped: give them with --x-field (longitude) and --y-field (latitude)",
+                tally.in_range_swapped, tally.points
+            ),
+            entry: json!({
+                "kind": "coordinates_look_swapped",
+                "pairs": tally.points,
+                "out_of_range": tally.out_of_range,
+                "in_range_swapped": tally.in_range_swapped,
+            }),
+        });
+    }
+    if tally.all_at_origin() {
+        out.push(Warning {
+            message: format!(
+                "all {} coordinate pairs are (0, 0), a placeholder rather than a place; check the x/y columns",
+                tally.points
+            ),
+            entry: json!({ "kind": "all_coordinates_at_origin", "pairs": tally.points }),
+        });
+    }
+    let ambiguous = checker
+        .dropped
+        .get(&Reason::AmbiguousDayMonth)
+        .copied()
+        .unwrap_or(0);
+    if let (true, Some(example)) = (ambiguous > 0, &checker.ambiguous_example) {
+        out.push(Warning {
+            message: format!(
+                "{ambiguous} rows dropped with a day/month-ambiguous date such as '{example}'; give the order with --time-format (e.g. --time-format '%d/%m/%Y' or '%m/%d/%Y', with %H:%M for times)"
+            ),
+            entry: json!({
+                "kind": "ambiguous_day_month",
+                "rows": ambiguous,
+                "example": example,
+                "fix": "--time-format",
+            }),
+        });
+    }
+    out
 }

@@ -6,7 +6,10 @@ use std::path::Path;
 use stance_core::error::{Error, Result};
 use stance_core::host::{Interrupt, Progress};
 
+use std::io::Write;
+
 use crate::defects::{self, Defect};
+use crate::dialect::Encoded;
 use crate::output::REPORT_EVERY;
 use crate::params::CsvExport;
 use crate::scenario::{stance_label, Record};
@@ -31,21 +34,91 @@ pub fn write(
     (progress, interrupt): (&Progress, &Interrupt),
 ) -> Result<usize> {
     progress.phase("csv");
-    let mut csv = csv::Writer::from_path(path).map_err(failed)?;
-    csv.write_record(HEADER).map_err(failed)?;
+    let file = std::fs::File::create(path).map_err(failed)?;
+    let out = Encoded::new(std::io::BufWriter::new(file), export.dialect.charset());
+    let mut sink = match export.dialect.delimiter() {
+        Some(delimiter) => {
+            let mut csv = csv::WriterBuilder::new()
+                .delimiter(delimiter)
+                .terminator(if export.dialect.crlf() {
+                    csv::Terminator::CRLF
+                } else {
+                    csv::Terminator::Any(b'\n')
+                })
+                .from_writer(out);
+            csv.write_record(HEADER).map_err(failed)?;
+            Sink::Csv(Box::new(csv))
+        }
+        None => Sink::Jsonl(out),
+    };
     let mut defects_written = 0usize;
     for (i, r) in records.iter().enumerate() {
-        let (cells, damaged) = row(i, r, export);
+        let (mut cells, damaged) = row(i, r, export);
         defects_written += usize::from(damaged);
-        csv.write_record(cells).map_err(failed)?;
+        if export.dialect.decimal_comma() {
+            cells[1] = cells[1].replace('.', ",");
+            cells[2] = cells[2].replace('.', ",");
+        }
+        sink.write(&cells)?;
         if i.is_multiple_of(REPORT_EVERY) {
             let share = i as f64 / records.len() as f64;
             progress.set_counted(0.8 + 0.2 * share, i as u64, records.len() as u64);
             interrupt.check()?;
         }
     }
-    csv.flush().map_err(failed)?;
+    sink.flush()?;
     Ok(defects_written)
+}
+
+/// Where rows go: a delimited writer, or JSON lines.
+enum Sink {
+    Csv(Box<csv::Writer<Encoded<std::io::BufWriter<std::fs::File>>>>),
+    Jsonl(Encoded<std::io::BufWriter<std::fs::File>>),
+}
+
+impl Sink {
+    fn write(&mut self, cells: &[String; 10]) -> Result<()> {
+        match self {
+            Sink::Csv(csv) => csv.write_record(cells).map_err(failed),
+            Sink::Jsonl(out) => {
+                let line = json_line(cells);
+                out.write_all(line.as_bytes()).map_err(failed)
+            }
+        }
+    }
+
+    fn flush(&mut self) -> Result<()> {
+        match self {
+            Sink::Csv(csv) => csv.flush().map_err(failed),
+            Sink::Jsonl(out) => out.flush().map_err(failed),
+        }
+    }
+}
+
+/// One record as a JSON object on one line: numbers for id and coordinates (null when
+/// missing), `location` nesting the coordinates, text for the rest.
+fn json_line(cells: &[String; 10]) -> String {
+    let number = |text: &str| {
+        text.parse::<f64>()
+            .ok()
+            .and_then(serde_json::Number::from_f64)
+            .map_or(serde_json::Value::Null, serde_json::Value::Number)
+    };
+    let mut object = serde_json::Map::new();
+    let id = cells[0]
+        .parse::<u64>()
+        .map_or(serde_json::Value::Null, serde_json::Value::from);
+    object.insert("id".into(), id);
+    object.insert(
+        "location".into(),
+        serde_json::json!({ "lon": number(&cells[1]), "lat": number(&cells[2]) }),
+    );
+    for (i, name) in HEADER.iter().enumerate().skip(3) {
+        object.insert((*name).into(), serde_json::Value::String(cells[i].clone()));
+    }
+    let mut line = serde_json::Value::Object(object).to_string();
+    line.push('\n');
+    line
 }
 
 /// The cells of record `index` (0-based), and whether it was given a defect.

@@ -3,6 +3,7 @@
 
 mod csv_export;
 pub mod defects;
+pub mod dialect;
 pub mod geodesy;
 mod output;
 pub mod params;
@@ -73,7 +74,7 @@ impl Tool for Synth {
             declare(
                 "csv",
                 "CSV export",
-                "With --csv FILE: the records as CSV.",
+                "With --csv FILE: the records as CSV (or another dialect, --csv-dialect).",
                 "text/csv",
             ),
         ]

@@ -4,6 +4,7 @@ use std::path::PathBuf;
 
 use stance_core::error::{Error, Result};
 
+pub use crate::dialect::CsvDialect;
 use crate::scenario::ScenarioParams;
 
 /// Parameters of stance-synth.
@@ -23,6 +24,12 @@ pub struct SynthParams {
     /// records stay clean.
     #[arg(long, value_name = "SHARE", default_value_t = 0.01)]
     pub csv_defects: f64,
+
+    /// How the --csv export is written: delimiter, character encoding (WHATWG Encoding
+    /// Standard), byte-order mark, line ends and decimal separator, or JSON lines (RFC 8259),
+    /// as exports from spreadsheets and platforms come.
+    #[arg(long, value_enum, value_name = "DIALECT", default_value = "comma-utf8")]
+    pub csv_dialect: CsvDialect,
 }
 
 /// Most records one run may ask for.
@@ -46,6 +53,8 @@ pub struct CsvExport {
     pub defect_share: f64,
     /// Seed the defects are drawn from.
     pub seed: u64,
+    /// How the file is written.
+    pub dialect: CsvDialect,
 }
 
 impl SynthParams {
@@ -59,6 +68,9 @@ impl SynthParams {
                 "--csv-defects",
                 format!("{} is not a share between 0 and 1", self.csv_defects),
             ));
+        }
+        if self.csv.is_none() && self.csv_dialect != CsvDialect::default() {
+            return Err(Error::argument("--csv-dialect", "needs --csv FILE"));
         }
         if self.points == 0 || self.points > MAX_POINTS {
             return Err(Error::argument(
@@ -75,6 +87,7 @@ impl SynthParams {
                 path: path.clone(),
                 defect_share: self.csv_defects,
                 seed,
+                dialect: self.csv_dialect,
             }),
         })
     }
@@ -89,6 +102,7 @@ mod tests {
             points,
             csv: Some(PathBuf::from("r.csv")),
             csv_defects,
+            csv_dialect: CsvDialect::default(),
         }
     }
 
@@ -112,7 +126,8 @@ mod tests {
             Some(CsvExport {
                 path: PathBuf::from("r.csv"),
                 defect_share: 0.5,
-                seed: 7
+                seed: 7,
+                dialect: CsvDialect::CommaUtf8,
             })
         );
     }
