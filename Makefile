@@ -82,13 +82,15 @@ bench: build venv
 	tests/bench/scan_vs_numba.sh
 	tests/bench/areal_vs_pysal.sh
 	tests/bench/service_overhead.sh
+	tests/bench/import_dialects.sh
+	tests/bench/local_vs_pysal.sh
 
 # Fuzzes the import parsers (time strings, class mappings, row checks) for FUZZ_SECONDS each.
 # Needs cargo-fuzz (`cargo install cargo-fuzz`); stable Rust runs it with RUSTC_BOOTSTRAP=1.
 FUZZ_SECONDS ?= 60
 fuzz:
 	command -v cargo-fuzz >/dev/null || $(CARGO) install cargo-fuzz --locked
-	cd fuzz && for t in time_strings class_mapping import_rows; do \
+	cd fuzz && for t in time_strings class_mapping import_rows import_dialect; do \
 	  RUSTC_BOOTSTRAP=1 $(CARGO) fuzz run $$t -- -max_total_time=$(FUZZ_SECONDS) || exit 1; done
 
 # Reruns the scripts that produce the reference numbers (R spdep/spatstat, PySAL, SciPy, KDEpy).
