@@ -102,6 +102,20 @@ impl Ran {
     }
 }
 
+/// Every built-in tool's executable (the contract and vocabulary tests run them all).
+pub const TOOLS: &[&str] = &[
+    "stance-import",
+    "stance-synth",
+    "stance-density",
+    "stance-scan",
+    "stance-weights",
+    "stance-rates",
+    "stance-moran",
+    "stance-labels",
+    "stance-local",
+    "stance-render",
+];
+
 /// Runs executable `name` with `args` in `dir`.
 pub fn run_in(dir: &Path, name: &str, args: &[&str]) -> Ran {
     let output = Command::new(bin(name))

@@ -4,18 +4,7 @@
 use serde_json::Value;
 use stance_tests::{out_dir, provenance, run_in, sha256, tables};
 
-const TOOLS: &[&str] = &[
-    "stance-import",
-    "stance-synth",
-    "stance-density",
-    "stance-scan",
-    "stance-weights",
-    "stance-rates",
-    "stance-moran",
-    "stance-labels",
-    "stance-local",
-    "stance-render",
-];
+use stance_tests::TOOLS;
 
 /// Copies the committed sample into `dir` (tests never write next to the sample).
 fn sample_copy(dir: &std::path::Path) -> std::path::PathBuf {

@@ -10,18 +10,7 @@ use serde_json::Value;
 use stance_core::host::ogc::check_process_description;
 use stance_tests::{out_dir, rows, run_in, synth, tables};
 
-const TOOLS: &[&str] = &[
-    "stance-import",
-    "stance-synth",
-    "stance-density",
-    "stance-scan",
-    "stance-weights",
-    "stance-rates",
-    "stance-moran",
-    "stance-labels",
-    "stance-local",
-    "stance-render",
-];
+use stance_tests::TOOLS;
 
 /// Whole words (compared case-insensitively, words split at anything but letters, digits and
 /// `_`) that must not appear: program names, reference-library names (evidence belongs in tests
