@@ -2,7 +2,7 @@
 
 use std::collections::BTreeMap;
 
-use chrono::{DateTime, Datelike};
+use stance_core::time::Period;
 
 /// How records are split in time.
 #[derive(
@@ -23,16 +23,13 @@ pub enum Slice {
 /// The layer-name suffix of the slice holding UTC second `seconds`, e.g. `2026_03`; `None` for
 /// [`Slice::All`] or a time outside chrono's range.
 pub fn key(slice: Slice, seconds: i64) -> Option<String> {
-    let t = DateTime::from_timestamp(seconds, 0)?;
-    match slice {
-        Slice::Month => Some(format!("{:04}_{:02}", t.year(), t.month())),
-        Slice::Quarter => Some(format!("{:04}_q{}", t.year(), (t.month() - 1) / 3 + 1)),
-        Slice::Week => {
-            let week = t.iso_week();
-            Some(format!("{:04}_w{:02}", week.year(), week.week()))
-        }
-        Slice::All => None,
-    }
+    let period = match slice {
+        Slice::Month => Period::Month,
+        Slice::Quarter => Period::Quarter,
+        Slice::Week => Period::Week,
+        Slice::All => return None,
+    };
+    period.index(seconds).map(|i| period.suffix(i))
 }
 
 /// Records `0..n` grouped into slices, by key in order, with the number of records left out
