@@ -190,11 +190,11 @@ mod tests {
         let t = MARCH_4 + 5 * 3600;
         assert_eq!(Period::Day.index(t), Some(20516));
         assert_eq!(Period::Day.label(20516), "2026-03-04");
-        let week = Period::Week.index(t).unwrap();
+        let week = Period::Week.index(t).expect("in range");
         assert_eq!(Period::Week.label(week), "2026-W10");
         assert_eq!(Period::Week.start_seconds(week), Some(MARCH_4 - 2 * 86_400));
         assert_eq!(Period::Week.suffix(week), "2026_w10");
-        let month = Period::Month.index(t).unwrap();
+        let month = Period::Month.index(t).expect("in range");
         assert_eq!(month, 2026 * 12 + 2);
         assert_eq!(Period::Month.label(month), "2026-03");
         assert_eq!(Period::Month.suffix(month), "2026_03");
@@ -203,7 +203,7 @@ mod tests {
             Some(MARCH_4 - 3 * 86_400)
         );
         assert_eq!(Period::Month.label(month + 10), "2027-01");
-        let quarter = Period::Quarter.index(t).unwrap();
+        let quarter = Period::Quarter.index(t).expect("in range");
         assert_eq!(Period::Quarter.label(quarter), "2026-Q1");
         assert_eq!(Period::Quarter.label(quarter + 1), "2026-Q2");
         // Before 1970 the indices keep counting down without a gap.
@@ -216,15 +216,15 @@ mod tests {
         // Every day of 2026 through 2028 (a leap year in between): each period's index either
         // stays or grows by one from one day to the next, and each start maps back to itself.
         for period in [Period::Day, Period::Week, Period::Month, Period::Quarter] {
-            let mut previous = period.index(1_767_225_600).unwrap(); // 2026-01-01
+            let mut previous = period.index(1_767_225_600).expect("in range"); // 2026-01-01
             for day in 1..(3 * 366) {
                 let t = 1_767_225_600 + day * 86_400;
-                let i = period.index(t).unwrap();
+                let i = period.index(t).expect("in range");
                 assert!(
                     i == previous || i == previous + 1,
                     "{period:?} at day {day}"
                 );
-                let start = period.start_seconds(i).unwrap();
+                let start = period.start_seconds(i).expect("in range");
                 assert_eq!(period.index(start), Some(i));
                 assert!(start <= t);
                 previous = i;
