@@ -86,6 +86,15 @@ fn the_sample_confusion_matrices_are_within_sampling_error_of_the_planted_ones()
         "SELECT count(*), sum(in_reference) FROM labels_records",
     );
     assert_eq!(written, vec![vec!["20000".to_owned(), "2000".to_owned()]]);
+    // The records layer is a copy of the input: every input field, the stored CRS (EPSG:4326
+    // in the sample), the consensus beside the text of each record.
+    let copy = rows(
+        &path,
+        "SELECT (SELECT srs_id FROM gpkg_geometry_columns WHERE table_name = 'labels_records'), \
+         count(*) FROM labels_records WHERE text IS NOT NULL AND consensus IS NOT NULL \
+         AND time_utc IS NOT NULL",
+    );
+    assert_eq!(copy, vec![vec!["4326".to_owned(), "20000".to_owned()]]);
     let shares = rows(
         &path,
         "SELECT share_oppose_corrected + share_neutral_corrected + share_support_corrected \
@@ -408,4 +417,47 @@ fn a_planted_zone_survives_every_labeller_and_a_biased_zone_is_labeller_specific
          WHERE source_layer = 'scan_stance_clusters' AND found_under_all = 1",
     );
     assert_ne!(truth_found[0][0], "0");
+
+    // A labeller under which the scan found nothing: its cluster layer is empty (made here with
+    // GDAL's ogr2ogr, Debian gdal-bin). It is compared, not refused, and then no cluster is
+    // found under every labeller.
+    let status = std::process::Command::new("ogr2ogr")
+        .current_dir(&dir)
+        .args(["-update", "-where", "1 = 0", "-nln", "scan_none_clusters"])
+        .args(["clusters.gpkg", "clusters.gpkg", "scan_stance_clusters"])
+        .status()
+        .expect("run ogr2ogr (Debian gdal-bin)");
+    assert!(status.success());
+    let with_empty = run_in(
+        &dir,
+        "stance-labels",
+        &[
+            "--input",
+            "in.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--label-fields",
+            "label_a,label_b",
+            "--compare-layers",
+            "scan_stance_clusters,scan_none_clusters",
+            "--compare-file",
+            "clusters.gpkg",
+            "--compare-side-field",
+            "leans_to",
+            "--output",
+            "clusters.gpkg",
+            "--name",
+            "with_empty",
+            "-q",
+        ],
+    )
+    .ok();
+    assert_eq!(with_empty["results"]["comparison"]["found_under_all"], 0);
+    let rows_written = rows(&path, "SELECT count(*) FROM with_empty_clusters");
+    assert_eq!(rows_written[0][0], truth_found_count(&path));
+}
+
+/// Clusters of the truth's scan: each is one row of a comparison that includes it.
+fn truth_found_count(path: &Path) -> String {
+    rows(path, "SELECT count(*) FROM scan_stance_clusters")[0][0].clone()
 }

@@ -19,8 +19,6 @@ pub struct Records {
     pub labels: Vec<Vec<usize>>,
     /// The reference class of every hand-coded record (None elsewhere).
     pub reference: Option<Vec<Option<usize>>>,
-    /// The kept fields, as text.
-    pub kept: Vec<Vec<Option<String>>>,
 }
 
 /// The areas as read.
@@ -49,7 +47,6 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
             .map(|f| (f.as_str(), FieldWant::Text)),
     );
     wants.extend(config.flag.iter().map(|f| (f.as_str(), FieldWant::Real)));
-    wants.extend(config.keep.iter().map(|f| (f.as_str(), FieldWant::Text)));
     let layer = read::read_points(
         &path,
         run.common.layer.as_deref(),
@@ -102,14 +99,12 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
         }
         None => None,
     };
-    let kept = columns.map(Column::as_texts).collect();
     run.debug(format!("read {} records", layer.fids.len()));
     Ok(Records {
         layer,
         path,
         labels,
         reference,
-        kept,
     })
 }
 
@@ -182,7 +177,7 @@ pub fn read_compared(
     let mut layers = Vec::new();
     for name in &compare.layers {
         let target = PolygonCrs::Into(&records.layer.srs);
-        let layer = read::read_polygons(&path, Some(name), &wants, target)?;
+        let layer = read::read_polygons_or_none(&path, Some(name), &wants, target)?;
         if path == records.path {
             run.note_input_layer(&layer.layer);
         } else {

@@ -66,9 +66,10 @@ impl Tool for Labels {
             OutputDecl {
                 id: "records",
                 title: "Records with consensus labels",
-                description: "Point layer <name>_records (working CRS): record_fid, the label fields (as classes), \
-                    reference_class, in_reference, kept fields, consensus (a class or \
-                    'undecided'), consensus_votes, consensus_share, consensus_posterior, all_agree.",
+                description: "Point layer <name>_records: a copy of the input records (every field, \
+                    the stored CRS) with in_reference (when a hand-coded subset is given), \
+                    consensus (a class or 'undecided'), consensus_votes, consensus_share, \
+                    consensus_posterior, all_agree.",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },
             OutputDecl {
@@ -118,7 +119,7 @@ impl Tool for Labels {
         run.progress.set(0.7);
         run.progress.phase("writing");
         let name = run.layer_name("records");
-        output::write_records(run, &name, &config, &records, &consensus)?;
+        output::write_records(run, &name, &records, &consensus)?;
         let area_name = write_areas(run, &config, areas.as_ref(), &per_area)?;
         let comparison = compare_clusters(&config, &records, run)?;
         run.progress.set(1.0);

@@ -31,76 +31,59 @@ pub fn snake(name: &str) -> String {
         .collect()
 }
 
-/// Writes the records layer `name`: the points (in the working CRS) with the labels as classes,
-/// the reference, the kept fields and the consensus. Returns the rows written.
+/// Writes the records layer `name`: a copy of the input points (every field, the stored CRS)
+/// with the consensus fields added. Returns the rows written.
 ///
 /// # Errors
-/// Staging failures.
+/// Staging failures; an input field already named like an added one.
 pub fn write_records(
     run: &mut Run,
     name: &str,
-    config: &Config,
     records: &Records,
     consensus: &[Consensus],
 ) -> Result<u64> {
-    let mut fields = vec![FieldDef::new("record_fid", FieldKind::Integer)];
-    fields.extend(
-        config
-            .labels
-            .iter()
-            .map(|f| FieldDef::new(f, FieldKind::Text)),
-    );
-    if config.reference.is_some() {
-        fields.push(FieldDef::new("reference_class", FieldKind::Text));
-        fields.push(FieldDef::new("in_reference", FieldKind::Integer));
+    let mut extra = Vec::new();
+    if let Some(reference) = &records.reference {
+        extra.push((
+            FieldDef::new("in_reference", FieldKind::Integer),
+            ExtraColumn::Integer(
+                reference
+                    .iter()
+                    .map(|r| Some(i64::from(r.is_some())))
+                    .collect(),
+            ),
+        ));
     }
-    fields.extend(
-        config
-            .keep
-            .iter()
-            .map(|f| FieldDef::new(f, FieldKind::Text)),
-    );
-    for (f, kind) in [
-        ("consensus", FieldKind::Text),
-        ("consensus_votes", FieldKind::Integer),
-        ("consensus_share", FieldKind::Real),
-        ("consensus_posterior", FieldKind::Real),
-        ("all_agree", FieldKind::Integer),
-    ] {
-        fields.push(FieldDef::new(f, kind));
-    }
+    let texts = consensus
+        .iter()
+        .map(|c| Some(c.class.map_or("undecided", class_label).to_owned()));
+    let ints = |f: &dyn Fn(&Consensus) -> i64| consensus.iter().map(|c| Some(f(c))).collect();
+    let reals = |f: &dyn Fn(&Consensus) -> f64| consensus.iter().map(|c| Some(f(c))).collect();
+    extra.extend([
+        (
+            FieldDef::new("consensus", FieldKind::Text),
+            ExtraColumn::Text(texts.collect()),
+        ),
+        (
+            FieldDef::new("consensus_votes", FieldKind::Integer),
+            ExtraColumn::Integer(ints(&|c| c.votes as i64)),
+        ),
+        (
+            FieldDef::new("consensus_share", FieldKind::Real),
+            ExtraColumn::Real(reals(&|c| c.share)),
+        ),
+        (
+            FieldDef::new("consensus_posterior", FieldKind::Real),
+            ExtraColumn::Real(reals(&|c| c.posterior)),
+        ),
+        (
+            FieldDef::new("all_agree", FieldKind::Integer),
+            ExtraColumn::Integer(ints(&|c| i64::from(c.unanimous))),
+        ),
+    ]);
     let layer = &records.layer;
-    let mut writer =
-        run.output()
-            .create_vector(name, GeometryKind::Point, Some(&layer.srs), &fields)?;
-    let mut values: Vec<FieldData> = Vec::with_capacity(fields.len());
-    for (i, c) in consensus.iter().enumerate() {
-        values.clear();
-        values.push(FieldData::Integer(layer.fids[i]));
-        values.extend(
-            records
-                .labels
-                .iter()
-                .map(|l| FieldData::Text(class_label(l[i]))),
-        );
-        if let Some(reference) = &records.reference {
-            values.push(reference[i].map_or(FieldData::Null, |c| FieldData::Text(class_label(c))));
-            values.push(FieldData::Integer(i64::from(reference[i].is_some())));
-        }
-        values.extend(
-            records
-                .kept
-                .iter()
-                .map(|k| k[i].as_deref().map_or(FieldData::Null, FieldData::Text)),
-        );
-        values.push(FieldData::Text(c.class.map_or("undecided", class_label)));
-        values.push(FieldData::Integer(c.votes as i64));
-        values.push(FieldData::Real(c.share));
-        values.push(FieldData::Real(c.posterior));
-        values.push(FieldData::Integer(i64::from(c.unanimous)));
-        writer.add(Shape::Point(layer.x[i], layer.y[i]), &values)?;
-    }
-    writer.finish()
+    run.output()
+        .copy_with_fields(&records.path, &layer.layer, name, &layer.fids, &extra)
 }
 
 /// The fields added to the copy of the areas.

@@ -91,11 +91,6 @@ pub struct LabelsParams {
     /// Jaccard index from which a feature counts as found again in another compared layer.
     #[arg(long, value_name = "INDEX", default_value_t = 0.5)]
     pub match_jaccard: f64,
-
-    /// Further fields of the point layer copied (as text) to the records layer; no other field
-    /// of the input (texts, authors) is carried.
-    #[arg(long, value_name = "FIELD,…")]
-    pub keep_fields: Option<String>,
 }
 
 /// What `--compare-layers` compares.
@@ -134,8 +129,6 @@ pub struct Config {
     pub min_records: u64,
     /// Index into `labels` of the labeller corrected.
     pub correct: Option<usize>,
-    /// Fields kept on the records layer.
-    pub keep: Vec<String>,
     /// Layers compared (see [`Compare`]).
     pub compare: Option<Compare>,
 }
@@ -204,16 +197,6 @@ impl LabelsParams {
         if self.min_records < 2 {
             return Err(Error::argument("--min-records", "must be at least 2"));
         }
-        let keep = self.keep_fields.as_deref().map(list).unwrap_or_default();
-        if let Some(k) = keep
-            .iter()
-            .find(|k| labels.contains(k) || self.reference_field.as_ref() == Some(k))
-        {
-            return Err(Error::argument(
-                "--keep-fields",
-                format!("'{k}' is a label or reference field, already written as a class"),
-            ));
-        }
         let compare = self.compare()?;
         let correct = self
             .correct_field
@@ -234,7 +217,6 @@ impl LabelsParams {
             areas: self.areas.clone().map(|a| (a, self.areas_file.clone())),
             min_records: self.min_records,
             correct,
-            keep,
             compare,
             labels,
         })

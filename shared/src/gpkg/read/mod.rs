@@ -8,7 +8,9 @@ use rusqlite::types::ValueRef;
 
 mod polygons;
 
-pub use polygons::{project_polygons, read_polygons, PolygonCrs, PolygonLayer};
+pub use polygons::{
+    project_polygons, read_polygons, read_polygons_or_none, PolygonCrs, PolygonLayer,
+};
 
 use super::blob::{decode_point, PointBlob};
 use super::{crs, quote_identifier as q};

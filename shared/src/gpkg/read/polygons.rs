@@ -55,7 +55,38 @@ pub fn read_polygons(
     fields: &[(&str, FieldWant)],
     target: PolygonCrs<'_>,
 ) -> Result<PolygonLayer> {
-    let (layer, source_srs, polygons, fids, texts) = read_polygon_rows(path, layer, fields)?;
+    read_polygon_layer(path, layer, fields, target, Empty::Refuse)
+}
+
+/// [`read_polygons`] for a layer that may rightly hold no features, e.g. the clusters of a
+/// scan that found none: an empty layer comes back with no polygons instead of an error.
+///
+/// # Errors
+/// As [`read_polygons`], except for an empty layer.
+pub fn read_polygons_or_none(
+    path: &Path,
+    layer: Option<&str>,
+    fields: &[(&str, FieldWant)],
+    target: PolygonCrs<'_>,
+) -> Result<PolygonLayer> {
+    read_polygon_layer(path, layer, fields, target, Empty::Accept)
+}
+
+/// Whether a layer without features is an error.
+#[derive(Clone, Copy, PartialEq)]
+enum Empty {
+    Refuse,
+    Accept,
+}
+
+fn read_polygon_layer(
+    path: &Path,
+    layer: Option<&str>,
+    fields: &[(&str, FieldWant)],
+    target: PolygonCrs<'_>,
+    empty: Empty,
+) -> Result<PolygonLayer> {
+    let (layer, source_srs, polygons, fids, texts) = read_polygon_rows(path, layer, fields, empty)?;
     let mut columns = Vec::with_capacity(fields.len());
     for ((field, want), values) in fields.iter().zip(texts) {
         columns.push(text_to_column(path, &layer, field, *want, &fids, values)?);
@@ -208,6 +239,7 @@ fn read_polygon_rows(
     path: &Path,
     layer: Option<&str>,
     fields: &[(&str, FieldWant)],
+    empty: Empty,
 ) -> Result<PolygonRows> {
     let connection = crate::gpkg::open_sqlite_read(path)?;
     let (layer, geometry_type) =
@@ -286,7 +318,7 @@ fn read_polygon_rows(
             );
         }
     }
-    if fids.is_empty() {
+    if fids.is_empty() && empty == Empty::Refuse {
         return Err(bad("has no features".into()));
     }
     Ok((layer, srs, polygons, fids, texts))
