@@ -56,6 +56,44 @@ demo: build
 	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas district_moran \
 	  --field cluster --categorical --title "Veldmark: local Moran's I clusters of opposition share" \
 	  --png $(OUT)/district_clusters.png -q > /dev/null
+	$(BIN)/stance local --input $(OUT)/demo.gpkg --layer district_rates --statistic gi-star \
+	  --field rate_eb_global --weights district_weights --permutations 9999 \
+	  --output $(OUT)/demo.gpkg --name district_hotspots -q > $(OUT)/hotspots.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas district_hotspots \
+	  --field hot_cold --categorical --title "Veldmark: hot and cold spots of opposition share (Gi*)" \
+	  --png $(OUT)/district_hotspots.png -q > /dev/null
+	$(BIN)/stance local --input $(OUT)/demo.gpkg --layer district_rates --statistic join-count \
+	  --field rate_eb_global --rule "> 0.4" --weights district_weights --permutations 9999 \
+	  --output $(OUT)/demo.gpkg --name district_joins -q > $(OUT)/joins.json
+	$(BIN)/stance scan --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name mix \
+	  --model multinomial --max-radius-m 12000 --centres-cell-m 2000 --replicates 999 \
+	  --report-p 0.05 -q > $(OUT)/mix.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_diff \
+	  --overlay mix_clusters --title "Veldmark: multinomial scan clusters (p < 0.05) over support - oppose density" \
+	  --png $(OUT)/mix_clusters.png -q > /dev/null
+	$(BIN)/stance density --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name types \
+	  --cell-m 500 --type-probabilities --permutations 99 -q > $(OUT)/types.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface types_prob_oppose \
+	  --overlay types_prob_tolerance --title "Veldmark: probability that a record opposes, where it departs from constant" \
+	  --png $(OUT)/types_prob_oppose.png -q > /dev/null
+	$(BIN)/stance labels --input $(SAMPLE)/veldmark.gpkg --layer veldmark_records --label-fields label_a,label_b \
+	  --reference-field stance --reference-sample 500 --areas veldmark_districts --correct-field label_b \
+	  --output $(OUT)/demo.gpkg --name labels -q > $(OUT)/labels.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas labels_areas \
+	  --field all_agree_share --title "Veldmark: share of records on which both classifiers agree" \
+	  --png $(OUT)/labels_agreement.png -q > /dev/null
+	@for f in stance label_a label_b; do \
+	  $(BIN)/stance scan --input $(SAMPLE)/veldmark.gpkg --layer veldmark_records --stance-field $$f \
+	    --model ordinal --toward both --max-radius-m 12000 --centres-cell-m 2000 --replicates 199 \
+	    --report-p 0.05 --output $(OUT)/demo.gpkg --name scan_$$f -q > /dev/null || exit 1; \
+	done
+	$(BIN)/stance labels --input $(SAMPLE)/veldmark.gpkg --layer veldmark_records --label-fields label_a,label_b \
+	  --compare-layers scan_stance_clusters,scan_label_a_clusters,scan_label_b_clusters \
+	  --compare-file $(OUT)/demo.gpkg --compare-side-field leans_to \
+	  --output $(OUT)/demo.gpkg --name labels_robust -q > $(OUT)/labels_robust.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_diff \
+	  --overlay labels_robust_clusters --title "Veldmark: ordinal clusters under the truth and two classifiers" \
+	  --png $(OUT)/labels_robust.png -q > /dev/null
 	@tools/serve/demo.sh $(BIN)/stance $(OUT)
 	@echo "wrote $(OUT)/demo.gpkg:"; ogrinfo -q $(OUT)/demo.gpkg | sed 's/^/  /'
 	@echo "previews: $$(ls $(OUT)/*.png | tr '\n' ' ')"

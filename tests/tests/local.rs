@@ -350,7 +350,7 @@ fn getis_ord_matches_esda_and_spdep() {
         let got = columns(
             &out,
             &name,
-            &["g", "expected_g", "variance_g", "g_z", "p_permutation"],
+            &["g", "expected_g", "variance_g", "z", "p_permutation"],
         );
         let e = &esda[key];
         let (g, z_r) = (numbers(&e["g"]), numbers(&spdep[r_key]));

@@ -94,7 +94,7 @@ impl Tool for Local {
             title: "Places with local statistics",
             description: "Copy of the input layer <name> with, for join counts, attribute \
                 (attribute_b), join_count, tested, p_permutation, p_adjusted, cluster; for Gi / Gi*, \
-                value_analysed, g, expected_g, variance_g, g_z, g_p_analytic, p_permutation, \
+                value_analysed, g, expected_g, variance_g, z, p_analytic, p_permutation, \
                 p_adjusted, hot_cold (Gi*: self_weight); and is_island, neighbours. Global join counts in the summary.",
             media_type: GEOPACKAGE_MEDIA_TYPE,
         }]

@@ -1,6 +1,6 @@
 //! The per-place fields and the summary of a stance-local run: `join_count`, `tested`,
 //! `p_permutation`, `p_adjusted`, `cluster` for join counts; `g`, `expected_g`, `variance_g`,
-//! `g_z`, `g_p_analytic`, `p_permutation`, `p_adjusted`, `hot_cold` for Gi / Gi*.
+//! `z`, `p_analytic`, `p_permutation`, `p_adjusted`, `hot_cold` for Gi / Gi*.
 
 use serde_json::{json, Value};
 use stance_core::gpkg::stage::{ExtraColumn, FieldDef, FieldKind};
@@ -63,8 +63,8 @@ pub fn fields(links: &Links, stats: &Stats) -> Vec<(FieldDef, ExtraColumn)> {
                 (f("g", FieldKind::Real), real(&local.g)),
                 (f("expected_g", FieldKind::Real), real(&local.expected)),
                 (f("variance_g", FieldKind::Real), real(&local.variance)),
-                (f("g_z", FieldKind::Real), real(&local.z)),
-                (f("g_p_analytic", FieldKind::Real), real(&local.p_analytic)),
+                (f("z", FieldKind::Real), real(&local.z)),
+                (f("p_analytic", FieldKind::Real), real(&local.p_analytic)),
                 (
                     f("p_permutation", FieldKind::Real),
                     real(&local.p_permutation),
