@@ -93,6 +93,19 @@ pub fn region(pooled: &[f64]) -> Vec<bool> {
         .collect()
 }
 
+/// Records' worth of kernel weight a cell needs for its type probabilities to be written: a
+/// share estimated from fewer records than this is noise (our rule, stated in the summary).
+pub const MIN_RECORDS_NEAR: f64 = 5.0;
+
+/// Cells whose pooled kernel sum is at least [`MIN_RECORDS_NEAR`] times the kernel's peak
+/// `peak` (K_h(0), per m²): as if five records sat on the cell centre.
+pub fn supported(pooled: &[f64], peak: f64) -> Vec<bool> {
+    pooled
+        .iter()
+        .map(|v| v.is_finite() && *v >= MIN_RECORDS_NEAR * peak)
+        .collect()
+}
+
 /// T = Σ_{x in region} Σ_k (p̂_k(x) − p̄_k)².
 pub fn statistic(probabilities: &[Vec<f64>], mean: &[f64], region: &[bool]) -> f64 {
     let mut t = 0.0;
@@ -344,6 +357,16 @@ pub fn loo_statistic_at_points(x: &[f64], y: &[f64], labels: &[u8], sigma_m: f64
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn probabilities_are_written_only_where_five_records_worth_of_weight_fall() {
+        // Peak K_h(0) = 2 per m² (any value): a cell needs a pooled sum of 5 × 2 = 10.
+        let pooled = [0.0, 9.99, 10.0, 250.0, f64::NAN];
+        assert_eq!(
+            supported(&pooled, 2.0),
+            vec![false, false, true, true, false]
+        );
+    }
 
     #[test]
     fn probabilities_sum_to_one_and_region_and_statistic_by_hand() {

@@ -48,6 +48,7 @@ impl TypesPlan {
             "bandwidth_chosen_by": self.how,
             "cv_scores": self.cv_scores,
             "statistic_definition": "T = sum over the cells of the region and the classes of (p_k(x) - mean p_k)^2",
+            "probabilities_written_where": "the pooled kernel sum is at least 5 times the kernel's peak (as if 5 records sat on the cell centre)",
         })
     }
 }
@@ -185,6 +186,8 @@ pub fn slice_types(
         .map(|c| sums.iter().map(|s| s[c]).sum())
         .collect();
     let region = segregation::region(&pooled);
+    let peak = context.config.kernel.value(0.0, plan.h);
+    let supported = segregation::supported(&pooled, peak);
     let weights: Vec<f64> = groups.iter().map(|g| points.total_weight(g)).collect();
     let total: f64 = weights.iter().sum();
     let mean: Vec<f64> = weights
@@ -198,11 +201,18 @@ pub fn slice_types(
     };
     for (class, p) in Stance::ALL.iter().zip(&probabilities) {
         let name = run.layer_name(&slice.suffix(&format!("{}_{class}", output::PROB)));
+        // Written only where the estimate rests on some records: beyond, a ratio of kernel
+        // sums rests on one or two far points and reads 0 or 1.
+        let inside: Vec<f64> = p
+            .iter()
+            .zip(&supported)
+            .map(|(v, r)| if *r { *v } else { f64::NAN })
+            .collect();
         output::write_surface(
             run,
             target,
             &name,
-            p,
+            &inside,
             &Quantity::probability(*class, plan.h),
         )?;
     }
