@@ -41,21 +41,23 @@ pub fn normal_quantile(q: f64) -> f64 {
     if !(q > 0.0 && q < 1.0) {
         return f64::NAN;
     }
-    if q < 0.5 {
-        return -normal_quantile(1.0 - q);
-    }
+    // Solve 1 − Φ(x) = tail on the smaller tail, so that q near 0 keeps its precision.
+    let tail = q.min(1.0 - q);
     // Starting point: the tail approximation t − (c0 + c1 t + c2 t²)/(1 + d1 t + d2 t² + d3 t³)
-    // with t = √(−2 ln(1 − q)) (Abramowitz & Stegun 26.2.23, error < 4.5e-4).
-    let t = (-2.0 * (1.0 - q).ln()).sqrt();
+    // with t = √(−2 ln tail) (Abramowitz & Stegun 26.2.23, error < 4.5e-4).
+    let t = (-2.0 * tail.ln()).sqrt();
     let mut x = t
         - (2.515517 + 0.802853 * t + 0.010328 * t * t)
             / (1.0 + 1.432788 * t + 0.189269 * t * t + 0.001308 * t * t * t);
     let density = |x: f64| (-0.5 * x * x).exp() / (2.0 * std::f64::consts::PI).sqrt();
     for _ in 0..4 {
-        let tail = upper_tail(x);
-        x += (tail - (1.0 - q)) / density(x);
+        x += (upper_tail(x) - tail) / density(x);
     }
-    x
+    if q < 0.5 {
+        -x
+    } else {
+        x
+    }
 }
 
 #[cfg(test)]
