@@ -79,7 +79,10 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
         .map(|&c| class_of[c as usize])
         .collect();
     let Some(Column::DateTime(times)) = layer.columns.get(1) else {
-        return Err(bad(&config.time_field, "is not readable as date-times".into()));
+        return Err(bad(
+            &config.time_field,
+            "is not readable as date-times".into(),
+        ));
     };
     let times = times.clone();
     run.debug(format!("read {} records", layer.fids.len()));
@@ -129,7 +132,11 @@ pub fn read_areas(config: &Config, records: &Records, run: &mut Run) -> Result<A
 ///
 /// # Errors
 /// A missing layer or `cluster_no` field, or a cluster without a number.
-pub fn read_clusters(config: &Config, records: &Records, run: &mut Run) -> Result<Option<Clusters>> {
+pub fn read_clusters(
+    config: &Config,
+    records: &Records,
+    run: &mut Run,
+) -> Result<Option<Clusters>> {
     let Some(spec) = &config.clusters else {
         return Ok(None);
     };

@@ -97,8 +97,13 @@ impl Tool for Trend {
         let fields = output::area_fields(&tested);
         let polygons = &areas.polygons;
         let fids = &polygons.layer.fids;
-        run.output()
-            .copy_with_fields(&polygons.path, &polygons.layer.layer, &names.0, fids, &fields)?;
+        run.output().copy_with_fields(
+            &polygons.path,
+            &polygons.layer.layer,
+            &names.0,
+            fids,
+            &fields,
+        )?;
         let units = units(&counts, &areas, clusters.as_ref());
         let rows = output::write_periods(run, &names.1, &config, counts.range, &units)?;
         run.progress.set(1.0);
@@ -115,7 +120,12 @@ impl Tool for Trend {
             study: &counts.study,
             clusters: counts.clusters.len(),
         };
-        Ok(output::summary(&config, &counted, &tested, (&names.0, &names.1)))
+        Ok(output::summary(
+            &config,
+            &counted,
+            &tested,
+            (&names.0, &names.1),
+        ))
     }
 }
 

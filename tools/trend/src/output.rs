@@ -50,16 +50,37 @@ pub fn area_fields(tested: &Tested) -> Vec<(FieldDef, ExtraColumn)> {
     let p_adjusted = tested.p_adjusted.iter().map(|p| Some(*p));
     let classes = tested.classes.iter().map(|c| Some(c.label().to_owned()));
     vec![
-        (FieldDef::new("periods_used", FieldKind::Integer), ExtraColumn::Integer(used.collect())),
+        (
+            FieldDef::new("periods_used", FieldKind::Integer),
+            ExtraColumn::Integer(used.collect()),
+        ),
         (FieldDef::new("mk_s", FieldKind::Real), mk(|m| m.s)),
-        (FieldDef::new("mk_variance", FieldKind::Real), mk(|m| m.variance)),
+        (
+            FieldDef::new("mk_variance", FieldKind::Real),
+            mk(|m| m.variance),
+        ),
         (FieldDef::new("mk_z", FieldKind::Real), mk(|m| m.z)),
         (FieldDef::new("mk_p", FieldKind::Real), mk(|m| m.p)),
-        (FieldDef::new("p_adjusted", FieldKind::Real), real(p_adjusted)),
-        (FieldDef::new("sen_slope", FieldKind::Real), sen(|s| s.slope)),
-        (FieldDef::new("sen_slope_low", FieldKind::Real), sen(|s| s.low)),
-        (FieldDef::new("sen_slope_high", FieldKind::Real), sen(|s| s.high)),
-        (FieldDef::new("trend", FieldKind::Text), ExtraColumn::Text(classes.collect())),
+        (
+            FieldDef::new("p_adjusted", FieldKind::Real),
+            real(p_adjusted),
+        ),
+        (
+            FieldDef::new("sen_slope", FieldKind::Real),
+            sen(|s| s.slope),
+        ),
+        (
+            FieldDef::new("sen_slope_low", FieldKind::Real),
+            sen(|s| s.low),
+        ),
+        (
+            FieldDef::new("sen_slope_high", FieldKind::Real),
+            sen(|s| s.high),
+        ),
+        (
+            FieldDef::new("trend", FieldKind::Text),
+            ExtraColumn::Text(classes.collect()),
+        ),
     ]
 }
 
@@ -71,7 +92,10 @@ fn period_fields() -> Vec<FieldDef> {
         FieldDef::new("period_start", FieldKind::Text),
     ];
     for class in Stance::ALL {
-        fields.push(FieldDef::new(&format!("count_{}", class.label()), FieldKind::Integer));
+        fields.push(FieldDef::new(
+            &format!("count_{}", class.label()),
+            FieldKind::Integer,
+        ));
     }
     fields.push(FieldDef::new("count_total", FieldKind::Integer));
     for name in ["share", "share_se", "share_low", "share_high"] {
@@ -99,14 +123,18 @@ pub fn write_periods(
         })
         .collect();
     let rule = &config.rule;
-    let mut writer = run
-        .output()
-        .create_vector(name, GeometryKind::None, None, &period_fields())?;
+    let mut writer =
+        run.output()
+            .create_vector(name, GeometryKind::None, None, &period_fields())?;
     for unit in units {
         for (cell, (label, start)) in unit.counts.iter().zip(&labels) {
             let (cases, at_risk) = cases_at_risk(cell, rule.case, &rule.at_risk);
             let share = wilson::share(cases as f64, at_risk as f64, rule.z);
-            let number = |f: fn(&wilson::Share) -> f64| share.as_ref().map_or(FieldData::Null, |s| FieldData::Real(f(s)));
+            let number = |f: fn(&wilson::Share) -> f64| {
+                share
+                    .as_ref()
+                    .map_or(FieldData::Null, |s| FieldData::Real(f(s)))
+            };
             let count = |c: u64| FieldData::Integer(c as i64);
             writer.add(
                 Shape::None,

@@ -140,7 +140,10 @@ impl TrendParams {
         if self.min_periods < 3 {
             return Err(Error::argument(
                 "--min-periods",
-                format!("{} is too small: a trend test needs at least 3 periods", self.min_periods),
+                format!(
+                    "{} is too small: a trend test needs at least 3 periods",
+                    self.min_periods
+                ),
             ));
         }
         if self.clusters.is_none() && self.clusters_file.is_some() {

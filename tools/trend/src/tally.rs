@@ -62,7 +62,12 @@ mod tests {
     #[test]
     fn counts_by_unit_period_and_class() {
         let periods = [Some(5), Some(7), None, Some(5)];
-        let classes = [Stance::Oppose, Stance::Support, Stance::Oppose, Stance::Oppose];
+        let classes = [
+            Stance::Oppose,
+            Stance::Support,
+            Stance::Oppose,
+            Stance::Oppose,
+        ];
         let range = period_range(&periods).expect("range");
         assert_eq!(range, (5, 3));
         let units = [Some(0), Some(1), Some(0), None];

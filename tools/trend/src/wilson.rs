@@ -69,9 +69,21 @@ mod tests {
     /// via the published 1.959963984540054 and 2.575829303548901).
     #[test]
     fn quantiles() {
-        assert_relative_eq!(normal_quantile(0.975), 1.959963984540054, max_relative = 1e-13);
-        assert_relative_eq!(normal_quantile(0.995), 2.575829303548901, max_relative = 1e-13);
-        assert_relative_eq!(normal_quantile(0.025), -1.959963984540054, max_relative = 1e-13);
+        assert_relative_eq!(
+            normal_quantile(0.975),
+            1.959963984540054,
+            max_relative = 1e-13
+        );
+        assert_relative_eq!(
+            normal_quantile(0.995),
+            2.575829303548901,
+            max_relative = 1e-13
+        );
+        assert_relative_eq!(
+            normal_quantile(0.025),
+            -1.959963984540054,
+            max_relative = 1e-13
+        );
         assert!(normal_quantile(0.5).abs() < 1e-15);
     }
 

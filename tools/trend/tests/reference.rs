@@ -23,7 +23,8 @@ fn reference() -> Value {
 }
 
 fn f(v: &Value) -> f64 {
-    v.as_f64().unwrap_or_else(|| panic!("number expected, got {v}"))
+    v.as_f64()
+        .unwrap_or_else(|| panic!("number expected, got {v}"))
 }
 
 fn numbers(v: &Value) -> Vec<f64> {
@@ -75,7 +76,9 @@ fn hamed_rao_correction_matches_pymannkendall() {
             continue;
         }
         let plain = mann_kendall::test(&x);
-        let slope = sen_slope(&x, &t, plain.variance, z95()).expect("slope").slope;
+        let slope = sen_slope(&x, &t, plain.variance, z95())
+            .expect("slope")
+            .slope;
         let got = hamed_rao(&x, &t, slope, 0.05);
         assert_eq!(got.s, f(&h["s"]), "{name}: S");
         assert_relative_eq!(got.variance, f(&h["var_s"]), max_relative = TOLERANCE);
@@ -86,7 +89,10 @@ fn hamed_rao_correction_matches_pymannkendall() {
         }
     }
     // The check must exercise the correction, not only the uncorrected variance.
-    assert!(inflated >= 2, "only {inflated} series had a corrected variance");
+    assert!(
+        inflated >= 2,
+        "only {inflated} series had a corrected variance"
+    );
 }
 
 /// With no ties in time, S = τ_b √(n₀(n₀ − n₁)) (n₀ = n(n−1)/2, n₁ = Σ t(t−1)/2 over tied
@@ -113,7 +119,11 @@ fn score_and_variance_agree_with_scipy_kendalltau() {
         }
         let got = mann_kendall::test(&x);
         let s_from_tau = f(&k["tau_b"]) * (n0 * (n0 - n1)).sqrt();
-        assert!((got.s - s_from_tau).abs() < 1e-9, "{name}: S {} vs {s_from_tau}", got.s);
+        assert!(
+            (got.s - s_from_tau).abs() < 1e-9,
+            "{name}: S {} vs {s_from_tau}",
+            got.s
+        );
         let p = stance_core::normal::two_sided_p(got.s / got.variance.sqrt());
         assert_relative_eq!(p, f(&k["p_asymptotic"]), max_relative = TOLERANCE);
     }
@@ -131,12 +141,23 @@ fn sen_slope_matches_scipy_theilslopes_and_pymannkendall() {
             let got = sen_slope(&x, &t, variance, z).expect("slope");
             let e = &s[key];
             assert!((got.slope - f(&e["slope"])).abs() < 1e-12, "{name}: slope");
-            assert!((got.low - f(&e["low_slope"])).abs() < 1e-12, "{name} {key}: low {}", got.low);
-            assert!((got.high - f(&e["high_slope"])).abs() < 1e-12, "{name} {key}: high {}", got.high);
+            assert!(
+                (got.low - f(&e["low_slope"])).abs() < 1e-12,
+                "{name} {key}: low {}",
+                got.low
+            );
+            assert!(
+                (got.high - f(&e["high_slope"])).abs() < 1e-12,
+                "{name} {key}: high {}",
+                got.high
+            );
         }
         if !s["sens_slope"].is_null() {
             let got = sen_slope(&x, &t, variance, z95()).expect("slope");
-            assert!((got.slope - f(&s["sens_slope"])).abs() < 1e-12, "{name}: sens_slope");
+            assert!(
+                (got.slope - f(&s["sens_slope"])).abs() < 1e-12,
+                "{name}: sens_slope"
+            );
             assert!((got.slope - f(&s["original_test"]["slope"])).abs() < 1e-12);
         }
     }
@@ -149,8 +170,16 @@ fn wilson_intervals_match_statsmodels() {
     for w in r["wilson"].as_array().expect("wilson") {
         let (k, n, alpha) = (f(&w["k"]), f(&w["n"]), f(&w["alpha"]));
         let got = share(k, n, normal_quantile(1.0 - alpha / 2.0)).expect("share");
-        assert!((got.low - f(&w["low"])).abs() < 1e-12, "{k}/{n}: low {}", got.low);
-        assert!((got.high - f(&w["high"])).abs() < 1e-12, "{k}/{n}: high {}", got.high);
+        assert!(
+            (got.low - f(&w["low"])).abs() < 1e-12,
+            "{k}/{n}: low {}",
+            got.low
+        );
+        assert!(
+            (got.high - f(&w["high"])).abs() < 1e-12,
+            "{k}/{n}: high {}",
+            got.high
+        );
     }
 }
 
