@@ -208,6 +208,117 @@ fn the_autocorrelation_correction_matches_pymannkendall_through_the_executable()
     assert!((got[2] - f(&s["original_test"]["var_s"])).abs() > 1.0);
 }
 
+/// The fixture's area with the counts as fields n_{class}_{period} (GeoPackage `name`.gpkg,
+/// layer `areas`); `extra` is added to the oppose count of 2025-03.
+fn counted_areas(dir: &Path, x: &[f64], name: &str, extra: f64) -> PathBuf {
+    let mut header = String::from("WKT,code");
+    let mut row = String::from("\"POLYGON ((9.9 49.9,10.2 49.9,10.2 50.2,9.9 50.2,9.9 49.9))\",A");
+    for (k, share) in x.iter().enumerate() {
+        let oppose = (share * 60.0).round();
+        let period = format!("{}_{:02}", 2025 + k / 12, k % 12 + 1);
+        let oppose_here = if k == 2 { oppose + extra } else { oppose };
+        for (class, n) in [
+            ("oppose", oppose_here),
+            ("neutral", 0.0),
+            ("support", 60.0 - oppose),
+        ] {
+            header.push_str(&format!(",n_{class}_{period}"));
+            row.push_str(&format!(",{n}"));
+        }
+    }
+    let csv = dir.join(format!("{name}.csv"));
+    std::fs::write(&csv, format!("{header}\n{row}\n")).expect("write csv");
+    let gpkg = dir.join(format!("{name}.gpkg"));
+    ogr2ogr(&[
+        "-f",
+        "GPKG",
+        gpkg.to_str().expect("path"),
+        csv.to_str().expect("path"),
+        "-nln",
+        "areas",
+        "-a_srs",
+        "EPSG:4326",
+        "-nlt",
+        "POLYGON",
+        "-oo",
+        "AUTODETECT_TYPE=YES",
+    ]);
+    gpkg
+}
+
+/// The same counts given as fields of the areas (`--count-fields n_{class}_{period}`) give the
+/// same area row and the same area rows of the period table as the records.
+#[test]
+fn counts_on_the_areas_give_the_same_trend_as_the_records() {
+    let r = reference();
+    let s = find(&r, "rising");
+    let x: Vec<f64> = s["x"].as_array().expect("x").iter().map(f).collect();
+    let dir = out_dir("trend_count_fields");
+    let gpkg = fixture(&dir, &x, 60);
+    run_fixture(&dir, &gpkg, &[]);
+    let from_records = dir.join("records_run.gpkg");
+    std::fs::rename(dir.join("out.gpkg"), &from_records).expect("move output");
+    let counted = counted_areas(&dir, &x, "counted", 0.0);
+    let last = format!(
+        "{}-{:02}-01",
+        2025 + (x.len() - 1) / 12,
+        (x.len() - 1) % 12 + 1
+    );
+    let periods = format!("2025-01-01..{last}");
+    let summary = run_in(
+        &dir,
+        "stance-trend",
+        &[
+            "--input",
+            counted.to_str().expect("path"),
+            "--areas",
+            "areas",
+            "--id-field",
+            "code",
+            "--count-fields",
+            "n_{class}_{period}",
+            "--periods",
+            &periods,
+            "--case-class",
+            "oppose",
+            "--at-risk-classes",
+            "oppose,support",
+            "--adjust",
+            "none",
+            "--output",
+            "out.gpkg",
+            "-q",
+        ],
+    )
+    .ok();
+    assert_eq!(summary["results"]["counts_from"], "count fields");
+    let out = dir.join("out.gpkg");
+    assert_eq!(area_row(&out), area_row(&from_records));
+    let table = "SELECT * FROM trend_periods WHERE unit_kind = 'area' ORDER BY period";
+    assert_eq!(rows(&out, table), rows(&from_records, table));
+    // A count that is not a whole number is refused, naming the field.
+    let bad = counted_areas(&dir, &x, "bad", 0.5);
+    run_in(
+        &dir,
+        "stance-trend",
+        &[
+            "--input",
+            bad.to_str().expect("path"),
+            "--areas",
+            "areas",
+            "--count-fields",
+            "n_{class}_{period}",
+            "--periods",
+            &periods,
+            "--case-class",
+            "oppose",
+            "--output",
+            "bad_out.gpkg",
+        ],
+    )
+    .usage_error(&["n_oppose_2025_03", "whole"]);
+}
+
 /// The index of the district holding (lon, lat).
 fn district_at(lon: f64, lat: f64) -> usize {
     let wgs84 = crs::wgs84().expect("WGS 84");

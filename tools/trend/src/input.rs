@@ -10,7 +10,8 @@ use stance_core::gpkg::weights_table::AreaIds;
 use stance_core::host::Run;
 use stance_core::stance::{classify_codes, Stance};
 
-use crate::params::{Config, LayerRef};
+use crate::params::{count_field, Config, LayerRef, Source};
+use crate::tally::Tally;
 
 /// The point records with their class and time.
 pub struct Records {
@@ -36,6 +37,8 @@ pub struct Areas {
     pub polygons: Polygons,
     /// Their ids (feature ids or --id-field).
     pub ids: AreaIds,
+    /// The counts of --count-fields.
+    pub counts: Option<Tally>,
 }
 
 /// The clusters with their numbers as text.
@@ -50,14 +53,14 @@ pub struct Clusters {
 ///
 /// # Errors
 /// A missing layer or field, or stance labels the class map does not know.
-pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
+pub fn read_records(config: &Config, time_field: &str, run: &mut Run) -> Result<Records> {
     let input = run.input()?.to_owned();
     let layer = read::read_points(
         &input,
         run.common.layer.as_deref(),
         &[
             (config.stance_field.as_str(), FieldWant::Text),
-            (config.time_field.as_str(), FieldWant::DateTime),
+            (time_field, FieldWant::DateTime),
         ],
         run.common.crs.as_deref(),
     )?;
@@ -79,10 +82,7 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
         .map(|&c| class_of[c as usize])
         .collect();
     let Some(Column::DateTime(times)) = layer.columns.get(1) else {
-        return Err(bad(
-            &config.time_field,
-            "is not readable as date-times".into(),
-        ));
+        return Err(bad(time_field, "is not readable as date-times".into()));
     };
     let times = times.clone();
     run.debug(format!("read {} records", layer.fids.len()));
@@ -93,31 +93,44 @@ pub fn read_records(config: &Config, run: &mut Run) -> Result<Records> {
     })
 }
 
+/// Polygons in the records' CRS, or in the working CRS without records.
 fn read_layer(
     spec: &LayerRef,
     fields: &[(&str, FieldWant)],
-    records: &Records,
+    records: Option<&Records>,
     role: &str,
     run: &mut Run,
 ) -> Result<Polygons> {
     let input = run.input()?.to_owned();
     let path = spec.file.clone().unwrap_or(input);
-    let target = PolygonCrs::Into(&records.layer.srs);
+    let user_crs = run.common.crs.clone();
+    let target = match records {
+        Some(r) => PolygonCrs::Into(&r.layer.srs),
+        None => PolygonCrs::Working(user_crs.as_deref()),
+    };
     let layer = read::read_polygons(&path, Some(&spec.layer), fields, target)?;
     run.warn_invalid_polygons(&layer, role);
     run.note_layer(&path, &layer.layer)?;
     Ok(Polygons { path, layer })
 }
 
-/// The areas with their ids, in the records' CRS.
+/// The areas with their ids (and the counts of `--count-fields`), in the records' CRS.
 ///
 /// # Errors
-/// A missing layer or id field, missing, blank or repeated ids.
-pub fn read_areas(config: &Config, records: &Records, run: &mut Run) -> Result<Areas> {
+/// A missing layer, id or count field, missing, blank or repeated ids, counts that are not
+/// whole numbers ≥ 0.
+pub fn read_areas(config: &Config, records: Option<&Records>, run: &mut Run) -> Result<Areas> {
+    let count_fields = match &config.source {
+        Source::Fields { pattern, range } => (0..range.1 as i64)
+            .flat_map(|p| Stance::ALL.map(|c| count_field(pattern, c, config.period, range.0 + p)))
+            .collect(),
+        Source::Records { .. } => Vec::new(),
+    };
     let wants: Vec<(&str, FieldWant)> = config
         .id_field
         .iter()
         .map(|f| (f.as_str(), FieldWant::Text))
+        .chain(count_fields.iter().map(|f| (f.as_str(), FieldWant::Real)))
         .collect();
     let polygons = read_layer(&config.areas, &wants, records, "areas", run)?;
     let id = config
@@ -125,7 +138,51 @@ pub fn read_areas(config: &Config, records: &Records, run: &mut Run) -> Result<A
         .as_deref()
         .zip(polygons.layer.columns.first());
     let ids = areas::area_ids(&polygons.path, &polygons.layer, id)?;
-    Ok(Areas { polygons, ids })
+    let counts = match &config.source {
+        Source::Fields { range, .. } => {
+            let offset = usize::from(config.id_field.is_some());
+            Some(field_counts(&polygons, &count_fields, offset, *range)?)
+        }
+        Source::Records { .. } => None,
+    };
+    Ok(Areas {
+        polygons,
+        ids,
+        counts,
+    })
+}
+
+/// The counts of the count fields (three per period, in class order) as a tally per area.
+fn field_counts(
+    polygons: &Polygons,
+    fields: &[String],
+    offset: usize,
+    (first, periods): (i64, usize),
+) -> Result<Tally> {
+    let layer = &polygons.layer;
+    let mut counts = vec![vec![[0u64; 3]; periods]; layer.fids.len()];
+    for (k, field) in fields.iter().enumerate() {
+        let values = areas::non_negative(&polygons.path, layer, field, &layer.columns[offset + k])?;
+        for (area, value) in values.iter().enumerate() {
+            if value.fract() != 0.0 || *value > 1e15 {
+                return Err(Error::BadField {
+                    path: polygons.path.clone(),
+                    layer: layer.layer.clone(),
+                    field: field.clone(),
+                    message: format!(
+                        "holds {value} on feature {}; counts must be whole numbers",
+                        layer.fids[area]
+                    ),
+                });
+            }
+            counts[area][k / 3][k % 3] = *value as u64;
+        }
+    }
+    Ok(Tally {
+        first,
+        periods,
+        counts,
+    })
 }
 
 /// The clusters of `--clusters` with their `cluster_no`, in the records' CRS.
@@ -141,7 +198,7 @@ pub fn read_clusters(
         return Ok(None);
     };
     let wants = [("cluster_no", FieldWant::Text)];
-    let polygons = read_layer(spec, &wants, records, "clusters", run)?;
+    let polygons = read_layer(spec, &wants, Some(records), "clusters", run)?;
     let Some(column) = polygons.layer.columns.first() else {
         return Err(Error::Failed("cluster_no was not read".into()));
     };

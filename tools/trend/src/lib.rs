@@ -22,7 +22,7 @@ use stance_core::multiple::adjust;
 
 use input::{Areas, Clusters, Records};
 use output::{Counted, Tested, Unit};
-pub use params::{Config, TrendParams};
+pub use params::{Config, Source, TrendParams};
 use tally::{period_range, tally, Tally};
 
 /// The trend tool.
@@ -36,7 +36,8 @@ impl Tool for Trend {
     const DESCRIPTION: &'static str = "Counts the point records of each stance class per area \
         (point in polygon; a point on a shared boundary goes to the first area in the layer's \
         order) and calendar period (UTC day, ISO week, month or quarter of --time-field; records \
-        without a usable time are left out and counted). For the study area, each area and each \
+        without a usable time are left out and counted), or reads counts per class and period \
+        already on the areas (--count-fields, --periods). For the study area, each area and each \
         cluster polygon of --clusters it writes a period table: counts per class, the share of the \
         --case-class records among the --at-risk-classes records with its standard error and \
         Wilson (1927) score interval. Per area, the shares of the periods with at least \
@@ -52,8 +53,8 @@ impl Tool for Trend {
     const DEFAULT_NAME: &'static str = "trend";
     const INPUT: InputUse = InputUse::Required;
     const INPUT_DESCRIPTION: &'static str = "GeoPackage with the point records (a point layer \
-        with a stance field and a date-time field); also the default file of the areas and \
-        the clusters.";
+        with a stance field and a date-time field), unless the counts are on the areas \
+        (--count-fields); also the default file of the areas and the clusters.";
 
     fn outputs() -> Vec<OutputDecl> {
         vec![
@@ -80,14 +81,23 @@ impl Tool for Trend {
     }
 
     fn run(params: &TrendParams, run: &mut Run) -> Result<Value> {
-        let config = params.check()?;
+        let config = params.check(run.common.layer.is_some())?;
         run.progress.phase("reading");
-        let records = input::read_records(&config, run)?;
-        let areas = input::read_areas(&config, &records, run)?;
-        let clusters = input::read_clusters(&config, &records, run)?;
+        let records = match &config.source {
+            Source::Records { time_field } => Some(input::read_records(&config, time_field, run)?),
+            Source::Fields { .. } => None,
+        };
+        let areas = input::read_areas(&config, records.as_ref(), run)?;
+        let clusters = match &records {
+            Some(r) => input::read_clusters(&config, r, run)?,
+            None => None,
+        };
         run.progress.set(0.3);
         run.progress.phase("counting");
-        let counts = count(&config, &records, &areas, clusters.as_ref(), run)?;
+        let counts = match &records {
+            Some(r) => count(&config, r, &areas, clusters.as_ref(), run)?,
+            None => from_fields(&areas)?,
+        };
         run.progress.set(0.6);
         run.progress.phase("testing");
         let tested = test_areas(&config, &counts.areas);
@@ -114,7 +124,7 @@ impl Tool for Trend {
             names.1
         ));
         let counted = Counted {
-            records: records.classes.len(),
+            records: records.as_ref().map(|r| r.classes.len()),
             without_time: counts.without_time,
             outside_areas: counts.outside_areas,
             study: &counts.study,
@@ -132,7 +142,7 @@ impl Tool for Trend {
 /// The counts of every unit.
 struct Counts {
     range: (i64, usize),
-    without_time: usize,
+    without_time: Option<usize>,
     outside_areas: u64,
     study: Tally,
     areas: Tally,
@@ -152,11 +162,15 @@ fn count(
         .iter()
         .map(|t| t.and_then(|t| config.period.index(t)))
         .collect();
-    let without_time = period_of.iter().filter(|p| p.is_none()).count();
+    let without_time = Some(period_of.iter().filter(|p| p.is_none()).count());
+    let time_field = match &config.source {
+        Source::Records { time_field } => time_field.clone(),
+        Source::Fields { .. } => String::new(),
+    };
     let range = period_range(&period_of).ok_or_else(|| Error::BadField {
         path: run.input().map(|p| p.to_owned()).unwrap_or_default(),
         layer: records.layer.layer.clone(),
-        field: config.time_field.clone(),
+        field: time_field,
         message: "no record has a usable date-time (RFC 3339 / ISO 8601 expected)".into(),
     })?;
     let (x, y) = (&records.layer.x, &records.layer.y);
@@ -186,6 +200,34 @@ fn count(
         study,
         areas: by_area,
         clusters: by_cluster,
+    })
+}
+
+/// The counts of `--count-fields`; the study area is the sum of the areas.
+fn from_fields(areas: &Areas) -> Result<Counts> {
+    let tally = areas
+        .counts
+        .clone()
+        .ok_or_else(|| Error::Failed("count fields were not read".into()))?;
+    let mut study = vec![[0u64; 3]; tally.periods];
+    for area in &tally.counts {
+        for (total, cell) in study.iter_mut().zip(area) {
+            for c in 0..3 {
+                total[c] += cell[c];
+            }
+        }
+    }
+    Ok(Counts {
+        range: (tally.first, tally.periods),
+        without_time: None,
+        outside_areas: 0,
+        study: Tally {
+            first: tally.first,
+            periods: tally.periods,
+            counts: vec![study],
+        },
+        areas: tally,
+        clusters: Vec::new(),
     })
 }
 

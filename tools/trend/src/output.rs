@@ -160,10 +160,10 @@ pub fn write_periods(
 
 /// What the run read and counted, for the summary.
 pub struct Counted<'a> {
-    /// Records read.
-    pub records: usize,
-    /// Records without a usable time.
-    pub without_time: usize,
+    /// Records read (None: counts from fields).
+    pub records: Option<usize>,
+    /// Records without a usable time (None: counts from fields).
+    pub without_time: Option<usize>,
     /// Records with a time outside every area.
     pub outside_areas: u64,
     /// The study-area counts.
@@ -189,6 +189,7 @@ pub fn summary(config: &Config, counted: &Counted, tested: &Tested, layers: (&st
         "first_period": label(0),
         "last_period": label(counted.study.periods - 1),
         "periods": counted.study.periods,
+        "counts_from": if counted.records.is_some() { "records" } else { "count fields" },
         "records_read": counted.records,
         "records_without_time": counted.without_time,
         "records_outside_areas": counted.outside_areas,

@@ -4,8 +4,8 @@ use std::path::PathBuf;
 
 use stance_core::error::{Error, Result};
 use stance_core::multiple::Adjustment;
-use stance_core::stance::{class_map_option, parse_class, parse_class_list, ClassMap};
-use stance_core::time::Period;
+use stance_core::stance::{class_map_option, parse_class, parse_class_list, ClassMap, Stance};
+use stance_core::time::{parse_utc_seconds, Period};
 
 use crate::trend::Rule;
 use crate::wilson::normal_quantile;
@@ -38,7 +38,19 @@ pub struct TrendParams {
     /// Field holding the date-time of each record (RFC 3339 / ISO 8601, UTC when no zone is
     /// given); records without a usable time are left out and counted.
     #[arg(long, value_name = "FIELD")]
-    pub time_field: String,
+    pub time_field: Option<String>,
+
+    /// Counts already on the areas instead of point records: one field per class and period,
+    /// named by this pattern with {class} (oppose, neutral, support) and {period} (the period
+    /// as in layer names: 2026_03_04, 2026_w10, 2026_03, 2026_q1), e.g. "n_{class}_{period}";
+    /// needs --periods.
+    #[arg(long, value_name = "PATTERN")]
+    pub count_fields: Option<String>,
+
+    /// The periods of --count-fields: "FIRST..LAST", a date (or date-time) in the first and
+    /// one in the last period, e.g. 2026-01-01..2026-09-30.
+    #[arg(long, value_name = "FIRST..LAST")]
+    pub periods: Option<String>,
 
     /// Calendar period (UTC) of the counts and of the trend series.
     #[arg(long, value_enum, default_value_t = Period::Month)]
@@ -94,6 +106,30 @@ pub struct LayerRef {
     pub file: Option<PathBuf>,
 }
 
+/// Where the counts per area and period come from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Source {
+    /// Point records with a date-time field.
+    Records {
+        /// Field of the record times.
+        time_field: String,
+    },
+    /// Counts on the areas, one field per class and period.
+    Fields {
+        /// Field-name pattern with {class} and {period}.
+        pattern: String,
+        /// First period index and number of periods.
+        range: (i64, usize),
+    },
+}
+
+/// The field of `pattern` holding the counts of `class` in period `index`.
+pub fn count_field(pattern: &str, class: Stance, period: Period, index: i64) -> String {
+    pattern
+        .replace("{class}", class.label())
+        .replace("{period}", &period.suffix(index))
+}
+
 /// The checked parameters.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Config {
@@ -105,8 +141,8 @@ pub struct Config {
     pub stance_field: String,
     /// Labels → classes.
     pub classes: ClassMap,
-    /// Field of the record times.
-    pub time_field: String,
+    /// Records or count fields.
+    pub source: Source,
     /// The period.
     pub period: Period,
     /// Series, test and interval settings.
@@ -118,11 +154,11 @@ pub struct Config {
 }
 
 impl TrendParams {
-    /// Checks the options once.
+    /// Checks the options once; `points_layer` tells whether `--layer` was given.
     ///
     /// # Errors
     /// [`Error::BadArgument`] naming the option.
-    pub fn check(&self) -> Result<Config> {
+    pub fn check(&self, points_layer: bool) -> Result<Config> {
         let case = parse_class("--case-class", &self.case_class)?;
         let at_risk = parse_class_list("--at-risk-classes", &self.at_risk_classes)?;
         if !at_risk.contains(&case) {
@@ -149,6 +185,7 @@ impl TrendParams {
         if self.clusters.is_none() && self.clusters_file.is_some() {
             return Err(Error::argument("--clusters-file", "needs --clusters"));
         }
+        let source = self.source(points_layer)?;
         Ok(Config {
             areas: LayerRef {
                 layer: self.areas.clone(),
@@ -157,7 +194,7 @@ impl TrendParams {
             id_field: self.id_field.clone(),
             stance_field: self.stance_field.clone(),
             classes: class_map_option(self.classes.as_deref())?,
-            time_field: self.time_field.clone(),
+            source,
             period: self.period,
             rule: Rule {
                 case,
@@ -174,5 +211,71 @@ impl TrendParams {
                 file: self.clusters_file.clone(),
             }),
         })
+    }
+
+    fn source(&self, points_layer: bool) -> Result<Source> {
+        let Some(pattern) = &self.count_fields else {
+            if self.periods.is_some() {
+                return Err(Error::argument("--periods", "needs --count-fields"));
+            }
+            let time_field = self.time_field.clone().ok_or_else(|| {
+                Error::argument(
+                    "--time-field",
+                    "missing; give the date-time field of the records, or counts on the areas \
+                     with --count-fields and --periods",
+                )
+            })?;
+            return Ok(Source::Records { time_field });
+        };
+        for (given, option) in [
+            (self.time_field.is_some(), "--time-field"),
+            (points_layer, "--layer"),
+            (self.clusters.is_some(), "--clusters"),
+        ] {
+            if given {
+                return Err(Error::argument(
+                    option,
+                    "cannot be used with --count-fields (no point records are read)",
+                ));
+            }
+        }
+        if !(pattern.contains("{class}") && pattern.contains("{period}")) {
+            return Err(Error::argument(
+                "--count-fields",
+                format!("'{pattern}' must contain {{class}} and {{period}}"),
+            ));
+        }
+        let periods = self
+            .periods
+            .as_deref()
+            .ok_or_else(|| Error::argument("--count-fields", "needs --periods FIRST..LAST"))?;
+        Ok(Source::Fields {
+            pattern: pattern.clone(),
+            range: self.period_range(periods)?,
+        })
+    }
+
+    fn period_range(&self, text: &str) -> Result<(i64, usize)> {
+        let bad = |why: &str| {
+            Error::argument(
+                "--periods",
+                format!("'{text}' {why} (expected FIRST..LAST, two dates such as 2026-01-01..2026-09-30)"),
+            )
+        };
+        let (first, last) = text.split_once("..").ok_or_else(|| bad("has no '..'"))?;
+        let index = |t: &str| {
+            parse_utc_seconds(t)
+                .and_then(|s| self.period.index(s))
+                .ok_or_else(|| bad(&format!("holds '{}', not a date", t.trim())))
+        };
+        let (first, last) = (index(first)?, index(last)?);
+        if last < first {
+            return Err(bad("ends before it starts"));
+        }
+        let periods = usize::try_from(last - first + 1).map_err(|_| bad("is too long"))?;
+        if periods > 100_000 {
+            return Err(bad("spans more than 100 000 periods"));
+        }
+        Ok((first, periods))
     }
 }
