@@ -113,6 +113,7 @@ pub const TOOLS: &[&str] = &[
     "stance-moran",
     "stance-labels",
     "stance-local",
+    "stance-trend",
     "stance-render",
 ];
 

@@ -40,6 +40,7 @@ pub fn tools() -> Vec<Entry> {
         entry::<stance_moran::Moran>(),
         entry::<stance_labels::Labels>(),
         entry::<stance_local::Local>(),
+        entry::<stance_trend::Trend>(),
         entry::<stance_render::Render>(),
     ]
 }

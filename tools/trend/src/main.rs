@@ -1,0 +1,3 @@
+fn main() -> std::process::ExitCode {
+    stance_core::host::main::<stance_trend::Trend>()
+}
