@@ -54,10 +54,45 @@ pub fn erfc(x: f64) -> f64 {
     (-x * x).exp() / std::f64::consts::PI.sqrt() / f
 }
 
+/// The standard normal quantile Φ⁻¹(q) for 0 < q < 1: a rational first guess refined by
+/// Newton steps on the tail of [`upper_tail`] (to ~1e-15).
+pub fn quantile(q: f64) -> f64 {
+    if !(q > 0.0 && q < 1.0) {
+        return f64::NAN;
+    }
+    // Solve 1 − Φ(x) = tail on the smaller tail, so that q near 0 keeps its precision.
+    let tail = q.min(1.0 - q);
+    // Starting point: the tail approximation t − (c0 + c1 t + c2 t²)/(1 + d1 t + d2 t² + d3 t³)
+    // with t = √(−2 ln tail) (Abramowitz & Stegun 26.2.23, error < 4.5e-4).
+    let t = (-2.0 * tail.ln()).sqrt();
+    let mut x = t
+        - (2.515517 + 0.802853 * t + 0.010328 * t * t)
+            / (1.0 + 1.432788 * t + 0.189269 * t * t + 0.001308 * t * t * t);
+    let density = |x: f64| (-0.5 * x * x).exp() / (2.0 * std::f64::consts::PI).sqrt();
+    for _ in 0..4 {
+        x += (upper_tail(x) - tail) / density(x);
+    }
+    if q < 0.5 {
+        -x
+    } else {
+        x
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
+
+    /// Standard normal quantiles as tabulated (Abramowitz & Stegun, table 26.5, to 15 digits
+    /// via the published 1.959963984540054 and 2.575829303548901).
+    #[test]
+    fn quantiles() {
+        assert_relative_eq!(quantile(0.975), 1.959963984540054, max_relative = 1e-13);
+        assert_relative_eq!(quantile(0.995), 2.575829303548901, max_relative = 1e-13);
+        assert_relative_eq!(quantile(0.025), -1.959963984540054, max_relative = 1e-13);
+        assert!(quantile(0.5).abs() < 1e-15);
+    }
 
     #[test]
     fn tails_against_python_math() {

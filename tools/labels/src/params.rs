@@ -213,7 +213,7 @@ impl LabelsParams {
             flag: self.reference_flag_field.clone(),
             sample: self.reference_sample,
             weighting,
-            z: crate::confusion::normal_quantile(0.5 + self.confidence / 2.0),
+            z: stance_core::normal::quantile(0.5 + self.confidence / 2.0),
             areas: self.areas.clone().map(|a| (a, self.areas_file.clone())),
             min_records: self.min_records,
             correct,

@@ -7,7 +7,8 @@
 
 use approx::assert_relative_eq;
 use serde_json::Value;
-use stance_labels::confusion::{normal_quantile, scores};
+use stance_core::normal::quantile as normal_quantile;
+use stance_labels::confusion::scores;
 use stance_labels::kappa::{kappa, table, Weighting};
 use stance_labels::multi::{fleiss_kappa, krippendorff_ordinal};
 

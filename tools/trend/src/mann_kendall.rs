@@ -5,7 +5,7 @@
 
 use stance_core::normal::two_sided_p;
 
-use crate::wilson::normal_quantile;
+use stance_core::normal::quantile as normal_quantile;
 
 /// The test of one series.
 #[derive(Debug, Clone, Copy, PartialEq)]

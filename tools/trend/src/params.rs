@@ -8,7 +8,7 @@ use stance_core::stance::{class_map_option, parse_class, parse_class_list, Class
 use stance_core::time::{parse_utc_seconds, Period};
 
 use crate::trend::Rule;
-use crate::wilson::normal_quantile;
+use stance_core::normal::quantile as normal_quantile;
 
 /// Parameters of stance-trend.
 #[derive(Debug, Clone, clap::Args, serde::Serialize, schemars::JsonSchema)]

@@ -6,9 +6,10 @@
 
 use approx::assert_relative_eq;
 use serde_json::Value;
+use stance_core::normal::quantile as normal_quantile;
 use stance_trend::mann_kendall::{self, hamed_rao};
 use stance_trend::sen::sen_slope;
-use stance_trend::wilson::{normal_quantile, share};
+use stance_trend::wilson::share;
 
 /// 1e-9 relative: the same closed forms evaluated in double precision on both sides (sums in
 /// another order; observed differences ~1e-15).
