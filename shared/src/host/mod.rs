@@ -6,6 +6,7 @@ pub mod describe;
 pub mod neighbours;
 pub mod ogc;
 mod progress;
+pub mod shard;
 
 use std::ffi::OsString;
 use std::io::Write;
@@ -480,6 +481,18 @@ impl Run {
     /// completes.
     pub fn output(&mut self) -> &mut Staging {
         &mut self.staging
+    }
+
+    /// SHA-256 of the input file and of every extra input read so far, in reading order.
+    ///
+    /// # Errors
+    /// A file that cannot be hashed.
+    pub fn input_checksums(&mut self) -> Result<Vec<String>> {
+        let mut sums = Vec::new();
+        for input in self.input.iter_mut().chain(self.extra_inputs.iter_mut()) {
+            sums.push(input.sha256()?);
+        }
+        Ok(sums)
     }
 
     /// The output layer name for `suffix` (`<name>_<suffix>`, or `<name>` for an empty suffix).

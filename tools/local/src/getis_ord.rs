@@ -14,7 +14,7 @@
 use rayon::prelude::*;
 use stance_core::weights::SparseWeights;
 
-use crate::permutation::{conditional_counts, p_two_sided, Replicates};
+use crate::permutation::{conditional_counts, p_two_sided, Counts, Replicates};
 use stance_core::normal::two_sided_p;
 
 /// The local Getis–Ord statistics of every area (NaN for areas without neighbours).
@@ -32,6 +32,8 @@ pub struct LocalG {
     pub p_analytic: Vec<f64>,
     /// Two-sided conditional-permutation p (NaN without permutations).
     pub p_permutation: Vec<f64>,
+    /// Permuted lags ≥ and ≤ the observed one, per area (what shards add up).
+    pub counts: Vec<Counts>,
 }
 
 /// Errors of the statistics.
@@ -52,7 +54,7 @@ pub fn local_g(
     x: &[f64],
     w: &SparseWeights,
     self_weights: Option<&[f64]>,
-    replicates: Replicates,
+    replicates: &Replicates,
     progress: &dyn Fn(usize),
 ) -> Result<LocalG, GError> {
     if let Some(i) = x.iter().position(|v| !(v.is_finite() && *v >= 0.0)) {
@@ -112,6 +114,7 @@ pub fn local_g(
         z: column(3),
         p_analytic: column(4),
         p_permutation,
+        counts,
     })
 }
 
@@ -139,6 +142,8 @@ mod tests {
     const NONE: Replicates = Replicates {
         permutations: 0,
         stream: 0,
+        drawn: 0..0,
+        given: None,
     };
 
     #[test]
@@ -149,7 +154,7 @@ mod tests {
         }
         .standardise(Standardisation::Binary);
         let x = [1.0, 2.0, 3.0, 10.0];
-        let g = local_g(&x, &w, None, NONE, &|_| {}).expect("valid");
+        let g = local_g(&x, &w, None, &NONE, &|_| {}).expect("valid");
         // Area 1: G = (1 + 3) / (16 − 2) = 4/14; n' = 3, W = 2, S1 = 2, E = 2/3;
         // others 1, 3, 10: mean 14/3, s² = 110/3 − (14/3)² = 134/9;
         // Var = (134/9)(3·2 − 4) / (2 · 9 · (14/3)²) = (268/9) / 392 = 268/3528.
@@ -158,12 +163,12 @@ mod tests {
         assert_relative_eq!(g.variance[1], 268.0 / 3528.0, max_relative = 1e-12);
         // Gi*: area 1 with w_11 = 1: G* = (1 + 2 + 3) / 16; n' = 4, W = 3, S1 = 3, E = 3/4;
         // mean 4, s² = 114/4 − 16 = 12.5; Var = 12.5 (12 − 9) / (3 · 16 · 16) = 37.5/768.
-        let star = local_g(&x, &w, Some(&[1.0; 4]), NONE, &|_| {}).expect("valid");
+        let star = local_g(&x, &w, Some(&[1.0; 4]), &NONE, &|_| {}).expect("valid");
         assert_relative_eq!(star.g[1], 6.0 / 16.0, max_relative = 1e-14);
         assert_relative_eq!(star.expected[1], 0.75, max_relative = 1e-14);
         assert_relative_eq!(star.variance[1], 37.5 / 768.0, max_relative = 1e-12);
-        assert!(local_g(&[1.0, -1.0, 2.0, 3.0], &w, None, NONE, &|_| {}).is_err());
-        assert!(local_g(&[0.0; 4], &w, None, NONE, &|_| {}).is_err());
+        assert!(local_g(&[1.0, -1.0, 2.0, 3.0], &w, None, &NONE, &|_| {}).is_err());
+        assert!(local_g(&[0.0; 4], &w, None, &NONE, &|_| {}).is_err());
     }
 
     #[test]

@@ -13,7 +13,7 @@
 
 use stance_core::weights::SparseWeights;
 
-use crate::permutation::{conditional_counts, p_greater, Replicates};
+use crate::permutation::{conditional_counts, p_greater, Counts, Replicates};
 
 /// Which local join count.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -35,6 +35,8 @@ pub struct LocalJoins {
     pub tested: Vec<bool>,
     /// Upper-tail conditional-permutation p (NaN when not tested or without permutations).
     pub p_permutation: Vec<f64>,
+    /// Permuted lags ≥ and ≤ the observed one, per area (what shards add up).
+    pub counts: Vec<Counts>,
 }
 
 /// The factor f_i and neighbour value v_j of `kind` from the attributes `x` and `z`.
@@ -64,7 +66,7 @@ pub fn local_join_counts(
     x: &[bool],
     z: &[bool],
     w: &SparseWeights,
-    replicates: Replicates,
+    replicates: &Replicates,
     progress: &dyn Fn(usize),
 ) -> LocalJoins {
     let (factor, v) = factor_and_value(kind, x, z);
@@ -97,6 +99,7 @@ pub fn local_join_counts(
         join_count,
         tested,
         p_permutation,
+        counts,
     }
 }
 
@@ -212,6 +215,8 @@ mod tests {
     const NONE: Replicates = Replicates {
         permutations: 0,
         stream: 0,
+        drawn: 0..0,
+        given: None,
     };
 
     #[test]
@@ -221,17 +226,17 @@ mod tests {
         let w = path5();
         let x = [true, true, false, true, true];
         let z = [false, false, true, false, false];
-        let u = local_join_counts(JoinKind::Univariate, &x, &z, &w, NONE, &|_| {});
+        let u = local_join_counts(JoinKind::Univariate, &x, &z, &w, &NONE, &|_| {});
         assert_eq!(u.join_count, vec![1.0, 1.0, 0.0, 1.0, 1.0]);
         assert_eq!(u.tested, vec![true, true, false, true, true]);
         // Bivariate: areas with x next to areas with z: 1 (→ 2) and 3 (→ 2).
-        let b = local_join_counts(JoinKind::Bivariate, &x, &z, &w, NONE, &|_| {});
+        let b = local_join_counts(JoinKind::Bivariate, &x, &z, &w, &NONE, &|_| {});
         assert_eq!(b.join_count, vec![0.0, 1.0, 0.0, 1.0, 0.0]);
         // Co-location: no area holds both, so nothing is tested.
-        let c = local_join_counts(JoinKind::CoLocation, &x, &z, &w, NONE, &|_| {});
+        let c = local_join_counts(JoinKind::CoLocation, &x, &z, &w, &NONE, &|_| {});
         assert!(c.tested.iter().all(|t| !t));
         let both = [true, true, true, false, false];
-        let c = local_join_counts(JoinKind::CoLocation, &both, &both, &w, NONE, &|_| {});
+        let c = local_join_counts(JoinKind::CoLocation, &both, &both, &w, &NONE, &|_| {});
         assert_eq!(c.join_count, vec![1.0, 2.0, 1.0, 0.0, 0.0]);
     }
 

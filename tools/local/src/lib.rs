@@ -10,12 +10,12 @@ pub mod output;
 pub mod params;
 pub mod permutation;
 pub mod rule;
+mod shards;
 
 use serde_json::Value;
 use stance_core::error::{Error, Result};
 use stance_core::gpkg::areas;
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
-use stance_core::montecarlo::mix64;
 use stance_core::multiple::adjust;
 use stance_core::weights::{SparseWeights, Standardisation};
 
@@ -28,9 +28,6 @@ use permutation::Replicates;
 /// The local-statistics tool.
 #[derive(Debug)]
 pub struct Local;
-
-/// Stream offset of the conditional permutations.
-const STREAM: u64 = 0x4C4F_4341_4C5F_4A43;
 
 /// The statistics of a run.
 pub enum Stats {
@@ -113,9 +110,13 @@ impl Tool for Local {
         run.debug(format!("weights ready ({})", links.source));
         run.progress.set(0.2);
         run.progress.phase("permutations");
-        let stats = compute(&config, &places, &links, run)?;
+        let shards = shards::prepare(params, &config, run)?;
+        let stats = compute(&config, &places, &links, run, shards.replicates(&config))?;
         run.check_interrupted()?;
         run.progress.phase("writing");
+        if let Some(summary) = shards.write_shard(&stats, run)? {
+            return Ok(summary);
+        }
         let name = run.layer_name("");
         let extra = output::fields(&links, &stats);
         run.output()
@@ -128,16 +129,14 @@ impl Tool for Local {
     }
 }
 
-/// The replicates of a run and a progress report from 0.2 to 0.9 of the whole.
-fn replicates(config: &Config) -> Replicates {
-    Replicates {
-        permutations: config.permutations,
-        stream: mix64(config.seed ^ STREAM),
-    }
-}
-
-/// The statistics of the configured analysis.
-fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<Stats> {
+/// The statistics of the configured analysis, over `replicates`.
+fn compute(
+    config: &Config,
+    places: &Input,
+    links: &Links,
+    run: &Run,
+    replicates: Replicates,
+) -> Result<Stats> {
     let total = config.permutations as u64;
     let report = |done: usize| {
         let share = done as f64 / config.permutations.max(1) as f64;
@@ -153,8 +152,7 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
                 .transpose()?;
             let w = links.neighbours.standardise(Standardisation::Binary);
             let zz = z.clone().unwrap_or_else(|| vec![false; x.len()]);
-            let local =
-                joincount::local_join_counts(*kind, &x, &zz, &w, replicates(config), &report);
+            let local = joincount::local_join_counts(*kind, &x, &zz, &w, &replicates, &report);
             let mut global = vec![joincount::global_join_counts(&x, &w)];
             if *kind != JoinKind::Univariate {
                 global.push(joincount::global_join_counts(&zz, &w));
@@ -185,14 +183,9 @@ fn compute(config: &Config, places: &Input, links: &Links, run: &Run) -> Result<
         Analysis::Getis { star, field, row } => {
             let values = places.values(field)?;
             let (w, self_weights) = getis_weights(links, *star, *row);
-            let local = getis_ord::local_g(
-                &values,
-                &w,
-                self_weights.as_deref(),
-                replicates(config),
-                &report,
-            )
-            .map_err(|e| g_error(places, field, e))?;
+            let local =
+                getis_ord::local_g(&values, &w, self_weights.as_deref(), &replicates, &report)
+                    .map_err(|e| g_error(places, field, e))?;
             let p = if config.permutations > 0 {
                 &local.p_permutation
             } else {

@@ -5,6 +5,7 @@ use std::path::PathBuf;
 use stance_core::error::{Error, Result};
 use stance_core::host::neighbours::NeighbourArgs;
 use stance_core::host::neighbours::WeightsSource;
+use stance_core::host::shard::{ShardArgs, Sharding};
 use stance_core::multiple::Adjustment;
 use stance_core::stance::{class_map_option, parse_class, ClassMap, Stance};
 use stance_core::weights::Method;
@@ -122,6 +123,11 @@ pub struct LocalParams {
     /// Significance level of the cluster and hot/cold flags (on the adjusted p-values).
     #[arg(long, value_name = "P", default_value_t = 0.05)]
     pub alpha: f64,
+
+    /// Sharding of the permutations over several runs (e.g. a cluster's job array).
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub shards: ShardArgs,
 }
 
 /// How a place gets a binary attribute.
@@ -204,6 +210,8 @@ pub struct Config {
     pub adjustment: Adjustment,
     /// Significance level of the flags.
     pub alpha: f64,
+    /// The whole run, one shard of its permutations, or the merge of the shards.
+    pub sharding: Sharding,
 }
 
 impl LocalParams {
@@ -229,6 +237,7 @@ impl LocalParams {
             seed,
             adjustment: self.adjust,
             alpha: self.alpha,
+            sharding: self.shards.sharding()?,
         })
     }
 

@@ -22,12 +22,28 @@ const SHARED_DRAW_VALUES: usize = 1 << 21;
 pub type Counts = [u32; 2];
 
 /// The draws of a test: number of permutations and the random stream.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Replicates {
-    /// Random relabellings.
+    /// Random relabellings R of the whole test (the p-values' denominator is R + 1).
     pub permutations: usize,
     /// Stream of permutation r's generator, [`Draws`]`::new(stream, r)`.
     pub stream: u64,
+    /// The permutations drawn in this run: all of `0..permutations`, or a shard's block.
+    pub drawn: std::ops::Range<usize>,
+    /// Counts of every permutation gathered from shards: used instead of drawing.
+    pub given: Option<Vec<Counts>>,
+}
+
+impl Replicates {
+    /// All `permutations` drawn from `stream`.
+    pub fn all(permutations: usize, stream: u64) -> Self {
+        Replicates {
+            permutations,
+            stream,
+            drawn: 0..permutations,
+            given: None,
+        }
+    }
 }
 
 /// An ordered sample of `depth` distinct integers from `0..n`: the first `depth` steps of a
@@ -140,34 +156,37 @@ impl Block {
     }
 }
 
-/// Per area, how many conditionally permuted lags Σ_j w_ij v_π(j) were ≥ and ≤ `observed[i]`;
-/// only areas with `tested[i]` (and neighbours) are counted, the others stay [0, 0].
+/// Per area, how many conditionally permuted lags Σ_j w_ij v_π(j) were ≥ and ≤ `observed[i]`,
+/// over the permutations `replicates.drawn` (or the counts given from shards); only areas with
+/// `tested[i]` (and neighbours) are counted, the others stay [0, 0]. Permutation r's draws
+/// depend only on r, so counts over disjoint blocks add up to the counts over their union.
 /// `progress` is told how many permutations are done after each block.
 pub fn conditional_counts(
     v: &[f64],
     w: &SparseWeights,
     observed: &[f64],
     tested: &[bool],
-    replicates: Replicates,
+    replicates: &Replicates,
     progress: &dyn Fn(usize),
 ) -> Vec<Counts> {
     let n = v.len();
-    let Replicates {
-        permutations,
-        stream,
-    } = replicates;
+    if let Some(given) = &replicates.given {
+        progress(replicates.permutations);
+        return given.clone();
+    }
+    let (stream, span) = (replicates.stream, replicates.drawn.clone());
     let mut counts = vec![[0u32; 2]; n];
-    if permutations == 0 || n < 2 {
+    if span.is_empty() || n < 2 {
         return counts;
     }
     let most = (0..n).map(|i| w.row(i).0.len()).max().unwrap_or(0);
     let depth = (most + 1).min(n);
     let block = (SHARED_DRAW_VALUES / depth)
-        .min(permutations.div_ceil(10))
-        .clamp(1, permutations);
-    let mut first = 0;
-    while first < permutations {
-        let used = block.min(permutations - first);
+        .min(span.len().div_ceil(10))
+        .clamp(1, span.len());
+    let mut first = span.start;
+    while first < span.end {
+        let used = block.min(span.end - first);
         let drawn = Block::draw(v, depth, first, used, stream);
         counts.par_iter_mut().enumerate().for_each(|(i, count)| {
             if tested[i] && !w.row(i).0.is_empty() && observed[i].is_finite() {
@@ -175,7 +194,7 @@ pub fn conditional_counts(
             }
         });
         first += used;
-        progress(first);
+        progress(first - span.start);
     }
     counts
 }
@@ -223,11 +242,8 @@ mod tests {
         let w = path(5).standardise(Standardisation::Binary);
         let observed = [4.0, f64::NAN, f64::NAN, f64::NAN, f64::NAN];
         let tested = [true, false, false, false, false];
-        let replicates = Replicates {
-            permutations: 20_000,
-            stream: 3,
-        };
-        let c = conditional_counts(&v, &w, &observed, &tested, replicates, &|_| {});
+        let replicates = Replicates::all(20_000, 3);
+        let c = conditional_counts(&v, &w, &observed, &tested, &replicates, &|_| {});
         let share = f64::from(c[0][0]) / 20_000.0;
         assert!((share - 0.5).abs() < 0.016, "{share}");
         // P(lag ≤ 4) = 3/4.
@@ -249,14 +265,37 @@ mod tests {
                 .build()
                 .expect("pool")
                 .install(|| {
-                    let replicates = Replicates {
-                        permutations: 99,
-                        stream: 5,
-                    };
-                    conditional_counts(&v, &w, &observed, &tested, replicates, &|_| {})
+                    let replicates = Replicates::all(99, 5);
+                    conditional_counts(&v, &w, &observed, &tested, &replicates, &|_| {})
                 })
         };
         assert_eq!(run(1), run(2));
+    }
+
+    #[test]
+    fn counts_over_blocks_add_up_to_the_whole() {
+        // Shards: permutations 0..37, 37..60, 60..99 drawn apart and summed give exactly the
+        // counts of 0..99 drawn at once.
+        let n = 120;
+        let v: Vec<f64> = (0..n).map(|i| ((i * 13) % 7) as f64).collect();
+        let w = path(n).standardise(Standardisation::Binary);
+        let observed: Vec<f64> = (0..n).map(|i| w.lag(i, &v)).collect();
+        let tested = vec![true; n];
+        let whole =
+            conditional_counts(&v, &w, &observed, &tested, &Replicates::all(99, 8), &|_| {});
+        let mut summed = vec![[0u32; 2]; n];
+        for drawn in [0..37, 37..60, 60..99] {
+            let part = Replicates {
+                drawn,
+                ..Replicates::all(99, 8)
+            };
+            let c = conditional_counts(&v, &w, &observed, &tested, &part, &|_| {});
+            for (s, c) in summed.iter_mut().zip(&c) {
+                s[0] += c[0];
+                s[1] += c[1];
+            }
+        }
+        assert_eq!(summed, whole);
     }
 
     #[test]

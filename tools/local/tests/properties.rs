@@ -14,6 +14,8 @@ use stance_local::permutation::Replicates;
 const NONE: Replicates = Replicates {
     permutations: 0,
     stream: 0,
+    drawn: 0..0,
+    given: None,
 };
 
 /// Rook neighbours of a rows × cols lattice.
@@ -45,7 +47,7 @@ proptest! {
     #[test]
     fn local_join_counts_add_up_to_twice_bb(x in proptest::collection::vec(any::<bool>(), 30)) {
         let w = lattice(5, 6).standardise(Standardisation::Binary);
-        let local = local_join_counts(JoinKind::Univariate, &x, &x, &w, NONE, &|_| {});
+        let local = local_join_counts(JoinKind::Univariate, &x, &x, &w, &NONE, &|_| {});
         let global = global_join_counts(&x, &w);
         let sum: f64 = local.join_count.iter().sum();
         prop_assert_eq!(sum, 2.0 * global.bb.count);
@@ -60,9 +62,9 @@ proptest! {
         prop_assume!(x.iter().sum::<f64>() > 1.0);
         let w = lattice(5, 6).standardise(Standardisation::Binary);
         let own = vec![1.0; 30];
-        let a = local_g(&x, &w, Some(&own), NONE, &|_| {}).expect("valid");
+        let a = local_g(&x, &w, Some(&own), &NONE, &|_| {}).expect("valid");
         let scaled: Vec<f64> = x.iter().map(|v| v * scale).collect();
-        let b = local_g(&scaled, &w, Some(&own), NONE, &|_| {}).expect("valid");
+        let b = local_g(&scaled, &w, Some(&own), &NONE, &|_| {}).expect("valid");
         for i in 0..30 {
             prop_assert!((a.g[i] - b.g[i]).abs() <= 1e-12 * a.g[i].abs().max(1.0));
             if a.z[i].is_finite() {

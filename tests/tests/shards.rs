@@ -1,0 +1,146 @@
+//! Sharded Monte Carlo runs: `--shard K/N` runs write partial results, `--merge-shards` merges
+//! them, and the merged outputs are bit-identical to the run on one machine with the same seed
+//! (every permutation has its own seed). Missing, duplicated and mismatched shards are refused,
+//! naming the shard.
+//!
+//! Data: the North Carolina SIDS counties (tests/reference/data/nc.gpkg, from R spdep's
+//! `nc.shp`), Gi* of SID79 and the local join count of SID79 > 5, queen contiguity built in
+//! the run.
+
+use std::path::Path;
+
+use stance_tests::{out_dir, root, rows, run_in};
+
+/// Gi* fields and the join-count fields, each printed with 17 significant digits (enough to
+/// tell any two doubles apart), in feature order.
+const GI_FIELDS: &str = "printf('%!.17g|%!.17g|%!.17g|%!.17g', g, z, p_permutation, p_adjusted) \
+     || '|' || coalesce(hot_cold, '')";
+const JOIN_FIELDS: &str = "printf('%!.17g|%!.17g|%!.17g', join_count, p_permutation, p_adjusted) \
+     || '|' || coalesce(cluster, '')";
+
+fn args<'a>(statistic: &'a str, input: &'a str, output: &'a str, name: &'a str) -> Vec<&'a str> {
+    let mut a = vec![
+        "--input",
+        input,
+        "--statistic",
+        statistic,
+        "--field",
+        "SID79",
+        "--permutations",
+        "999",
+        "--seed",
+        "17",
+        "--output",
+        output,
+        "--name",
+        name,
+        "-q",
+    ];
+    if statistic == "join-count" {
+        a.extend(["--rule", "> 5"]);
+    }
+    a
+}
+
+fn values(path: &Path, layer: &str, fields: &str) -> Vec<String> {
+    rows(path, &format!("SELECT {fields} FROM {layer} ORDER BY fid"))
+        .into_iter()
+        .map(|r| r.join(""))
+        .collect()
+}
+
+fn nc_copy(dir: &Path) -> String {
+    let input = dir.join("nc.gpkg");
+    let _ = std::fs::remove_file(&input);
+    std::fs::copy(root().join("tests/reference/data/nc.gpkg"), &input).expect("copy nc.gpkg");
+    "nc.gpkg".to_owned()
+}
+
+#[test]
+fn merged_shards_equal_the_one_machine_run_bit_for_bit() {
+    let dir = out_dir("shards_merge");
+    let input = nc_copy(&dir);
+    for (statistic, fields) in [("gi-star", GI_FIELDS), ("join-count", JOIN_FIELDS)] {
+        let whole_file = format!("whole_{statistic}.gpkg");
+        run_in(
+            &dir,
+            "stance-local",
+            &args(statistic, &input, &whole_file, "hot"),
+        )
+        .ok();
+        let whole = values(&dir.join(&whole_file), "hot", fields);
+        assert_eq!(whole.len(), 100);
+        for n in [1usize, 2, 3, 7] {
+            let shard_dir = dir.join(format!("{statistic}_{n}"));
+            let _ = std::fs::remove_dir_all(&shard_dir);
+            std::fs::create_dir_all(&shard_dir).expect("shard dir");
+            for k in 1..=n {
+                let spec = format!("{k}/{n}");
+                let file = format!("{statistic}_{n}/shard_{k}.gpkg");
+                let mut a = args(statistic, &input, &file, "hot");
+                a.extend(["--shard", &spec]);
+                let summary = run_in(&dir, "stance-local", &a).ok();
+                assert_eq!(summary["results"]["shard"]["shard"], spec.as_str());
+            }
+            let merged_file = format!("merged_{statistic}_{n}.gpkg");
+            let _ = std::fs::remove_file(dir.join(&merged_file));
+            let shards = format!("{statistic}_{n}");
+            let mut a = args(statistic, &input, &merged_file, "hot");
+            a.extend(["--merge-shards", &shards]);
+            run_in(&dir, "stance-local", &a).ok();
+            let merged = values(&dir.join(&merged_file), "hot", fields);
+            assert_eq!(merged, whole, "{statistic}, {n} shards");
+        }
+    }
+}
+
+#[test]
+fn missing_duplicated_and_mismatched_shards_are_refused_by_name() {
+    let dir = out_dir("shards_refused");
+    let input = nc_copy(&dir);
+    let _ = std::fs::remove_dir_all(dir.join("s"));
+    std::fs::create_dir_all(dir.join("s")).expect("dir");
+    for k in [1, 3] {
+        let spec = format!("{k}/3");
+        let file = format!("s/shard_{k}.gpkg");
+        let mut a = args("gi-star", &input, &file, "hot");
+        a.extend(["--shard", &spec]);
+        run_in(&dir, "stance-local", &a).ok();
+    }
+    let merge = |shards: &str, extra: &[&str]| {
+        let mut a = args("gi-star", &input, "merged.gpkg", "hot");
+        a.extend(["--merge-shards", shards]);
+        a.extend_from_slice(extra);
+        run_in(&dir, "stance-local", &a)
+    };
+    merge("s", &[]).usage_error(&["shard 2 of 3 is missing", "hot_shard_2_of_3", "--shard 2/3"]);
+    assert!(
+        !dir.join("merged.gpkg").exists(),
+        "a refused merge wrote its output"
+    );
+
+    // Shard 2 written twice (in two files).
+    for file in ["s/shard_2.gpkg", "s/shard_2_again.gpkg"] {
+        let mut a = args("gi-star", &input, file, "hot");
+        a.extend(["--shard", "2/3"]);
+        run_in(&dir, "stance-local", &a).ok();
+    }
+    merge("s", &[]).usage_error(&["shard 2 of 3 is there twice", "shard_2_again.gpkg"]);
+    std::fs::remove_file(dir.join("s/shard_2_again.gpkg")).expect("remove");
+
+    // The merge asks for another seed than the shards were drawn with.
+    let changed = |from: &str, to: &'static str| {
+        let mut a = args("gi-star", &input, "merged.gpkg", "hot");
+        a.extend(["--merge-shards", "s"]);
+        let at = a.iter().position(|x| *x == from).expect("option value");
+        a[at] = to;
+        run_in(&dir, "stance-local", &a)
+    };
+    changed("17", "18").usage_error(&["shard 1 of 3", "seed is 17 in the shard, 18"]);
+    // Another number of permutations: the blocks do not match.
+    changed("999", "99").usage_error(&["shard 1 of 3", "999", "99"]);
+    // Another field: parameters differ.
+    changed("SID79", "SID74").usage_error(&["shard 1 of 3", "field is \"SID79\""]);
+    // Complete and matching: the merge runs.
+    merge("s", &[]).ok();
+}
