@@ -144,3 +144,75 @@ fn missing_duplicated_and_mismatched_shards_are_refused_by_name() {
     // Complete and matching: the merge runs.
     merge("s", &[]).ok();
 }
+
+/// Every table of a GeoPackage's contents, every row (reals exactly, blobs by checksum).
+fn dump(path: &Path) -> Vec<(String, Vec<Vec<String>>)> {
+    stance_tests::tables(path)
+        .into_iter()
+        .map(|t| {
+            let sql = format!("SELECT * FROM \"{t}\" ORDER BY 1");
+            (t.clone(), rows(path, &sql))
+        })
+        .collect()
+}
+
+/// stance-density with tolerance (support against oppose) and type probabilities on an
+/// invented scenario of 3,000 records (stance-synth): the surfaces, p-values and contours of the
+/// merged shards are those of the one-machine run, bit for bit.
+#[test]
+fn density_shards_merge_to_the_one_machine_run() {
+    let dir = out_dir("shards_density");
+    stance_tests::synth(&dir, "in.gpkg", 3000, 5);
+    let base = |output: &str| -> Vec<String> {
+        [
+            "--input",
+            "in.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--cell-m",
+            "1500",
+            "--type-probabilities",
+            "--permutations",
+            "19",
+            "--seed",
+            "3",
+            "--output",
+            output,
+            "--name",
+            "d",
+            "-q",
+        ]
+        .iter()
+        .map(|s| (*s).to_owned())
+        .collect()
+    };
+    let call = |a: &[String]| {
+        let a: Vec<&str> = a.iter().map(String::as_str).collect();
+        run_in(&dir, "stance-density", &a)
+    };
+    let _ = std::fs::remove_file(dir.join("whole.gpkg"));
+    call(&base("whole.gpkg")).ok();
+    let whole = dump(&dir.join("whole.gpkg"));
+    assert!(whole.len() >= 10, "{} tables", whole.len());
+    for n in [1usize, 2, 3, 7] {
+        let shard_dir = format!("d{n}");
+        let _ = std::fs::remove_dir_all(dir.join(&shard_dir));
+        std::fs::create_dir_all(dir.join(&shard_dir)).expect("dir");
+        for k in 1..=n {
+            let mut a = base(&format!("{shard_dir}/{k}.gpkg"));
+            a.extend(["--shard".to_owned(), format!("{k}/{n}")]);
+            call(&a).ok();
+            let tables = stance_tests::tables(&dir.join(format!("{shard_dir}/{k}.gpkg")));
+            assert_eq!(tables, vec![format!("d_shard_{k}_of_{n}")]);
+        }
+        let merged = format!("merged{n}.gpkg");
+        let _ = std::fs::remove_file(dir.join(&merged));
+        let mut a = base(&merged);
+        a.extend(["--merge-shards".to_owned(), shard_dir]);
+        call(&a).ok();
+        assert!(
+            dump(&dir.join(&merged)) == whole,
+            "{n} shards differ from the whole run"
+        );
+    }
+}

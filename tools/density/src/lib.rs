@@ -22,6 +22,7 @@ pub mod output;
 pub mod params;
 pub mod plan;
 pub mod segregation;
+pub mod shards;
 pub mod slice;
 pub mod surfaces;
 pub mod tolerance;
@@ -124,12 +125,14 @@ impl Tool for Density {
             true => Some(types::plan(&config, run, &records, &plan)?),
             false => None,
         };
+        let shards = shards::prepare(params, &config, run)?;
         let context = Context {
             config: &config,
             records: &records,
             plan: &plan,
             slices: slices.len(),
             types: types_plan.as_ref(),
+            shards: &shards,
         };
         let mut summaries = Vec::with_capacity(slices.len());
         // Time spent in the class estimates alone (for benchmarks; logged with -v).
@@ -146,6 +149,9 @@ impl Tool for Density {
             run.progress.set(context.fraction(index, 1.0));
         }
         run.debug(format!("class estimates compute_s: {compute_s:.3}"));
+        if let Some(summary) = shards.write_shard(run)? {
+            return Ok(summary);
+        }
         let mut results = output::summary(&config, &records, &plan, &summaries);
         if let Some(t) = &types_plan {
             results["type_probabilities"] = t.summary();

@@ -42,6 +42,8 @@ pub struct Target<'a> {
     pub grid: &'a Grid,
     /// The working CRS.
     pub srs: &'a SpatialRef,
+    /// Whether layers are written (not in a shard's run, which writes only its partial result).
+    pub publish: bool,
 }
 
 /// The value a surface holds: its field name, unit and description.
@@ -174,6 +176,9 @@ pub fn write_surface(
         .cloned()
         .filter(|v| v.is_finite())
         .fold(f64::NEG_INFINITY, f64::max);
+    if !target.publish {
+        return Ok(if max.is_finite() { max } else { 0.0 });
+    }
     run.output().write_surface(
         name,
         &Surface {
@@ -207,10 +212,14 @@ pub struct Contours<'a> {
 /// Writing failed.
 pub fn write_tolerance(
     run: &mut Run,
-    srs: &SpatialRef,
+    target: Target<'_>,
     name: &str,
     contours: &Contours<'_>,
 ) -> Result<()> {
+    if !target.publish {
+        return Ok(());
+    }
+    let srs = target.srs;
     let fields = [
         FieldDef::new("elevated", FieldKind::Text),
         FieldDef::new("alpha", FieldKind::Real),

@@ -2,6 +2,7 @@
 
 use stance_core::error::{Error, Result};
 use stance_core::gpkg;
+use stance_core::host::shard::{ShardArgs, Sharding};
 use stance_core::stance::{ClassMap, Stance};
 
 use crate::kernel::Kernel;
@@ -132,11 +133,18 @@ pub struct DensityParams {
     /// Zheng & Durr 2005).
     #[arg(long)]
     pub type_probabilities: bool,
+
+    /// Sharding of the relabellings over several runs (e.g. a cluster's job array).
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub shards: ShardArgs,
 }
 
 /// The parameters after [`DensityParams::check`]: numbers in range, classes parsed.
 #[derive(Debug, Clone)]
 pub struct Config {
+    /// The whole run, one shard of its relabellings, or the merge of the shards.
+    pub sharding: Sharding,
     /// Labels → classes.
     pub classes: ClassMap,
     /// Class A of `--compare` (the numerator).
@@ -211,6 +219,7 @@ impl DensityParams {
         };
         let (class_a, class_b) = parse_compare(&self.compare)?;
         Ok(Config {
+            sharding: self.shards.sharding()?,
             classes,
             class_a,
             class_b,

@@ -225,19 +225,43 @@ pub struct TestOutcome {
 /// Per worker: T* of the relabellings it ran (by index) and its pointwise counts per class.
 type Partial = (Vec<(usize, f64)>, Vec<Vec<u32>>);
 
-/// Runs `permutations` random relabellings in parallel, each permuting the labels among the
-/// members with its own generator (results do not depend on the number of threads: counts are
-/// summed and T* is stored by index). Returns `None` once `stop` is set.
+/// Runs every relabelling ([`monte_carlo_counts`] over `0..permutations`) and turns the
+/// result into the test's outcome ([`outcome`]). Returns `None` once `stop` is set.
 pub fn monte_carlo(
     job: &Relabelling<'_>,
     stop: &AtomicBool,
     done: &(dyn Fn(usize) + Sync),
 ) -> Option<TestOutcome> {
+    let counts = monte_carlo_counts(job, 0..job.permutations, stop, done)?;
+    Some(outcome(job, &counts))
+}
+
+/// T* of each relabelling drawn (in order) and, per class and cell, how many had p̂*_k ≥ p̂_k.
+#[derive(Debug, Clone, PartialEq)]
+pub struct McCounts {
+    /// T* of the relabellings, in relabelling order.
+    pub statistics: Vec<f64>,
+    /// Per class, per cell, the relabellings at least as high.
+    pub counts: Vec<Vec<u32>>,
+}
+
+/// Runs the relabellings `drawn` in parallel, each permuting the labels among the members with
+/// its own generator (results do not depend on the number of threads: counts are summed and
+/// T* is stored by index; counts over disjoint blocks add up). Returns `None` once `stop` is
+/// set.
+pub fn monte_carlo_counts(
+    job: &Relabelling<'_>,
+    drawn: std::ops::Range<usize>,
+    stop: &AtomicBool,
+    done: &(dyn Fn(usize) + Sync),
+) -> Option<McCounts> {
     let cells = job.pooled_sum.len();
     let classes = job.observed.len();
     let finished = AtomicUsize::new(0);
+    let first = drawn.start;
     let empty = || -> Partial { (Vec::new(), vec![vec![0u32; cells]; classes]) };
-    let (statistics, counts) = (0..job.permutations)
+    let (statistics, counts) = drawn
+        .clone()
         .into_par_iter()
         .fold(empty, |(mut statistics, mut counts), r| {
             if stop.load(Ordering::Relaxed) {
@@ -268,12 +292,21 @@ pub fn monte_carlo(
     if stop.load(Ordering::Relaxed) {
         return None;
     }
-    let mut replicates = vec![0.0; job.permutations];
+    let mut ordered = vec![0.0; drawn.len()];
     for (r, t) in statistics {
-        replicates[r] = t;
+        ordered[r - first] = t;
     }
+    Some(McCounts {
+        statistics: ordered,
+        counts,
+    })
+}
+
+/// The test's outcome from the counts of all `job.permutations` relabellings.
+pub fn outcome(job: &Relabelling<'_>, mc: &McCounts) -> TestOutcome {
     let denominator = (job.permutations + 1) as f64;
-    let pointwise = counts
+    let pointwise = mc
+        .counts
         .iter()
         .map(|k| {
             k.iter()
@@ -288,10 +321,10 @@ pub fn monte_carlo(
                 .collect()
         })
         .collect();
-    Some(TestOutcome {
-        replicates,
+    TestOutcome {
+        replicates: mc.statistics.clone(),
         pointwise,
-    })
+    }
 }
 
 /// Sums per class of one relabelling: the kernel sums of every class but the last, the last as

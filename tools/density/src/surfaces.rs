@@ -17,6 +17,7 @@ use crate::input::Records;
 use crate::output::{self, Contours, Quantity, SliceSummary, Target, ToleranceSummary};
 use crate::params::{Config, Scale};
 use crate::plan::Plan;
+use crate::shards::Shards;
 use crate::tolerance::{self, PValues, Relabelling};
 use crate::types::{self, TypesPlan};
 
@@ -36,6 +37,8 @@ pub struct Context<'a> {
     pub slices: usize,
     /// The type-probability estimator (`--type-probabilities`).
     pub types: Option<&'a TypesPlan>,
+    /// This run's share of the relabellings.
+    pub shards: &'a Shards,
 }
 
 impl Context<'_> {
@@ -43,6 +46,15 @@ impl Context<'_> {
     /// reading and planning, the rest is shared equally by the slices.
     pub fn fraction(&self, index: usize, within: f64) -> f64 {
         0.1 + 0.9 * (index as f64 + within) / self.slices as f64
+    }
+
+    /// Where surfaces go.
+    pub fn target(&self) -> Target<'_> {
+        Target {
+            grid: &self.plan.grid,
+            srs: &self.records.srs,
+            publish: self.shards.publishing(),
+        }
     }
 
     /// Names the phase and shows it at `within` of slice `index`.
@@ -87,10 +99,7 @@ pub fn slice_surfaces(
     run.check_interrupted()?;
     context.enter(run, "surfaces", slice.index, 0.0);
     let (config, records) = (context.config, context.records);
-    let target = Target {
-        grid: &context.plan.grid,
-        srs: &records.srs,
-    };
+    let target = context.target();
     let mut class_idx: BTreeMap<Stance, Vec<usize>> = BTreeMap::new();
     for &i in slice.members {
         class_idx.entry(records.class_of[i]).or_default().push(i);
@@ -193,13 +202,7 @@ fn write_comparisons(
     slice: SliceRef<'_>,
     compared: &Compared<'_>,
 ) -> Result<(Vec<f64>, f64)> {
-    let (config, target) = (
-        context.config,
-        Target {
-            grid: &context.plan.grid,
-            srs: &context.records.srs,
-        },
-    );
+    let (config, target) = (context.config, context.target());
     let (class_a, class_b, scale) = (config.class_a, config.class_b, config.scale);
     let pair = compared.pair(&context.records.points());
     let a: Vec<f64> = pair
@@ -253,10 +256,7 @@ fn tolerance_outputs(
     ));
 
     context.enter(run, "writing", slice.index, 1.0);
-    let target = Target {
-        grid,
-        srs: &context.records.srs,
-    };
+    let target = context.target();
     let permutations = config.permutations;
     let upper = Quantity::p_upper(class_a, permutations);
     let lower = Quantity::p_lower(class_b, permutations);
@@ -270,7 +270,7 @@ fn tolerance_outputs(
         sides: &[(class_a, &polygons_a), (class_b, &polygons_b)],
     };
     let name = run.layer_name(&slice.suffix(output::TOLERANCE));
-    output::write_tolerance(run, &context.records.srs, &name, &contours)?;
+    output::write_tolerance(run, target, &name, &contours)?;
     Ok(ToleranceSummary {
         permutations,
         alpha,
@@ -318,5 +318,9 @@ fn relabel(
         let fraction = start + (end - start) * n as f64 / permutations as f64;
         progress.set_counted(fraction, n as u64, permutations as u64);
     };
-    tolerance::relabelling_p_values(&job, run.interrupt().flag(), &done).ok_or(Error::Interrupted)
+    let counts = context.shards.tolerance(slice.index, |drawn| {
+        tolerance::relabelling_counts(&job, drawn, run.interrupt().flag(), &done)
+            .ok_or(Error::Interrupted)
+    })?;
+    Ok(tolerance::p_values(&job, &counts))
 }

@@ -54,10 +54,8 @@ pub struct Relabelling<'a> {
     pub seed: u64,
 }
 
-/// Runs `permutations` random relabellings in parallel. Relabelling i draws its A set of |A|
-/// points from A ∪ B by a partial Fisher–Yates shuffle with its own generator, so results are
-/// identical for any number of threads (counts are summed, an order-free reduction). The B sum
-/// is the pooled sum minus the A sum (the estimate is linear in the points).
+/// Runs `permutations` random relabellings in parallel and turns their counts into p-values
+/// ([`relabelling_counts`] over every relabelling, then [`p_values`]).
 ///
 /// Returns `None` when `stop` is set during the run. `done` is called with the number of
 /// relabellings finished.
@@ -66,17 +64,48 @@ pub fn relabelling_p_values(
     stop: &AtomicBool,
     done: &(dyn Fn(usize) + Sync),
 ) -> Option<PValues> {
+    let counts = relabelling_counts(job, 0..job.permutations, stop, done)?;
+    Some(p_values(job, &counts))
+}
+
+/// Per cell, how many relabellings gave ρ* ≥ ρ (upper) and ρ* ≤ ρ (lower).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Counts {
+    /// #{ρ* ≥ ρ} per cell.
+    pub upper: Vec<u32>,
+    /// #{ρ* ≤ ρ} per cell.
+    pub lower: Vec<u32>,
+}
+
+/// Cells where ρ is tested: the pooled density at or above the floor.
+fn testable(job: &Relabelling<'_>, weight_pooled: f64) -> Vec<bool> {
+    job.pooled_sum
+        .iter()
+        .map(|s| s.is_finite() && s / weight_pooled >= job.floor && job.floor > 0.0)
+        .collect()
+}
+
+/// Runs the relabellings `drawn` (of `0..permutations`) in parallel. Relabelling i draws its A
+/// set of |A| points from A ∪ B by a partial Fisher–Yates shuffle with its own generator, so
+/// results are identical for any number of threads (counts are summed, an order-free
+/// reduction), and counts over disjoint blocks of relabellings add up to those over their
+/// union. The B sum is the pooled sum minus the A sum (the estimate is linear in the points).
+///
+/// Returns `None` when `stop` is set during the run. `done` is called with the number of
+/// relabellings finished.
+pub fn relabelling_counts(
+    job: &Relabelling<'_>,
+    drawn: std::ops::Range<usize>,
+    stop: &AtomicBool,
+    done: &(dyn Fn(usize) + Sync),
+) -> Option<Counts> {
     let cells = job.observed.len();
     let pooled: Vec<usize> = job.a.iter().chain(job.b).copied().collect();
     let n_a = job.a.len();
     let weight_pooled = job.points.total_weight(&pooled);
     let finished = AtomicUsize::new(0);
-    let testable: Vec<bool> = job
-        .pooled_sum
-        .iter()
-        .map(|s| s.is_finite() && s / weight_pooled >= job.floor && job.floor > 0.0)
-        .collect();
-    let (upper, lower) = (0..job.permutations)
+    let testable = testable(job, weight_pooled);
+    let (upper, lower) = drawn
         .into_par_iter()
         .fold(
             || (vec![0u32; cells], vec![0u32; cells]),
@@ -124,6 +153,13 @@ pub fn relabelling_p_values(
     if stop.load(Ordering::Relaxed) {
         return None;
     }
+    Some(Counts { upper, lower })
+}
+
+/// The p-values of `counts` gathered over all `job.permutations` relabellings.
+pub fn p_values(job: &Relabelling<'_>, counts: &Counts) -> PValues {
+    let pooled: Vec<usize> = job.a.iter().chain(job.b).copied().collect();
+    let testable = testable(job, job.points.total_weight(&pooled));
     let denominator = (job.permutations + 1) as f64;
     let p = |counts: &[u32]| -> Vec<f64> {
         counts
@@ -138,10 +174,10 @@ pub fn relabelling_p_values(
             })
             .collect()
     };
-    Some(PValues {
-        upper: p(&upper),
-        lower: p(&lower),
-    })
+    PValues {
+        upper: p(&counts.upper),
+        lower: p(&counts.lower),
+    }
 }
 
 /// Observed ρ with its floor, from the two class sums (see [`compare::log_ratio`]).

@@ -15,7 +15,7 @@ use crate::bandwidth::{self, CvScore};
 use crate::contour;
 use crate::estimate::{Bandwidths, Estimator};
 use crate::input::Records;
-use crate::output::{self, Contours, Quantity, Target};
+use crate::output::{self, Contours, Quantity};
 use crate::params::{Config, MethodChoice};
 use crate::plan::Plan;
 use crate::segregation::{self, Relabelling};
@@ -195,10 +195,7 @@ pub fn slice_types(
         .map(|w| w / total.max(f64::MIN_POSITIVE))
         .collect();
     let observed = segregation::statistic(&probabilities, &mean, &region);
-    let target = Target {
-        grid: &context.plan.grid,
-        srs: &context.records.srs,
-    };
+    let target = context.target();
     for (class, p) in Stance::ALL.iter().zip(&probabilities) {
         let name = run.layer_name(&slice.suffix(&format!("{}_{class}", output::PROB)));
         // Written only where the estimate rests on some records: beyond, a ratio of kernel
@@ -274,7 +271,11 @@ fn relabel(
         let fraction = start + (end - start) * n as f64 / total as f64;
         progress.set_counted(fraction, n as u64, total as u64);
     };
-    segregation::monte_carlo(job, run.interrupt().flag(), &done).ok_or(Error::Interrupted)
+    let mc = context.shards.types(slice.index, |drawn| {
+        segregation::monte_carlo_counts(job, drawn, run.interrupt().flag(), &done)
+            .ok_or(Error::Interrupted)
+    })?;
+    Ok(segregation::outcome(job, &mc))
 }
 
 /// Writes `prob_<class>_p` surfaces and the `prob_tolerance` polygons (field `elevated`: the
@@ -286,10 +287,7 @@ fn write_pointwise(
     pointwise: &[Vec<f64>],
 ) -> Result<Value> {
     let (config, grid) = (context.config, &context.plan.grid);
-    let target = Target {
-        grid,
-        srs: &context.records.srs,
-    };
+    let target = context.target();
     let mut polygons: Vec<Vec<Polygon<f64>>> = Vec::new();
     for (class, p) in Stance::ALL.iter().zip(pointwise) {
         let name = run.layer_name(&slice.suffix(&format!("{}_{class}_p", output::PROB)));
@@ -308,7 +306,7 @@ fn write_pointwise(
         sides: &sides,
     };
     let name = run.layer_name(&slice.suffix(&format!("{}_{}", output::PROB, output::TOLERANCE)));
-    output::write_tolerance(run, &context.records.srs, &name, &contours)?;
+    output::write_tolerance(run, target, &name, &contours)?;
     Ok(Stance::ALL
         .iter()
         .zip(&polygons)

@@ -15,6 +15,7 @@ use crate::Stats;
 const STREAM: u64 = 0x4C4F_4341_4C5F_4A43;
 
 /// What this run draws, gathers or writes.
+#[derive(Debug)]
 pub struct Shards {
     sharding: Sharding,
     permutations: usize,
