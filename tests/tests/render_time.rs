@@ -503,7 +503,12 @@ fn trend_classes_are_mapped_in_their_own_colours_and_order() {
         .map(|c| c["label"].as_str().expect("label"))
         .collect();
     assert_eq!(labels, TREND_CLASSES);
-    let (_, rgb) = pixels(&dir.join("trend.png"));
+    let png = dir.join("trend.png");
+    assert_eq!(
+        png_size(&png),
+        (1000, results["height_px"].as_u64().expect("height") as u32)
+    );
+    let (_, rgb) = pixels(&png);
     for (colour, class) in TREND.iter().zip(classes) {
         assert_eq!(
             class["colour"],

@@ -106,6 +106,9 @@ fn cluster_order(a: &str, b: &str) -> std::cmp::Ordering {
     }
 }
 
+/// A unit: its kind and its `unit` value.
+type Unit = (UnitKind, String);
+
 /// The units drawn beside the whole study area: the chosen ones, or every cluster (the first
 /// [`MAX_UNITS`] by number; the rest returned as left out).
 ///
@@ -114,7 +117,7 @@ fn cluster_order(a: &str, b: &str) -> std::cmp::Ordering {
 fn chosen_units(
     rows: &[PeriodRow],
     choices: &[UnitChoice],
-) -> Result<(Vec<(UnitKind, String)>, Vec<String>), String> {
+) -> Result<(Vec<Unit>, Vec<String>), String> {
     let mut present: Vec<(UnitKind, &str)> = rows
         .iter()
         .filter(|r| r.kind != UnitKind::StudyArea)

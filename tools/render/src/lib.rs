@@ -56,24 +56,28 @@ pub struct Render;
 impl Tool for Render {
     type Params = RenderParams;
     const ID: &'static str = "render";
-    const TITLE: &'static str = "Render a surface or an area layer to a PNG map";
+    const TITLE: &'static str = "Render a surface, an area layer or a period table to a PNG";
     const DESCRIPTION: &'static str = "Draws a raster surface as coloured cells (nodata left white), or an area \
         layer by a field — numeric values classed by quantiles or equal intervals, text values as categories, \
-        local Moran cluster types in the toolbox's own colour-blind-safe palette — with optional outline \
-        overlays (areas, cluster circles drawn by the side they lean to with one legend entry per side, \
-        tolerance contours, points), a colour bar or class legend with the unit, a title, a scale bar in metres \
-        and a north arrow. Palettes are Crameri's batlow (sequential) and vik (diverging, centred on zero with \
-        symmetric limits; chosen for surfaces with both signs or named *_diff, *_sqrtdiff or *_log_ratio). No \
-        layer is written: --output only sets where the run stages and may be the input file; the PNG appears \
-        only when the run succeeds.";
+        local Moran cluster types and trend classes (rising, falling, steady, too few records) in the \
+        toolbox's own colour-blind-safe palettes — with optional outline overlays (areas, cluster circles \
+        drawn by the side they lean to with one legend entry per side, tolerance contours, points), a colour \
+        bar or class legend with the unit, a title, a scale bar in metres and a north arrow. With \
+        --each-period, every time slice of a surface as small multiples (Tufte 1983), panels in time and \
+        reading order, labelled by period, on one colour scale. With --periods, a period table as a chart of \
+        the share of the case class over periods with its stored interval (the score interval of Wilson \
+        1927) as a shaded band, for the whole study area and each cluster or chosen units. Palettes are \
+        Crameri's batlow (sequential) and vik (diverging, centred on zero with symmetric limits; chosen for \
+        surfaces with both signs or named *_diff, *_sqrtdiff or *_log_ratio). No layer is written: --output \
+        only sets where the run stages and may be the input file; the PNG appears only when the run succeeds.";
     const DEFAULT_NAME: &'static str = "render";
     const INPUT: InputUse = InputUse::Required;
 
     fn outputs() -> Vec<OutputDecl> {
         vec![OutputDecl {
             id: "png",
-            title: "PNG map",
-            description: "The map as a PNG file at --png (no GeoPackage layer is written).",
+            title: "PNG map or chart",
+            description: "The map, small multiples or chart as a PNG file at --png (no GeoPackage layer is written).",
             media_type: "image/png",
         }]
     }

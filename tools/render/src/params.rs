@@ -168,19 +168,20 @@ pub const MAX_UNITS: usize = 6;
 
 /// Parses one --unit value.
 fn unit_choice(text: &str) -> Result<UnitChoice> {
-    let (kind, unit) =
-        match text.split_once(':') {
-            Some((kind, unit)) => match UnitKind::parse(kind) {
-                Some(k @ (UnitKind::Area | UnitKind::Cluster)) => (Some(k), unit.trim()),
-                _ => return Err(Error::argument(
+    let (kind, unit) = match text.split_once(':') {
+        Some((kind, unit)) => match UnitKind::parse(kind) {
+            Some(k @ (UnitKind::Area | UnitKind::Cluster)) => (Some(k), unit.trim()),
+            _ => {
+                return Err(Error::argument(
                     "--unit",
                     format!(
                         "'{text}': unknown kind '{kind}'; expected UNIT, area:UNIT or cluster:UNIT"
                     ),
-                )),
-            },
-            None => (None, text.trim()),
-        };
+                ))
+            }
+        },
+        None => (None, text.trim()),
+    };
     if unit.is_empty() {
         return Err(Error::argument("--unit", format!("'{text}' names no unit")));
     }
