@@ -1,5 +1,6 @@
 //! The map of an area layer coloured by a field: numeric values cut into classes, text values
-//! as categories (local Moran cluster types in the toolbox's own palette, others Okabe–Ito).
+//! as categories (local Moran cluster types and trend classes in the toolbox's own palettes,
+//! others Okabe–Ito).
 
 use std::path::Path;
 
@@ -9,7 +10,10 @@ use stance_core::error::{Error, Result};
 use crate::classes::{breaks, class_label, class_of};
 use crate::frame::Extent;
 use crate::paint::{paint_area, Scale};
-use crate::palette::{lisa_type, Rgb, LISA_COLOURS, LISA_TYPES, MISSING, OKABE_ITO};
+use crate::palette::{
+    lisa_type, trend_class, Rgb, LISA_COLOURS, LISA_TYPES, MISSING, OKABE_ITO, TREND_CLASSES,
+    TREND_COLOURS,
+};
 use crate::params::RenderParams;
 use crate::projection::FeatureRings;
 use crate::scene::{base_scene, choose_diverging, palette_name, Legend, Scene};
@@ -111,17 +115,48 @@ fn numeric_colouring(
     })
 }
 
-/// Text values as categories: local Moran cluster types when every value is one, else at most
-/// seven categories in Okabe–Ito colours.
+/// A fixed set of categories with their own colours and legend order.
+struct Scheme {
+    /// Name in the summary.
+    name: &'static str,
+    /// Categories in legend order.
+    labels: &'static [&'static str],
+    /// Colours, same order.
+    colours: &'static [Rgb],
+    /// The category a value names.
+    index: fn(&str) -> Option<usize>,
+}
+
+/// The fixed schemes, tried in order: a field whose every value one of them names is drawn in
+/// its colours, with every category in the legend (present or not).
+const SCHEMES: [Scheme; 2] = [
+    Scheme {
+        name: "stance LISA (own design)",
+        labels: &LISA_TYPES,
+        colours: &LISA_COLOURS,
+        index: lisa_type,
+    },
+    Scheme {
+        name: "stance trend (own design)",
+        labels: &TREND_CLASSES,
+        colours: &TREND_COLOURS,
+        index: trend_class,
+    },
+];
+
+/// Text values as categories: local Moran cluster types or trend classes when every value is
+/// one, else at most seven categories in Okabe–Ito colours.
 fn categorical_colouring(at: &FieldAt<'_>, values: &[Option<String>]) -> Result<Colouring> {
     let mut categories: Vec<&str> = values.iter().flatten().map(|v| v.trim()).collect();
     categories.sort_unstable();
     categories.dedup();
-    let lisa = categories.iter().all(|c| lisa_type(c).is_some());
-    let (labels, palette): (Vec<String>, Vec<Rgb>) = if lisa {
+    let scheme = SCHEMES
+        .iter()
+        .find(|s| categories.iter().all(|c| (s.index)(c).is_some()));
+    let (labels, palette): (Vec<String>, Vec<Rgb>) = if let Some(scheme) = scheme {
         (
-            LISA_TYPES.iter().map(|s| (*s).to_owned()).collect(),
-            LISA_COLOURS.to_vec(),
+            scheme.labels.iter().map(|s| (*s).to_owned()).collect(),
+            scheme.colours.to_vec(),
         )
     } else {
         if categories.len() > OKABE_ITO.len() {
@@ -137,10 +172,9 @@ fn categorical_colouring(at: &FieldAt<'_>, values: &[Option<String>]) -> Result<
         )
     };
     let index = |value: &str| -> Option<usize> {
-        if lisa {
-            lisa_type(value)
-        } else {
-            labels.iter().position(|l| l == value)
+        match scheme {
+            Some(scheme) => (scheme.index)(value),
+            None => labels.iter().position(|l| l == value),
         }
     };
     let mut counts = vec![0_usize; labels.len()];
@@ -174,7 +208,7 @@ fn categorical_colouring(at: &FieldAt<'_>, values: &[Option<String>]) -> Result<
         .collect();
     let summary = json!({
         "areas": at.layer, "field": at.field, "kind": "categorical",
-        "palette": if lisa { "stance LISA (own design)" } else { "Okabe–Ito" },
+        "palette": scheme.map_or("Okabe–Ito", |s| s.name),
         "classes": classes, "areas_without_value": missing,
     });
     Ok(Colouring {

@@ -1,5 +1,6 @@
-//! Drawing a laid-out map to a PNG with plotters (bitmap backend, ab_glyph text): map pixels,
-//! outlines, title, colour bar or class legend, scale bar and north arrow.
+//! Drawing a laid-out page to a PNG with plotters (bitmap backend, ab_glyph text): map pixels,
+//! outlines, title, colour bar or class legend, scale bar and north arrow — for one map or for
+//! small multiples; the share chart is drawn by [`crate::draw_chart`].
 
 use std::path::Path;
 use std::sync::OnceLock;
@@ -9,46 +10,127 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::{register_font, FontStyle};
 
 use crate::frame::{clip_polyline, dash_polyline, length_label, nice_ticks, PixelRect};
+use crate::multiples::Multiples;
 use crate::palette::{LineStyle, Rgb};
-use crate::scene::{Legend, Overlay, Scene};
+use crate::scene::{Legend, Overlay, Page, Scene};
 
 /// DejaVu Sans (Bitstream Vera licence, in `fonts/`), so text needs no system fonts.
 const FONT_BYTES: &[u8] = include_bytes!("../fonts/DejaVuSans.ttf");
-const FONT: &str = "stance-dejavu-sans";
+pub(crate) const FONT: &str = "stance-dejavu-sans";
 
 /// Registers the embedded font once; false if it could not be parsed.
-fn font_ready() -> bool {
+pub(crate) fn font_ready() -> bool {
     static READY: OnceLock<bool> = OnceLock::new();
     *READY.get_or_init(|| register_font(FONT, FontStyle::Normal, FONT_BYTES).is_ok())
 }
 
-fn rgb(c: Rgb) -> RGBColor {
+pub(crate) fn rgb(c: Rgb) -> RGBColor {
     RGBColor(c.0, c.1, c.2)
 }
 
-/// Draws `scene` to the PNG file `path` (its name must end in `.png`).
+/// Draws `page` to the PNG file `path` (its name must end in `.png`).
 ///
 /// # Errors
 /// A message when the font cannot be loaded or plotters cannot draw or write the file.
-pub fn draw_png(scene: &Scene, path: &Path) -> Result<(), String> {
+pub fn draw_png(page: &Page, path: &Path) -> Result<(), String> {
     if !font_ready() {
         return Err("the embedded font could not be loaded".into());
     }
-    let page = &scene.layout;
-    let root = BitMapBackend::new(path, (page.width, page.height)).into_drawing_area();
+    let (width, height) = page.size();
+    let root = BitMapBackend::new(path, (width, height)).into_drawing_area();
     let fail = |e: DrawingAreaErrorKind<_>| e.to_string();
     root.fill(&WHITE).map_err(fail)?;
-    draw_map(&root, scene).map_err(fail)?;
-    draw_title(&root, scene).map_err(fail)?;
-    draw_legend(&root, scene, &page.legend, page.scale).map_err(fail)?;
-    draw_footer(&root, scene, page.scale).map_err(fail)?;
+    match page {
+        Page::Map(scene) => draw_map_page(&root, scene).map_err(fail)?,
+        Page::Multiples(multiples) => draw_multiples(&root, multiples).map_err(fail)?,
+        Page::Chart(chart) => crate::draw_chart::draw_chart(&root, chart).map_err(fail)?,
+    }
     root.present().map_err(fail)?;
     Ok(())
 }
 
-type Area<'a> = DrawingArea<BitMapBackend<'a>, plotters::coord::Shift>;
-type DrawResult<'a> =
+pub(crate) type Area<'a> = DrawingArea<BitMapBackend<'a>, plotters::coord::Shift>;
+pub(crate) type DrawResult<'a> =
     Result<(), DrawingAreaErrorKind<<BitMapBackend<'a> as DrawingBackend>::ErrorType>>;
+
+/// What goes under a map: scale bar, small print, north arrow.
+struct Footer<'s> {
+    rect: PixelRect,
+    scale_bar_m: Option<f64>,
+    metres_per_px: f64,
+    note: &'s str,
+}
+
+/// One map: its pixels, outlines, overlays, title, legend and footer.
+fn draw_map_page<'a>(root: &Area<'a>, scene: &Scene) -> DrawResult<'a> {
+    let page = &scene.layout;
+    let s = page.scale;
+    let rect = page.frame.rect;
+    draw_panel(
+        root,
+        rect,
+        &scene.canvas,
+        &scene.area_outlines,
+        &scene.overlays,
+        s,
+    )?;
+    draw_title(
+        root,
+        &scene.title,
+        (page.width, s),
+        (rect.left, rect.top / 2),
+    )?;
+    draw_legend(root, &scene.legend, &scene.overlays, &page.legend, s)?;
+    let footer = Footer {
+        rect: page.footer,
+        scale_bar_m: scene.scale_bar_m,
+        metres_per_px: page.frame.metres_per_px,
+        note: &scene.note,
+    };
+    draw_footer(root, &footer, s)
+}
+
+/// Small multiples: every panel with its period label above it, one title, legend and footer.
+fn draw_multiples<'a>(root: &Area<'a>, multiples: &Multiples) -> DrawResult<'a> {
+    let page = &multiples.layout;
+    let s = page.scale;
+    let label_style = (FONT, (15.0 * s).max(1.0)).into_font().color(&BLACK);
+    for panel in &multiples.panels {
+        draw_panel(
+            root,
+            panel.frame.rect,
+            &panel.canvas,
+            &[],
+            &panel.overlays,
+            s,
+        )?;
+        root.draw_text(
+            &panel.label,
+            &label_style.pos(Pos::new(HPos::Left, VPos::Center)),
+            (
+                panel.label_rect.left + 2,
+                (panel.label_rect.top + panel.label_rect.bottom) / 2,
+            ),
+        )?;
+    }
+    let first = multiples.panels.first().map(|p| p.frame);
+    let left = first.map_or(0, |f| f.rect.left);
+    let top = page.panels.first().map_or(0, |(label, _)| label.top);
+    draw_title(root, &multiples.title, (page.width, s), (left, top / 2))?;
+    let overlays = multiples
+        .panels
+        .first()
+        .map(|p| p.overlays.as_slice())
+        .unwrap_or_default();
+    draw_legend(root, &multiples.legend, overlays, &page.legend, s)?;
+    let footer = Footer {
+        rect: page.footer,
+        scale_bar_m: multiples.scale_bar_m,
+        metres_per_px: first.map_or(1.0, |f| f.metres_per_px),
+        note: &multiples.note,
+    };
+    draw_footer(root, &footer, s)
+}
 
 /// A polyline clipped to `rect`, in `style`.
 fn draw_line<'a>(
@@ -68,7 +150,7 @@ fn draw_line<'a>(
 }
 
 /// A line in `style`: its halo unbroken, then the ink cut by the style's dashes (scaled by `s`).
-fn draw_styled<'a>(
+pub(crate) fn draw_styled<'a>(
     root: &Area<'a>,
     rect: &PixelRect,
     points: &[(f64, f64)],
@@ -86,23 +168,27 @@ fn draw_styled<'a>(
     Ok(())
 }
 
-/// Map pixels, area outlines and overlays, and the frame around them.
-fn draw_map<'a>(root: &Area<'a>, scene: &Scene) -> DrawResult<'a> {
-    let page = &scene.layout;
-    let s = page.scale;
-    let rect = page.frame.rect;
-    for (i, pixel) in scene.canvas.pixels.iter().enumerate() {
+/// Map pixels, area outlines and overlays in `rect`, and the frame around them.
+fn draw_panel<'a>(
+    root: &Area<'a>,
+    rect: PixelRect,
+    canvas: &crate::paint::Canvas,
+    outlines: &[Vec<(f64, f64)>],
+    overlays: &[Overlay],
+    s: f64,
+) -> DrawResult<'a> {
+    for (i, pixel) in canvas.pixels.iter().enumerate() {
         if let Some(c) = pixel {
-            let x = rect.left + (i % scene.canvas.width) as i32;
-            let y = rect.top + (i / scene.canvas.width) as i32;
+            let x = rect.left + (i % canvas.width) as i32;
+            let y = rect.top + (i / canvas.width) as i32;
             root.draw_pixel((x, y), &rgb(*c))?;
         }
     }
     let thin = ShapeStyle::from(&RGBColor(64, 64, 64)).stroke_width((s.max(1.0)) as u32);
-    for ring in &scene.area_outlines {
+    for ring in outlines {
         draw_line(root, &rect, ring, thin)?;
     }
-    for overlay in &scene.overlays {
+    for overlay in overlays {
         draw_overlay(root, &rect, overlay, s)?;
     }
     root.draw(&Rectangle::new(
@@ -137,35 +223,44 @@ fn draw_overlay<'a>(
     Ok(())
 }
 
-/// The title, shrunk until it fits the page width.
-fn draw_title<'a>(root: &Area<'a>, scene: &Scene) -> DrawResult<'a> {
-    let page = &scene.layout;
-    let size = |v: f64| (v * page.scale).max(1.0);
+/// The title at `at` (left end, middle), shrunk until it fits the page width.
+pub(crate) fn draw_title<'a>(
+    root: &Area<'a>,
+    title: &str,
+    (width, scale): (u32, f64),
+    at: (i32, i32),
+) -> DrawResult<'a> {
+    let size = |v: f64| (v * scale).max(1.0);
     let mut title_px = 28.0;
     let title_style = loop {
         let style = (FONT, size(title_px)).into_font().color(&BLACK);
-        let (w, _) = root.estimate_text_size(&scene.title, &style)?;
-        if f64::from(w) <= f64::from(page.width) - 2.0 * size(16.0) || title_px <= 10.0 {
+        let (w, _) = root.estimate_text_size(title, &style)?;
+        if f64::from(w) <= f64::from(width) - 2.0 * size(16.0) || title_px <= 10.0 {
             break style;
         }
         title_px -= 2.0;
     };
-    let rect = page.frame.rect;
     root.draw_text(
-        &scene.title,
+        title,
         &title_style.pos(Pos::new(HPos::Left, VPos::Center)),
-        (rect.left, rect.top / 2),
+        at,
     )
 }
 
-fn draw_legend<'a>(root: &Area<'a>, scene: &Scene, panel: &PixelRect, s: f64) -> DrawResult<'a> {
+fn draw_legend<'a>(
+    root: &Area<'a>,
+    legend: &Legend,
+    overlays: &[Overlay],
+    panel: &PixelRect,
+    s: f64,
+) -> DrawResult<'a> {
     let size = |v: f64| (v * s).max(1.0);
     let px = |v: f64| (v * s).round() as i32;
     let small = (FONT, size(15.0)).into_font().color(&BLACK);
     let heading_style = (FONT, size(16.0)).into_font().color(&BLACK);
     let left = panel.left + px(8.0);
     let mut y = panel.top;
-    let heading = match &scene.legend {
+    let heading = match legend {
         Legend::Bar { heading, .. } | Legend::Swatches { heading, .. } => heading,
     };
     for line in wrap(heading, 24) {
@@ -177,7 +272,7 @@ fn draw_legend<'a>(root: &Area<'a>, scene: &Scene, panel: &PixelRect, s: f64) ->
         y += px(20.0);
     }
     y += px(8.0);
-    match &scene.legend {
+    match legend {
         Legend::Bar { scale, .. } => {
             let bar_w = px(26.0);
             let bar_h = (panel.bottom - y - px(12.0)).clamp(px(60.0), px(360.0));
@@ -230,14 +325,14 @@ fn draw_legend<'a>(root: &Area<'a>, scene: &Scene, panel: &PixelRect, s: f64) ->
             y += px(6.0);
         }
     }
-    draw_overlay_keys(root, scene, panel, s, y)
+    draw_overlay_keys(root, overlays, panel, s, y)
 }
 
 /// Overlay keys under the legend, as many as fit: a marker or a line sample in each group's
 /// style; a layer drawn by side gets its name as a heading and one entry per side.
 fn draw_overlay_keys<'a>(
     root: &Area<'a>,
-    scene: &Scene,
+    overlays: &[Overlay],
     panel: &PixelRect,
     s: f64,
     mut y: i32,
@@ -246,7 +341,7 @@ fn draw_overlay_keys<'a>(
     let small = (FONT, (15.0 * s).max(1.0)).into_font().color(&BLACK);
     let left = panel.left + px(8.0);
     let label_at = |y: i32| (left + px(34.0), y);
-    for overlay in &scene.overlays {
+    for overlay in overlays {
         if y + px(20.0) > panel.bottom {
             break;
         }
@@ -291,15 +386,14 @@ fn draw_overlay_keys<'a>(
     Ok(())
 }
 
-fn draw_footer<'a>(root: &Area<'a>, scene: &Scene, s: f64) -> DrawResult<'a> {
-    let page = &scene.layout;
+fn draw_footer<'a>(root: &Area<'a>, what: &Footer<'_>, s: f64) -> DrawResult<'a> {
     let px = |v: f64| (v * s).round() as i32;
     let small = (FONT, (14.0 * s).max(1.0)).into_font().color(&BLACK);
-    let footer = page.footer;
+    let footer = what.rect;
     let left = footer.left;
     let bar_y = footer.top + px(30.0);
-    if let Some(length_m) = scene.scale_bar_m {
-        let length_px = (length_m / page.frame.metres_per_px).round() as i32;
+    if let Some(length_m) = what.scale_bar_m {
+        let length_px = (length_m / what.metres_per_px).round() as i32;
         let half = length_px / 2;
         let h = px(8.0);
         root.draw(&Rectangle::new(
@@ -325,7 +419,7 @@ fn draw_footer<'a>(root: &Area<'a>, scene: &Scene, s: f64) -> DrawResult<'a> {
         }
     }
     root.draw_text(
-        &scene.note,
+        what.note,
         &small.pos(Pos::new(HPos::Left, VPos::Top)),
         (left, bar_y + px(16.0)),
     )?;

@@ -242,7 +242,7 @@ pub fn nice_ticks(low: f64, high: f64, count: usize) -> Vec<f64> {
 }
 
 /// The nice step (1, 2, 5 × 10ᵏ) nearest above `raw`.
-fn nice_step(raw: f64) -> Option<f64> {
+pub fn nice_step(raw: f64) -> Option<f64> {
     if !(raw.is_finite() && raw > 0.0) {
         return None;
     }

@@ -11,7 +11,7 @@ use stance_core::host::Run;
 use crate::draw::draw_png;
 use crate::params::RenderParams;
 use crate::projection::crs_text;
-use crate::scene::Scene;
+use crate::scene::{Page, Scene};
 
 /// The PNG's place in the staging: drawn to a scratch file, renamed to the staged name.
 pub struct PngTarget {
@@ -65,16 +65,16 @@ impl PngTarget {
         })
     }
 
-    /// Draws `scene` and hands the file to the staging.
+    /// Draws `page` and hands the file to the staging.
     ///
     /// # Errors
     /// Drawing or renaming fails.
-    pub fn write(&self, scene: &Scene) -> Result<()> {
+    pub fn write(&self, page: &Page) -> Result<()> {
         let failed = |message: String| Error::BadOutput {
             path: self.png.clone(),
             message,
         };
-        draw_png(scene, &self.scratch.0).map_err(|m| failed(format!("drawing failed: {m}")))?;
+        draw_png(page, &self.scratch.0).map_err(|m| failed(format!("drawing failed: {m}")))?;
         std::fs::rename(&self.scratch.0, &self.staged)
             .map_err(|e| failed(format!("cannot be written: {e}")))
     }

@@ -130,6 +130,55 @@ pub const LISA_COLOURS: [Rgb; 5] = [
     Rgb(0xe8, 0xe0, 0xcc), // not significant: pale sand
 ];
 
+/// Trend classes of an area's share over periods, in legend order (the `trend` field).
+pub const TREND_CLASSES: [&str; 4] = ["rising", "falling", "steady", "too few records"];
+
+/// The toolbox's own trend palette, same order as [`TREND_CLASSES`]. Design: the two
+/// directions are dark and of opposite temperature (rust = rising, deep blue = falling), a
+/// steady share is a pale cream that recedes, and too few records is a plain mid grey — set
+/// apart from white, which means "no value". The test below checks the four stay apart in
+/// normal vision and under simulated deuteranopia, protanopia and tritanopia.
+pub const TREND_COLOURS: [Rgb; 4] = [
+    Rgb(0xb5, 0x39, 0x1b), // rising: rust
+    Rgb(0x1d, 0x5c, 0x8f), // falling: deep blue
+    Rgb(0xf2, 0xe2, 0xb6), // steady: pale cream
+    Rgb(0x8c, 0x8c, 0x8c), // too few records: mid grey
+];
+
+/// The trend class a label names (trimmed, any case), as an index into [`TREND_CLASSES`].
+pub fn trend_class(label: &str) -> Option<usize> {
+    let key = label.trim().to_ascii_lowercase();
+    TREND_CLASSES.iter().position(|c| *c == key)
+}
+
+/// Ink of the lines of a share chart: black for the whole study area, then the toolbox's own
+/// six colours for the other units (brick, blue, amber, plum, cyan, grey), apart from each other
+/// in normal vision and under each simulated dichromacy (see the tests); the dash patterns of
+/// [`chart_line`] tell them apart without colour too.
+pub const CHART_COLOURS: [Rgb; 7] = [
+    Rgb(0x00, 0x00, 0x00),
+    Rgb(0xb8, 0x3a, 0x1e),
+    Rgb(0x1f, 0x5f, 0xc0),
+    Rgb(0xe8, 0xb0, 0x20),
+    Rgb(0x70, 0x30, 0x80),
+    Rgb(0x60, 0xc8, 0xc8),
+    Rgb(0x80, 0x80, 0x80),
+];
+
+/// The line of series `k` of a share chart (0 = the whole study area): colour, dash, halo.
+pub fn chart_line(k: usize) -> LineStyle {
+    const DASHES: [Dash; 4] = [Dash::Solid, Dash::Dashed, Dash::Dotted, Dash::DashDot];
+    LineStyle {
+        colour: CHART_COLOURS[k % CHART_COLOURS.len()],
+        dash: if k == 0 {
+            Dash::Solid
+        } else {
+            DASHES[(k - 1) % 4]
+        },
+        halo: Rgb(255, 255, 255),
+    }
+}
+
 /// How a line is broken.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "kebab-case")]
@@ -451,6 +500,35 @@ mod tests {
         // Yellow ink gets a dark halo, the others a white one.
         assert_eq!(side_style("neutral+support").halo, Rgb(0x1a, 0x1a, 0x1a));
         assert_eq!(side_style("low").halo, Rgb(255, 255, 255));
+    }
+
+    #[test]
+    fn trend_colours_stay_distinguishable_and_apart_from_no_value() {
+        // Same threshold as the LISA palette: ΔE*ab ≥ 30 in every vision.
+        let closest = closest_pair(&TREND_COLOURS);
+        assert!(closest >= 30.0, "{closest}");
+        for colour in TREND_COLOURS {
+            assert!(delta_e(colour, MISSING) >= 10.0, "{colour:?}");
+        }
+        // Rising and falling are the darkest, steady the lightest.
+        let l: Vec<f64> = TREND_COLOURS.iter().map(|c| lab(*c)[0]).collect();
+        assert!(l[0] < l[3] && l[1] < l[3] && l[2] > l[3], "{l:?}");
+        assert_eq!(trend_class(" Too few records "), Some(3));
+        assert_eq!(trend_class("rising"), Some(0));
+        assert_eq!(trend_class("no trend"), None);
+    }
+
+    #[test]
+    fn chart_lines_are_apart_by_colour_and_by_dash() {
+        // ΔE*ab ≥ 20 between any two line colours in every vision (lines are thin, and the
+        // dashes carry the difference too).
+        let closest = closest_pair(&CHART_COLOURS);
+        assert!(closest >= 20.0, "{closest}");
+        assert_eq!(chart_line(0).dash, Dash::Solid);
+        assert_eq!(chart_line(1).dash, Dash::Solid);
+        assert_eq!(chart_line(2).dash, Dash::Dashed);
+        assert_eq!(chart_line(5).dash, Dash::Solid);
+        assert_ne!(chart_line(1).colour, chart_line(5).colour);
     }
 
     #[test]

@@ -3,6 +3,7 @@
 use std::path::PathBuf;
 
 use stance_core::error::{Error, Result};
+use stance_core::time::Period;
 
 use crate::classes::Classing;
 
@@ -28,6 +29,26 @@ pub struct RenderParams {
     /// Surface (raster table of the input) to draw as coloured cells.
     #[arg(long, value_name = "NAME")]
     pub surface: Option<String>,
+
+    /// Draw --surface once per time slice (the surfaces <surface>_<period> that stance-density
+    /// writes with --time-field and --slice, e.g. --surface density_diff draws
+    /// density_diff_2026_03, density_diff_2026_04, …) as small multiples on one colour scale.
+    #[arg(long)]
+    pub each_period: bool,
+
+    /// With --each-period: the kind of period to draw when the input holds slices of several.
+    #[arg(long, value_enum, value_name = "PERIOD")]
+    pub period: Option<Period>,
+
+    /// Period table of the input (<name>_periods, one row per unit and period) to draw as a
+    /// chart of the share over periods with its interval band (instead of --surface or --areas).
+    #[arg(long, value_name = "TABLE")]
+    pub periods: Option<String>,
+
+    /// With --periods: a unit to draw beside the whole study area, as UNIT or KIND:UNIT (KIND
+    /// area or cluster); repeatable, at most 6 (default: every cluster, the first 6 by number).
+    #[arg(long, value_name = "UNIT")]
+    pub unit: Vec<String>,
 
     /// Area (polygon) layer of the input to draw as a choropleth of --field (instead of --surface).
     #[arg(long, value_name = "LAYER")]
@@ -78,6 +99,20 @@ pub struct RenderParams {
 pub enum Subject {
     /// A raster surface.
     Surface(String),
+    /// Every time slice of a surface, as small multiples.
+    Series {
+        /// The surface's name without the period (e.g. `density_diff`).
+        surface: String,
+        /// The kind of period to draw, when given.
+        period: Option<Period>,
+    },
+    /// A chart of share over periods from a period table.
+    Chart {
+        /// The period table.
+        table: String,
+        /// The units chosen beside the whole study area (empty: every cluster).
+        units: Vec<UnitChoice>,
+    },
     /// An area layer coloured by a field.
     Areas {
         /// Polygon layer.
@@ -85,6 +120,75 @@ pub enum Subject {
         /// Field to colour by.
         field: String,
     },
+}
+
+/// The kind of a unit in a period table (`unit_kind`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum UnitKind {
+    /// The whole study area (`study_area`, unit `all`).
+    StudyArea,
+    /// An area (`area`, unit = the area id).
+    Area,
+    /// A cluster (`cluster`, unit = the cluster number).
+    Cluster,
+}
+
+impl UnitKind {
+    /// The kind as stored in `unit_kind`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            UnitKind::StudyArea => "study_area",
+            UnitKind::Area => "area",
+            UnitKind::Cluster => "cluster",
+        }
+    }
+
+    /// The kind a stored `unit_kind` names.
+    pub fn parse(text: &str) -> Option<UnitKind> {
+        match text.trim() {
+            "study_area" => Some(UnitKind::StudyArea),
+            "area" => Some(UnitKind::Area),
+            "cluster" => Some(UnitKind::Cluster),
+            _ => None,
+        }
+    }
+}
+
+/// A unit asked for with --unit: its value and, when given as KIND:UNIT, its kind.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct UnitChoice {
+    /// Area or cluster, when named.
+    pub kind: Option<UnitKind>,
+    /// The `unit` value.
+    pub unit: String,
+}
+
+/// The most units drawn beside the whole study area: more lines and bands cannot be told apart.
+pub const MAX_UNITS: usize = 6;
+
+/// Parses one --unit value.
+fn unit_choice(text: &str) -> Result<UnitChoice> {
+    let (kind, unit) = match text.split_once(':') {
+        Some((kind, unit)) => match UnitKind::parse(kind) {
+            Some(k @ (UnitKind::Area | UnitKind::Cluster)) => (Some(k), unit.trim()),
+            _ => {
+                return Err(Error::argument(
+                    "--unit",
+                    format!(
+                        "'{text}': unknown kind '{kind}'; expected UNIT, area:UNIT or cluster:UNIT"
+                    ),
+                ))
+            }
+        },
+        None => (None, text.trim()),
+    };
+    if unit.is_empty() {
+        return Err(Error::argument("--unit", format!("'{text}' names no unit")));
+    }
+    Ok(UnitChoice {
+        kind,
+        unit: unit.to_owned(),
+    })
 }
 
 /// The validated parameters.
@@ -100,34 +204,7 @@ impl RenderParams {
     /// # Errors
     /// An argument error naming the option and the value.
     pub fn check(&self, layer: Option<&str>) -> Result<Config> {
-        let subject = match (&self.surface, &self.areas, &self.field) {
-            (Some(surface), None, None) => Subject::Surface(surface.clone()),
-            (None, Some(layer), Some(field)) => Subject::Areas {
-                layer: layer.clone(),
-                field: field.clone(),
-            },
-            (Some(_), Some(_), _) => {
-                return Err(Error::argument(
-                    "--areas",
-                    "draw either --surface or --areas; to outline areas over a surface use --overlay LAYER",
-                ))
-            }
-            (None, Some(_), None) => {
-                return Err(Error::argument(
-                    "--field",
-                    "missing; --areas needs the field to colour by",
-                ))
-            }
-            (Some(_), None, Some(_)) => {
-                return Err(Error::argument("--field", "only applies to --areas"))
-            }
-            (None, None, _) => {
-                return Err(Error::argument(
-                    "--surface",
-                    "missing; give --surface NAME or --areas LAYER --field FIELD",
-                ))
-            }
-        };
+        let subject = self.subject()?;
         if layer.is_some() {
             return Err(Error::argument(
                 "--layer",
@@ -157,5 +234,86 @@ impl RenderParams {
             ));
         }
         Ok(Config { subject })
+    }
+
+    /// What is drawn: exactly one of --surface, --areas and --periods, with the options that
+    /// belong to it.
+    fn subject(&self) -> Result<Subject> {
+        let given = [
+            self.surface.is_some(),
+            self.areas.is_some(),
+            self.periods.is_some(),
+        ];
+        if given.iter().filter(|g| **g).count() > 1 {
+            return Err(Error::argument(
+                if self.areas.is_some() { "--areas" } else { "--periods" },
+                "draw one of --surface, --areas or --periods; to outline areas over a surface use --overlay LAYER",
+            ));
+        }
+        if self.field.is_some() && self.areas.is_none() {
+            return Err(Error::argument("--field", "only applies to --areas"));
+        }
+        if self.each_period && self.surface.is_none() {
+            return Err(Error::argument(
+                "--each-period",
+                "only applies to --surface",
+            ));
+        }
+        if self.period.is_some() && !self.each_period {
+            return Err(Error::argument("--period", "only applies to --each-period"));
+        }
+        if !self.unit.is_empty() && self.periods.is_none() {
+            return Err(Error::argument("--unit", "only applies to --periods"));
+        }
+        if let Some(table) = &self.periods {
+            return self.chart_subject(table);
+        }
+        match (&self.surface, &self.areas, &self.field) {
+            (Some(surface), _, _) if self.each_period => Ok(Subject::Series {
+                surface: surface.clone(),
+                period: self.period,
+            }),
+            (Some(surface), _, _) => Ok(Subject::Surface(surface.clone())),
+            (None, Some(layer), Some(field)) => Ok(Subject::Areas {
+                layer: layer.clone(),
+                field: field.clone(),
+            }),
+            (None, Some(_), None) => Err(Error::argument(
+                "--field",
+                "missing; --areas needs the field to colour by",
+            )),
+            (None, None, _) => Err(Error::argument(
+                "--surface",
+                "missing; give --surface NAME, --areas LAYER --field FIELD or --periods TABLE",
+            )),
+        }
+    }
+
+    /// The chart of a period table and its units.
+    fn chart_subject(&self, table: &str) -> Result<Subject> {
+        if !self.overlay.is_empty() {
+            return Err(Error::argument(
+                "--overlay",
+                "only applies to maps, not to --periods",
+            ));
+        }
+        if self.unit.len() > MAX_UNITS {
+            return Err(Error::argument(
+                "--unit",
+                format!(
+                    "{} units given; a chart tells at most {MAX_UNITS} apart beside the whole study area",
+                    self.unit.len()
+                ),
+            ));
+        }
+        let units = self
+            .unit
+            .iter()
+            .map(|u| unit_choice(u))
+            .collect::<Result<Vec<_>>>()?;
+        Ok(Subject::Chart {
+            table: table.to_owned(),
+            units,
+        })
     }
 }

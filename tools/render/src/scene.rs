@@ -107,3 +107,25 @@ pub fn palette_name(map: ColourMap) -> &'static str {
         ColourMap::Vik => "vik (diverging)",
     }
 }
+
+/// A page to draw: one map, small multiples of time slices, or a chart of share over periods.
+#[derive(Debug, Clone)]
+pub enum Page {
+    /// One map.
+    Map(Scene),
+    /// Small multiples.
+    Multiples(crate::multiples::Multiples),
+    /// A chart.
+    Chart(crate::chart::ChartPage),
+}
+
+impl Page {
+    /// Width and height (px).
+    pub fn size(&self) -> (u32, u32) {
+        match self {
+            Page::Map(scene) => (scene.layout.width, scene.layout.height),
+            Page::Multiples(m) => (m.layout.width, m.layout.height),
+            Page::Chart(c) => (c.width, c.height),
+        }
+    }
+}

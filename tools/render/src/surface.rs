@@ -31,6 +31,16 @@ pub fn surface_unit(path: &Path, name: &str) -> Result<(String, String)> {
     })
 }
 
+/// The colour bar's heading: the coverage's field and unit, or what of them is known.
+pub fn legend_heading(name: &str, unit: &str, field_name: &str) -> String {
+    match (field_name.is_empty(), unit.is_empty()) {
+        (false, false) => format!("{field_name} ({unit})"),
+        (false, true) => field_name.to_owned(),
+        (true, false) => unit.to_owned(),
+        (true, true) => name.to_owned(),
+    }
+}
+
 /// Scene of a surface: cells coloured on a continuous scale; and its part of the summary.
 ///
 /// # Errors
@@ -62,12 +72,7 @@ pub fn surface_scene(
         x_max: grid.x_max(),
         y_max: grid.y_max(),
     };
-    let heading = match (field_name.is_empty(), unit.is_empty()) {
-        (false, false) => format!("{field_name} ({unit})"),
-        (false, true) => field_name.to_owned(),
-        (true, false) => unit.to_owned(),
-        (true, true) => name.to_owned(),
-    };
+    let heading = legend_heading(name, unit, field_name);
     let mut scene = base_scene(
         params,
         extent,
