@@ -94,6 +94,18 @@ demo: build
 	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_diff \
 	  --overlay labels_robust_clusters --title "Veldmark: ordinal clusters under the truth and two classifiers" \
 	  --png $(OUT)/labels_robust.png -q > /dev/null
+	$(BIN)/stance density --input $(OUT)/demo.gpkg --layer records --output $(OUT)/demo.gpkg --name density_month \
+	  --bandwidth-m 3000 --compare support,oppose --time-field time_utc --slice month --permutations 0 \
+	  -q > $(OUT)/density_month.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --surface density_month_diff --each-period \
+	  --title "Veldmark: support - oppose density by month" --png $(OUT)/density_diff_by_month.png -q > /dev/null
+	$(BIN)/stance trend --input $(OUT)/demo.gpkg --layer records --areas veldmark_districts \
+	  --areas-file $(SAMPLE)/veldmark.gpkg --id-field code --time-field time_utc --period month \
+	  --case-class oppose --at-risk-classes all --output $(OUT)/demo.gpkg --name trend -q > $(OUT)/trend.json
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --periods trend_periods \
+	  --title "Veldmark: opposition share by month" --png $(OUT)/share_by_month.png -q > /dev/null
+	$(BIN)/stance render --input $(OUT)/demo.gpkg --output $(OUT)/demo.gpkg --areas trend_areas --field trend \
+	  --title "Veldmark: trend of the opposition share per district" --png $(OUT)/trend_map.png -q > /dev/null
 	@tools/serve/demo.sh $(BIN)/stance $(OUT)
 	@echo "wrote $(OUT)/demo.gpkg:"; ogrinfo -q $(OUT)/demo.gpkg | sed 's/^/  /'
 	@echo "previews: $$(ls $(OUT)/*.png | tr '\n' ' ')"

@@ -11,8 +11,8 @@ use crate::classes::{breaks, class_label, class_of};
 use crate::frame::Extent;
 use crate::paint::{paint_area, Scale};
 use crate::palette::{
-    lisa_type, trend_class, Rgb, LISA_COLOURS, LISA_TYPES, MISSING, OKABE_ITO, TREND_CLASSES,
-    TREND_COLOURS,
+    hot_cold, join_flag, lisa_type, trend_class, Rgb, HOT_COLD, HOT_COLD_COLOURS, JOIN_FLAGS,
+    JOIN_FLAG_COLOURS, LISA_COLOURS, LISA_TYPES, MISSING, OKABE_ITO, TREND_CLASSES, TREND_COLOURS,
 };
 use crate::params::RenderParams;
 use crate::projection::FeatureRings;
@@ -129,7 +129,7 @@ struct Scheme {
 
 /// The fixed schemes, tried in order: a field whose every value one of them names is drawn in
 /// its colours, with every category in the legend (present or not).
-const SCHEMES: [Scheme; 2] = [
+const SCHEMES: [Scheme; 4] = [
     Scheme {
         name: "stance LISA (own design)",
         labels: &LISA_TYPES,
@@ -141,6 +141,18 @@ const SCHEMES: [Scheme; 2] = [
         labels: &TREND_CLASSES,
         colours: &TREND_COLOURS,
         index: trend_class,
+    },
+    Scheme {
+        name: "stance hot and cold spots (own design)",
+        labels: &HOT_COLD,
+        colours: &HOT_COLD_COLOURS,
+        index: hot_cold,
+    },
+    Scheme {
+        name: "stance join-count clusters (own design)",
+        labels: &JOIN_FLAGS,
+        colours: &JOIN_FLAG_COLOURS,
+        index: join_flag,
     },
 ];
 

@@ -59,7 +59,7 @@ impl Tool for Render {
     const TITLE: &'static str = "Render a surface, an area layer or a period table to a PNG";
     const DESCRIPTION: &'static str = "Draws a raster surface as coloured cells (nodata left white), or an area \
         layer by a field — numeric values classed by quantiles or equal intervals, text values as categories, \
-        local Moran cluster types and trend classes (rising, falling, steady, too few records) in the \
+        local Moran cluster types, trend classes (rising, falling, steady, too few records), hot and cold spots and join-count clusters in the \
         toolbox's own colour-blind-safe palettes — with optional outline overlays (areas, cluster circles \
         drawn by the side they lean to with one legend entry per side, tolerance contours, points), a colour \
         bar or class legend with the unit, a title, a scale bar in metres and a north arrow. With \

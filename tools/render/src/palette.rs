@@ -145,6 +145,32 @@ pub const TREND_COLOURS: [Rgb; 4] = [
     Rgb(0x8c, 0x8c, 0x8c), // too few records: mid grey
 ];
 
+/// Hot and cold spots of a Getis–Ord map, in legend order (the `hot_cold` field).
+pub const HOT_COLD: [&str; 3] = ["hot", "cold", "not significant"];
+
+/// The toolbox's own hot/cold palette, same order as [`HOT_COLD`]: the trend palette's rust and
+/// deep blue for the two kinds of spot (warm = high values), the LISA palette's pale sand for
+/// the rest.
+pub const HOT_COLD_COLOURS: [Rgb; 3] = [TREND_COLOURS[0], TREND_COLOURS[1], LISA_COLOURS[4]];
+
+/// The hot/cold class a label names (trimmed, any case), as an index into [`HOT_COLD`].
+pub fn hot_cold(label: &str) -> Option<usize> {
+    let key = label.trim().to_ascii_lowercase();
+    HOT_COLD.iter().position(|c| *c == key)
+}
+
+/// Flags of a local join count map, in legend order (the `cluster` field of join counts).
+pub const JOIN_FLAGS: [&str; 2] = ["cluster", "not significant"];
+
+/// Dark rust for a cluster, the LISA palette's pale sand for the rest.
+pub const JOIN_FLAG_COLOURS: [Rgb; 2] = [LISA_COLOURS[0], LISA_COLOURS[4]];
+
+/// The join-count flag a label names (trimmed, any case), as an index into [`JOIN_FLAGS`].
+pub fn join_flag(label: &str) -> Option<usize> {
+    let key = label.trim().to_ascii_lowercase();
+    JOIN_FLAGS.iter().position(|c| *c == key)
+}
+
 /// The trend class a label names (trimmed, any case), as an index into [`TREND_CLASSES`].
 pub fn trend_class(label: &str) -> Option<usize> {
     let key = label.trim().to_ascii_lowercase();
@@ -516,6 +542,21 @@ mod tests {
         assert_eq!(trend_class(" Too few records "), Some(3));
         assert_eq!(trend_class("rising"), Some(0));
         assert_eq!(trend_class("no trend"), None);
+    }
+
+    #[test]
+    fn hot_spots_are_warm_cold_spots_cool_and_flags_are_named() {
+        // Hot is the warm rust (red channel above blue), cold the deep blue (blue above red),
+        // and both stay apart from the pale sand of "not significant" in every vision.
+        let [hot, cold, rest] = HOT_COLD_COLOURS;
+        assert!(hot.0 > hot.2 && cold.2 > cold.0);
+        assert!(closest_pair(&HOT_COLD_COLOURS) >= 20.0);
+        assert!(lab(rest)[0] > lab(hot)[0] && lab(rest)[0] > lab(cold)[0]);
+        assert_eq!(hot_cold(" Hot "), Some(0));
+        assert_eq!(hot_cold("not significant"), Some(2));
+        assert_eq!(hot_cold("high-high"), None);
+        assert_eq!(join_flag("cluster"), Some(0));
+        assert_eq!(join_flag("hot"), None);
     }
 
     #[test]
