@@ -6,7 +6,7 @@ SAMPLE := sample-gpkg
 BIN := target/release
 TEST_OUT := target/test-output
 
-.PHONY: demo test deps venv build build-debug sample bench reference fuzz fmt clean
+.PHONY: demo test test-cluster deps venv build build-debug sample bench reference fuzz fmt clean
 
 deps:
 	@.ci/install-deps
@@ -119,6 +119,13 @@ test: venv build-debug
 	STANCE_TEST_OUT=$(abspath $(TEST_OUT)) tests/service/run.sh
 	$(MAKE) demo
 	.ci/validate-all $(TEST_OUT) $(OUT) $(SAMPLE)
+	@if [ -n "$$STANCE_TEST_CLUSTER" ]; then tests/cluster/run.sh; fi
+
+# Sharded runs through a real single-node Slurm (slurm-wlm and munge from Debian, set up here;
+# needs root): the merged outputs must equal one-machine runs bit for bit. `make test` runs it
+# too when STANCE_TEST_CLUSTER is set.
+test-cluster: build-debug
+	STANCE_TEST_OUT=$(abspath $(TEST_OUT)) tests/cluster/run.sh
 
 # Regenerates the committed sample (same seed, same data).
 sample: build

@@ -216,3 +216,81 @@ fn density_shards_merge_to_the_one_machine_run() {
         );
     }
 }
+
+/// `stance plan-batch` writes the array and merge scripts for a shardable tool and refuses a
+/// tool without --shard or a run without --output, in one line.
+#[test]
+fn plan_batch_writes_the_slurm_scripts_or_says_why_not() {
+    let dir = out_dir("shards_plan");
+    let input = nc_copy(&dir);
+    let planned = run_in(
+        &dir,
+        "stance",
+        &[
+            "plan-batch",
+            "--shards",
+            "5",
+            "--dir",
+            "batch",
+            "--minutes",
+            "30",
+            "--memory-mb",
+            "900",
+            "--",
+            "local",
+            "--input",
+            &input,
+            "--statistic",
+            "gi",
+            "--field",
+            "SID79",
+            "--output",
+            "final.gpkg",
+            "--overwrite",
+        ],
+    )
+    .ok();
+    assert_eq!(planned["shards"], 5);
+    let shards = std::fs::read_to_string(dir.join("batch/shards.sbatch")).expect("shards");
+    assert!(shards.contains("#SBATCH --array=1-5") && shards.contains("#SBATCH --mem=900M"));
+    assert!(shards.contains("--shard \"${SLURM_ARRAY_TASK_ID}/5\""));
+    let merge = std::fs::read_to_string(dir.join("batch/merge.sbatch")).expect("merge");
+    assert!(merge.contains("--merge-shards") && merge.contains("--output final.gpkg --overwrite"));
+    let submit = std::fs::read_to_string(dir.join("batch/submit.sh")).expect("submit");
+    assert!(submit.contains("--dependency=afterok:"));
+
+    let refused = run_in(
+        &dir,
+        "stance",
+        &[
+            "plan-batch",
+            "--shards",
+            "2",
+            "--dir",
+            "b2",
+            "--",
+            "weights",
+            "--input",
+            &input,
+            "--output",
+            "w.gpkg",
+        ],
+    );
+    refused.usage_error(&["stance weights cannot split its work into shards"]);
+    let no_output = run_in(
+        &dir,
+        "stance",
+        &[
+            "plan-batch",
+            "--shards",
+            "2",
+            "--dir",
+            "b3",
+            "--",
+            "local",
+            "--input",
+            &input,
+        ],
+    );
+    no_output.usage_error(&["--output"]);
+}

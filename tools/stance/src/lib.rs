@@ -46,7 +46,8 @@ pub fn tools() -> Vec<Entry> {
 }
 
 const USAGE: &str = "usage: stance list | stance describe [TOOL] | stance <TOOL> ARGS… \
-    (stance <TOOL> --help) | stance check-plugin PATH | stance serve [OPTIONS]";
+    (stance <TOOL> --help) | stance check-plugin PATH | stance serve [OPTIONS] | \
+    stance plan-batch --shards N --dir DIR -- TOOL ARGS…";
 
 /// Every process: the built-in tools, then plugins from `STANCE_PLUGIN_PATH` and `PATH`.
 pub fn processes(tools: &[Entry]) -> Vec<Process> {
@@ -77,6 +78,10 @@ pub fn main_with_args(args: Vec<OsString>) -> ExitCode {
         Some("list") => list(&processes(&tools)),
         Some("describe") => describe(&processes(&tools), args.get(2)),
         Some("check-plugin") => check_plugin(args.get(2)),
+        Some("plan-batch") => stance_batch::main(
+            args.into_iter().skip(2).collect(),
+            &std::env::current_exe().unwrap_or_else(|_| "stance".into()),
+        ),
         Some("serve") => stance_serve::service::main(
             args.into_iter().skip(2).collect(),
             processes(&tools),
