@@ -305,6 +305,13 @@ fn failing_dialects_name_file_line_and_option() {
     .usage_error(&["latin.jsonl", "line 1", "--encoding"]);
     failing(
         &dir,
+        "semi.jsonl",
+        b"{\"lon\":-140.2,\"lat\":35.1,\"stance\":\"oppose\"}\n",
+        &["--delimiter", "semicolon"],
+    )
+    .usage_error(&["--delimiter", "semi.jsonl", "JSON lines"]);
+    failing(
+        &dir,
         "x.csv",
         b"lon,lat,stance\n1,2,oppose\n",
         &["--encoding", "klingon"],

@@ -178,6 +178,15 @@ pub fn open(path: &Path, layer: Option<&str>, request: &Request) -> Result<Reade
             ),
         ));
     }
+    if kind == Kind::JsonLines && dialect.delimiter.is_some() {
+        return Err(Error::argument(
+            "--delimiter",
+            format!(
+                "applies to delimited text only; {} is JSON lines (one object per line)",
+                path.display()
+            ),
+        ));
+    }
     match kind {
         Kind::Delimited { tabs } => Ok(Reader::Csv(CsvReader::open(path, request, tabs)?)),
         Kind::JsonLines => Ok(Reader::Jsonl(JsonlReader::open(path, request)?)),
