@@ -1,5 +1,7 @@
 //! Helpers for the end-to-end tests: run the real executables, make fixtures, read outputs back.
 
+pub mod png;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
 

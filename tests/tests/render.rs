@@ -9,6 +9,7 @@ use stance_core::gpkg::read::{read_polygons, PolygonCrs};
 use stance_core::gpkg::stage::{ExtraColumn, FieldDef, FieldKind, Staging};
 use stance_core::gpkg::{crs, raster, Provenance};
 use stance_core::grid::Grid;
+use stance_tests::png::{close, pixels, png_size};
 use stance_tests::{out_dir, rows, run_in, sha256, synth};
 
 /// batlow's top colour (Crameri, Scientific colour maps 8.0, last entry of batlow.txt).
@@ -139,36 +140,6 @@ fn fixture(test: &str) -> PathBuf {
     path
 }
 
-/// Width and height from the PNG signature and IHDR chunk (ISO/IEC 15948, § 11.2.2).
-fn png_size(path: &Path) -> (u32, u32) {
-    let bytes = std::fs::read(path).expect("read png");
-    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
-    assert_eq!(&bytes[12..16], b"IHDR");
-    let be = |i: usize| u32::from_be_bytes([bytes[i], bytes[i + 1], bytes[i + 2], bytes[i + 3]]);
-    (be(16), be(20))
-}
-
-/// All pixels of a PNG as RGB, decoded by GDAL's PNG driver.
-fn pixels(path: &Path) -> (usize, Vec<[u8; 3]>) {
-    let dataset = gdal::Dataset::open(path).expect("GDAL opens the PNG");
-    let (w, h) = dataset.raster_size();
-    let bands: Vec<Vec<u8>> = (1..=3)
-        .map(|b| {
-            dataset
-                .rasterband(b)
-                .expect("band")
-                .read_as::<u8>((0, 0), (w, h), (w, h), None)
-                .expect("read")
-                .into_shape_and_vec()
-                .1
-        })
-        .collect();
-    let rgb = (0..w * h)
-        .map(|i| [bands[0][i], bands[1][i], bands[2][i]])
-        .collect();
-    (w, rgb)
-}
-
 /// The pixel (column, row) of world point (x, y) by the frame in the summary.
 fn pixel_of(results: &Value, x: f64, y: f64) -> (usize, usize) {
     let f = |k: &str, v: &str| results[k][v].as_f64().expect("number");
@@ -177,10 +148,6 @@ fn pixel_of(results: &Value, x: f64, y: f64) -> (usize, usize) {
         (f("map_px", "left") + (x - f("extent", "x_min")) / m).floor() as usize,
         (f("map_px", "top") + (f("extent", "y_max") - y) / m).floor() as usize,
     )
-}
-
-fn close(a: [u8; 3], b: [u8; 3], tolerance: u8) -> bool {
-    a.iter().zip(&b).all(|(x, y)| x.abs_diff(*y) <= tolerance)
 }
 
 #[test]

@@ -14,6 +14,7 @@ use stance_core::gpkg::stage::{
 };
 use stance_core::gpkg::{crs, raster, Provenance};
 use stance_core::grid::Grid;
+use stance_tests::png::{close, pixels, png_size};
 use stance_tests::{out_dir, rows, run_in, synth};
 
 /// batlow at t = 0.25 and t = 1 (Crameri, Scientific colour maps 8.0, batlow.txt entries 64
@@ -252,35 +253,6 @@ fn fixture(test: &str) -> PathBuf {
     path
 }
 
-/// Width and height from the PNG IHDR chunk (ISO/IEC 15948, § 11.2.2).
-fn png_size(path: &Path) -> (u32, u32) {
-    let bytes = std::fs::read(path).expect("read png");
-    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
-    let be = |i: usize| u32::from_be_bytes([bytes[i], bytes[i + 1], bytes[i + 2], bytes[i + 3]]);
-    (be(16), be(20))
-}
-
-/// All pixels of a PNG as RGB, decoded by GDAL's PNG driver.
-fn pixels(path: &Path) -> (usize, Vec<[u8; 3]>) {
-    let dataset = gdal::Dataset::open(path).expect("GDAL opens the PNG");
-    let (w, h) = dataset.raster_size();
-    let bands: Vec<Vec<u8>> = (1..=3)
-        .map(|b| {
-            dataset
-                .rasterband(b)
-                .expect("band")
-                .read_as::<u8>((0, 0), (w, h), (w, h), None)
-                .expect("read")
-                .into_shape_and_vec()
-                .1
-        })
-        .collect();
-    let rgb = (0..w * h)
-        .map(|i| [bands[0][i], bands[1][i], bands[2][i]])
-        .collect();
-    (w, rgb)
-}
-
 /// The pixel (column, row) of world point (x, y) in the panel whose map rectangle is `map_px`.
 fn pixel_in(results: &Value, map_px: &Value, (x, y): (f64, f64)) -> (usize, usize) {
     let f = |v: &Value, k: &str| v[k].as_f64().expect("number");
@@ -290,10 +262,6 @@ fn pixel_in(results: &Value, map_px: &Value, (x, y): (f64, f64)) -> (usize, usiz
         (f(map_px, "left") + (x - f(extent, "x_min")) / m).floor() as usize,
         (f(map_px, "top") + (f(extent, "y_max") - y) / m).floor() as usize,
     )
-}
-
-fn close(a: [u8; 3], b: [u8; 3], tolerance: u8) -> bool {
-    a.iter().zip(&b).all(|(x, y)| x.abs_diff(*y) <= tolerance)
 }
 
 fn render(dir: &Path, args: &[&str]) -> Value {
