@@ -1,7 +1,7 @@
 //! stance-render end to end: surfaces and area layers of a stance-synth GeoPackage drawn to
 //! PNG, the PNG decoded back (GDAL's PNG driver) and its pixels checked against the palette.
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 
 use serde_json::{json, Value};
