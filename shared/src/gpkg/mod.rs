@@ -196,3 +196,20 @@ pub fn open_sqlite_read(path: &Path) -> Result<rusqlite::Connection> {
         Err(e) => Err(not_gpkg(format!("{e}; expected an OGC GeoPackage"))),
     }
 }
+
+/// The newest stance-toolbox provenance record of `table` in `path` (tool, version, parameters,
+/// inputs, results), or None when the table has none or the file cannot be read.
+pub fn provenance_of(path: &Path, table: &str) -> Option<Value> {
+    let connection = open_sqlite_read(path).ok()?;
+    let record: String = connection
+        .query_row(
+            "SELECT m.metadata FROM gpkg_metadata m JOIN gpkg_metadata_reference r \
+             ON r.md_file_id = m.id WHERE r.reference_scope = 'table' \
+             AND lower(r.table_name) = lower(?1) AND m.md_standard_uri = ?2 \
+             ORDER BY m.id DESC LIMIT 1",
+            rusqlite::params![table, stage::PROVENANCE_URI],
+            |r| r.get(0),
+        )
+        .ok()?;
+    serde_json::from_str(&record).ok()
+}

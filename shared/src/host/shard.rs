@@ -20,7 +20,7 @@ use std::path::{Path, PathBuf};
 use serde_json::{json, Value};
 
 use crate::error::{Error, Result};
-use crate::gpkg::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Shape, PROVENANCE_URI};
+use crate::gpkg::stage::{FieldData, FieldDef, FieldKind, GeometryKind, Shape};
 use crate::host::Run;
 
 /// `--shard` and `--merge-shards`, for tools whose replicates can be split.
@@ -419,18 +419,7 @@ fn shards_in(file: &Path, base: &str) -> Result<Vec<Found>> {
         let (Ok(index), Ok(count)) = (k.parse::<usize>(), n.parse::<usize>()) else {
             continue;
         };
-        let record: Option<String> = connection
-            .query_row(
-                "SELECT m.metadata FROM gpkg_metadata m JOIN gpkg_metadata_reference r \
-                 ON r.md_file_id = m.id WHERE lower(r.table_name) = lower(?1) \
-                 AND m.md_standard_uri = ?2 ORDER BY m.id DESC LIMIT 1",
-                rusqlite::params![layer, PROVENANCE_URI],
-                |r| r.get(0),
-            )
-            .ok();
-        let record = record
-            .and_then(|r| serde_json::from_str::<Value>(&r).ok())
-            .unwrap_or(Value::Null);
+        let record = crate::gpkg::provenance_of(file, &layer).unwrap_or(Value::Null);
         found.push(Found {
             file: file.to_owned(),
             layer,

@@ -67,6 +67,8 @@ pub struct ChartPage {
     pub y_label: String,
     /// Lines, bands and axis ranges.
     pub model: ChartModel,
+    /// The legend's words for the shaded band.
+    pub band_label: String,
 }
 
 impl ChartPage {
@@ -81,6 +83,7 @@ impl ChartPage {
             x_label: format!("period ({word})"),
             y_label,
             model,
+            band_label: "shaded: interval of each share".to_owned(),
         }
     }
 }

@@ -224,10 +224,7 @@ fn draw_chart_legend<'a>(
         [(left, y), (left + px(26.0), y + px(18.0))],
         BLACK.mix(BAND_OPACITY).filled(),
     ))?;
-    for (k, line) in wrap("shaded: interval of each share", 20)
-        .iter()
-        .enumerate()
-    {
+    for (k, line) in wrap(&page.band_label, 20).iter().enumerate() {
         root.draw_text(
             line,
             &small.pos(Pos::new(HPos::Left, VPos::Top)),

@@ -40,7 +40,7 @@ use output::{summary, PngTarget};
 use overlay::read_overlay;
 pub use params::{PaletteChoice, RenderParams, Subject};
 use params::{UnitChoice, MAX_UNITS};
-use periods::{case_class_of, read_period_table};
+use periods::{case_class_of, interval_level_of, read_period_table};
 use projection::{crs_text, feature_rings};
 use scene::{Page, Scene};
 use series::{periods_present, slices_of, Slice};
@@ -195,7 +195,10 @@ fn chart_page(
         .title
         .clone()
         .unwrap_or_else(|| format!("{table}: {}", y_label.trim_end_matches(" (%)")));
-    let page = ChartPage::new(params.width_px, title, y_label, model);
+    let mut page = ChartPage::new(params.width_px, title, y_label, model);
+    if let Some(level) = interval_level_of(input, table) {
+        page.band_label = format!("shaded: {:.0} % interval of each share", level * 100.0);
+    }
     let mut summary = chart_summary(&page, table);
     if let Some(object) = summary.as_object_mut() {
         object.insert("png".into(), serde_json::json!(params.png));

@@ -165,19 +165,13 @@ pub fn read_period_table(path: &Path, table: &str) -> Result<Vec<PeriodRow>> {
 /// The case class a table was made for, from the parameters in its provenance record
 /// (`case-class`); `None` when the file keeps no such record.
 pub fn case_class_of(path: &Path, table: &str) -> Option<String> {
-    let connection = open_sqlite_read(path).ok()?;
-    let record: String = connection
-        .query_row(
-            "SELECT m.metadata FROM gpkg_metadata m JOIN gpkg_metadata_reference r
-             ON r.md_file_id = m.id
-             WHERE r.reference_scope = 'table' AND lower(r.table_name) = lower(?1)
-             ORDER BY m.id DESC LIMIT 1",
-            [table],
-            |r| r.get(0),
-        )
-        .ok()?;
-    let value: serde_json::Value = serde_json::from_str(&record).ok()?;
-    value["parameters"]["case-class"]
+    stance_core::gpkg::provenance_of(path, table)?["parameters"]["case-class"]
         .as_str()
         .map(str::to_owned)
+}
+
+/// The level of the table's intervals, 1 − `alpha` of the run that wrote it (e.g. 0.95).
+pub fn interval_level_of(path: &Path, table: &str) -> Option<f64> {
+    let alpha = stance_core::gpkg::provenance_of(path, table)?["parameters"]["alpha"].as_f64()?;
+    (alpha > 0.0 && alpha < 1.0).then_some(1.0 - alpha)
 }
