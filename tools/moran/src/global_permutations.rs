@@ -20,36 +20,35 @@ const BLOCK: usize = 16;
 /// Permutations between two progress reports (a multiple of [`BLOCK`]).
 const PROGRESS_STEP: usize = 32 * BLOCK;
 
-/// One worker's buffers: the shuffled labels of each replicate of a block and the permuted
-/// values interleaved by area.
+/// One worker's buffers: each replicate's shuffled copy of the values, then the block's values
+/// interleaved by area.
 struct Scratch {
-    labels: Vec<u32>,
+    shuffled: Vec<f64>,
     lanes: Vec<[f64; BLOCK]>,
 }
 
 impl Scratch {
     fn new(n: usize) -> Self {
         Scratch {
-            labels: vec![0; n * BLOCK],
+            shuffled: vec![0.0; n * BLOCK],
             lanes: vec![[0.0; BLOCK]; n],
         }
     }
 
-    /// Shuffles the labels of each replicate in `replicates` (at most [`BLOCK`]) and lays out
-    /// the permuted values of `z`; unused lanes hold 0.
+    /// Lays out `z` relabelled by each replicate of `replicates` (at most [`BLOCK`]; unused
+    /// lanes hold 0): each replicate shuffles its own copy (which stays in the core's cache),
+    /// then the copies are interleaved in one sequential pass.
     fn fill(&mut self, z: &[f64], replicates: &[u64], seed: u64) {
         let n = z.len();
         let used = replicates.len().min(BLOCK);
-        for (k, &r) in replicates.iter().take(BLOCK).enumerate() {
-            let labels = &mut self.labels[k * n..(k + 1) * n];
-            for (j, label) in labels.iter_mut().enumerate() {
-                *label = j as u32;
-            }
-            Draws::new(seed, r).shuffle(labels);
+        for (copy, &r) in self.shuffled.chunks_exact_mut(n).zip(replicates) {
+            copy.copy_from_slice(z);
+            Draws::new(seed, r).shuffle(copy);
         }
+        let shuffled = &self.shuffled;
         for (j, lane) in self.lanes.iter_mut().enumerate() {
             for (k, value) in lane.iter_mut().enumerate().take(used) {
-                *value = z[self.labels[k * n + j] as usize];
+                *value = shuffled[k * n + j];
             }
             lane[used..].fill(0.0);
         }
@@ -60,8 +59,11 @@ impl Scratch {
 #[inline(always)]
 fn pass(w: &SparseWeights, lanes: &[[f64; BLOCK]]) -> [f64; BLOCK] {
     let mut total = [0.0; BLOCK];
-    for (i, own) in lanes.iter().enumerate() {
-        let (js, ws) = w.row(i);
+    for (own, span) in lanes.iter().zip(w.offsets.windows(2)) {
+        let (js, ws) = (
+            &w.neighbours[span[0]..span[1]],
+            &w.weights[span[0]..span[1]],
+        );
         let mut lag = [0.0; BLOCK];
         for (j, wj) in js.iter().zip(ws) {
             let values = &lanes[*j as usize];
