@@ -144,7 +144,7 @@ fn value_text(value: ValueRef<'_>) -> Option<String> {
 /// Missing file or table ([`Error::LayerNotFound`]), a missing column ([`Error::FieldNotFound`]),
 /// NULL ids or a weight that is not a finite number ([`Error::BadField`]).
 pub fn read(path: &Path, table: &str) -> Result<WeightsTable> {
-    let connection = super::read::open_for_scan(path)?;
+    let connection = super::open_sqlite_read(path)?;
     let tables = super::list_tables(path)?;
     let found = tables
         .iter()

@@ -90,24 +90,6 @@ pub struct PointLayer {
     pub source_srs: SpatialRef,
 }
 
-/// Bytes of a file SQLite maps into memory when a whole layer is read.
-const SCAN_MMAP_BYTES: i64 = 1 << 30;
-
-/// [`super::open_sqlite_read`] for reading whole tables: SQLite reads the file's pages through a
-/// memory map (up to [`SCAN_MMAP_BYTES`]) instead of one `pread` and copy per page, which took
-/// about a third of the time of reading a million points. The mapped pages are the page cache's
-/// own (clean, shared with other readers), not the process's allocations.
-pub(crate) fn open_for_scan(path: &Path) -> Result<rusqlite::Connection> {
-    let connection = super::open_sqlite_read(path)?;
-    connection
-        .pragma_update(None, "mmap_size", SCAN_MMAP_BYTES)
-        .map_err(|e| Error::NotGeoPackage {
-            path: path.to_owned(),
-            reason: e.to_string(),
-        })?;
-    Ok(connection)
-}
-
 /// The feature layers of a GeoPackage with their geometry type.
 fn feature_layers(connection: &rusqlite::Connection) -> rusqlite::Result<Vec<(String, String)>> {
     let mut statement = connection.prepare(
@@ -275,7 +257,7 @@ pub fn read_points(
     fields: &[(&str, FieldWant)],
     user_crs: Option<&str>,
 ) -> Result<PointLayer> {
-    let connection = open_for_scan(path)?;
+    let connection = super::open_sqlite_read(path)?;
     let (layer, geometry_type) = resolve_layer(path, &connection, layer, &["POINT"])?;
     let bad = |message: String| Error::BadLayer {
         path: path.to_owned(),
@@ -320,7 +302,7 @@ pub fn read_points(
         ranges
             .par_iter()
             .map(|range| {
-                let own = open_for_scan(path)?;
+                let own = super::open_sqlite_read(path)?;
                 read_point_rows(&own, &query.sql, *range, fields, &bad, &bad_field)
             })
             .collect()

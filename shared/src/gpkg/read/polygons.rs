@@ -241,7 +241,7 @@ fn read_polygon_rows(
     fields: &[(&str, FieldWant)],
     empty: Empty,
 ) -> Result<PolygonRows> {
-    let connection = super::open_for_scan(path)?;
+    let connection = crate::gpkg::open_sqlite_read(path)?;
     let (layer, geometry_type) =
         resolve_layer(path, &connection, layer, &["MULTIPOLYGON", "POLYGON"])?;
     let bad = |message: String| Error::BadLayer {

@@ -144,7 +144,7 @@ impl Staging {
         );
         let srs_id = self.create_table(name, geometry_type, srs.as_ref(), &schema)?;
 
-        let reader = crate::gpkg::read::open_for_scan(source)?;
+        let reader = crate::gpkg::open_sqlite_read(source)?;
         let read_ctx = format!("reading layer '{layer}' of {}", source.display());
         let select = source_select(&reader, layer, &source_fields, &read_ctx, &bad)?;
         let mut statement = reader
