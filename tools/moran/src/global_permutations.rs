@@ -10,6 +10,8 @@
 //! row by row and link by link with a separate multiply and add, so its value does not depend on
 //! the block size, the vector width or the number of threads.
 
+use std::sync::Mutex;
+
 use rayon::prelude::*;
 use stance_core::montecarlo::Draws;
 use stance_core::weights::SparseWeights;
@@ -107,6 +109,31 @@ fn pass_widest(w: &SparseWeights, lanes: &[[f64; BLOCK]]) -> [f64; BLOCK] {
     pass(w, lanes)
 }
 
+/// Buffers lent to rayon's jobs and given back when a job ends, so a run allocates (and the
+/// kernel zeroes) one set per concurrent job rather than one per job.
+struct Lent<'p> {
+    scratch: Option<Scratch>,
+    pool: &'p Mutex<Vec<Scratch>>,
+}
+
+impl<'p> Lent<'p> {
+    fn take(pool: &'p Mutex<Vec<Scratch>>, n: usize) -> Self {
+        let scratch = pool.lock().ok().and_then(|mut p| p.pop());
+        Lent {
+            scratch: Some(scratch.unwrap_or_else(|| Scratch::new(n))),
+            pool,
+        }
+    }
+}
+
+impl Drop for Lent<'_> {
+    fn drop(&mut self) {
+        if let (Some(scratch), Ok(mut pool)) = (self.scratch.take(), self.pool.lock()) {
+            pool.push(scratch);
+        }
+    }
+}
+
 /// C_π for the replicates 0..`permutations` of a run seeded with `seed`, in replicate order.
 /// `z` holds the centred values (one per row of `w`); `progress` is told how many are done.
 pub fn cross_products(
@@ -116,13 +143,15 @@ pub fn cross_products(
     progress: &dyn Fn(usize),
 ) -> Vec<f64> {
     let indices: Vec<u64> = (0..permutations as u64).collect();
+    let pool = Mutex::new(Vec::new());
     let mut sums = Vec::with_capacity(permutations);
     for part in indices.chunks(PROGRESS_STEP) {
         let blocks: Vec<[f64; BLOCK]> = part
             .par_chunks(BLOCK)
             .map_init(
-                || Scratch::new(z.len()),
-                |scratch, chunk| {
+                || Lent::take(&pool, z.len()),
+                |lent, chunk| {
+                    let scratch = lent.scratch.get_or_insert_with(|| Scratch::new(z.len()));
                     scratch.fill(z, chunk, seed);
                     pass_widest(w, &scratch.lanes)
                 },
