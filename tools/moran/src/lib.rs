@@ -2,7 +2,6 @@
 //! and permutation inference and LISA cluster types (Cliff & Ord 1981; Anselin 1995; Sokal,
 //! Oden & Thomson 1998), and the empirical Bayes index for rates (Assunção & Reis 1999).
 
-pub mod global_permutations;
 pub mod maths;
 pub mod output;
 pub mod params;

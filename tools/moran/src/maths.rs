@@ -9,7 +9,6 @@
 //! this. In the global I, n counts the areas with neighbours (islands carry no weight in S0).
 //! The reference checks (tests/) compare both with R spdep and PySAL esda.
 
-use crate::global_permutations;
 use rayon::prelude::*;
 use stance_core::montecarlo::{mix64, Draws};
 use stance_core::weights::SparseWeights;
@@ -144,6 +143,53 @@ fn cross_product(w: &SparseWeights, z: &[f64]) -> f64 {
     (0..z.len()).map(|i| z[i] * w.lag(i, z)).sum()
 }
 
+/// Permutations whose cross products are computed in one pass over the weights.
+const BLOCK: usize = 8;
+
+/// Global permutations between two progress reports (a multiple of [`BLOCK`], so the blocks,
+/// and the values, are the same as without reports).
+const PROGRESS_STEP: usize = 64 * BLOCK;
+
+/// Σ_i z_π(i) Σ_j w_ij z_π(j) for the permutations π of `replicates` (at most [`BLOCK`]; replicate
+/// r shuffles with [`Draws`]`::new(seed, r)`). The permuted values are interleaved so that one
+/// pass over the weights serves the whole block; each sum is formed in the same order as
+/// [`cross_product`], so a replicate's value does not depend on its block.
+fn block_cross_products(
+    w: &SparseWeights,
+    z: &[f64],
+    replicates: &[u64],
+    seed: u64,
+) -> [f64; BLOCK] {
+    let n = z.len();
+    let mut interleaved = vec![0.0; n * BLOCK];
+    let mut shuffled = z.to_vec();
+    for (k, &r) in replicates.iter().enumerate().take(BLOCK) {
+        shuffled.copy_from_slice(z);
+        Draws::new(seed, r).shuffle(&mut shuffled);
+        for (j, v) in shuffled.iter().enumerate() {
+            interleaved[j * BLOCK + k] = *v;
+        }
+    }
+    let mut total = [0.0; BLOCK];
+    for i in 0..n {
+        let (js, ws) = w.row(i);
+        let mut lag = [0.0; BLOCK];
+        for (j, wj) in js.iter().zip(ws) {
+            let values: &[f64; BLOCK] = interleaved[*j as usize * BLOCK..][..BLOCK]
+                .try_into()
+                .unwrap_or(&[0.0; BLOCK]);
+            for k in 0..BLOCK {
+                lag[k] += wj * values[k];
+            }
+        }
+        let own = &interleaved[i * BLOCK..(i + 1) * BLOCK];
+        for k in 0..BLOCK {
+            total[k] += own[k] * lag[k];
+        }
+    }
+    total
+}
+
 /// Global Moran's I of `x` under weights `w`, with `permutations` random relabellings seeded by
 /// `seed` (replicate r uses [`Draws`]`::new(seed, r)`, so results do not depend on threads).
 ///
@@ -186,11 +232,21 @@ pub fn global_moran(
     let (p_permutation, permutation_mean) = if permutations == 0 {
         (f64::NAN, f64::NAN)
     } else {
-        let replicates: Vec<f64> =
-            global_permutations::cross_products(w, &z, (permutations, seed), progress)
-                .into_iter()
-                .map(|c| n / m.s0 * c / zz)
-                .collect();
+        let indices: Vec<u64> = (0..permutations as u64).collect();
+        let mut replicates: Vec<f64> = Vec::with_capacity(permutations);
+        for part in indices.chunks(PROGRESS_STEP) {
+            replicates.extend(
+                part.par_chunks(BLOCK)
+                    .flat_map_iter(|chunk| {
+                        block_cross_products(w, &z, chunk, seed)
+                            .into_iter()
+                            .take(chunk.len())
+                            .map(|c| n / m.s0 * c / zz)
+                    })
+                    .collect::<Vec<f64>>(),
+            );
+            progress(replicates.len());
+        }
         let at_least = replicates.iter().filter(|v| **v >= i).count();
         let at_most = replicates.iter().filter(|v| **v <= i).count();
         (
