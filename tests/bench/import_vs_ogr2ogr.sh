@@ -2,7 +2,7 @@
 # Benchmark: stance-import of a 1,000,000-row CSV against GDAL's ogr2ogr doing the same
 # conversion (CSV with lon/lat columns → GeoPackage point layer, EPSG:4326), side by side on
 # the same file, median of 3 runs each; then reading the 1,000,000 points back (stance-core's
-# read_points against pyogrio's Arrow reader). Prints the ratios.
+# read_points against pyogrio's Arrow reader, tests/bench/read_vs_pyogrio.sh). Prints the ratios.
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 N=${N:-1000000}
@@ -31,11 +31,4 @@ for i in $(seq "$RUNS"); do
 done
 p=$(printf '%s\n' "${peer[@]}" | median); o=$(printf '%s\n' "${ours[@]}" | median)
 printf 'import %s rows: ogr2ogr %.2f s, stance-import %.2f s (with checks), ratio %.2f\n' "$N" "$p" "$o" "$(awk -v a="$o" -v b="$p" 'BEGIN {print a / b}')"
-cargo build -q --release -p stance-core --example read_points_timing
-reads=(); preads=()
-for i in $(seq "$RUNS"); do
-  reads+=("$(target/release/examples/read_points_timing "$work/ours.gpkg" records stance | sed 's/.*"seconds": \([0-9.]*\).*/\1/')")
-  preads+=("$(.venv/bin/python tests/bench/read_points_peer.py "$work/ours.gpkg" records stance | sed 's/.*"seconds": \([0-9.]*\).*/\1/')")
-done
-r=$(printf '%s\n' "${reads[@]}" | median); pr=$(printf '%s\n' "${preads[@]}" | median)
-printf 'read %s points + 1 field: pyogrio arrow %.3f s, stance-core read_points %.3f s, ratio %.2f\n' "$N" "$pr" "$r" "$(awk -v a="$r" -v b="$pr" 'BEGIN {print a / b}')"
+PYTHON=${PYTHON:-.venv-reference/bin/python} tests/bench/read_vs_pyogrio.sh "$work/ours.gpkg" records

@@ -534,6 +534,23 @@ fn read_point_rows(
     Ok(out)
 }
 
+/// Distinct values up to which a text is looked up by comparing it with each value in turn
+/// (cheaper than hashing it; stance labels have a handful of values).
+const FEW_VALUES: usize = 8;
+
+/// The code of `text` if the column has seen it.
+fn known_code(column: &TextColumn, index: &HashMap<String, u32>, text: &str) -> Option<u32> {
+    if column.values.len() <= FEW_VALUES {
+        column
+            .values
+            .iter()
+            .position(|v| v == text)
+            .map(|p| p as u32)
+    } else {
+        index.get(text).copied()
+    }
+}
+
 enum ColumnBuilder {
     Text(TextColumn, HashMap<String, u32>),
     Real(Vec<Option<f64>>),
@@ -563,8 +580,8 @@ impl ColumnBuilder {
                 };
                 let code = match text {
                     None => TextColumn::NULL,
-                    Some(text) => match index.get(text.as_ref()) {
-                        Some(code) => *code,
+                    Some(text) => match known_code(column, index, text.as_ref()) {
+                        Some(code) => code,
                         None => {
                             let code = column.values.len() as u32;
                             column.values.push(text.clone().into_owned());

@@ -6,6 +6,7 @@
 //! of layers and fields (`fields`), writing rows into the staging file (`write`), provenance
 //! records (`provenance`), and copying staged tables into an existing output (`merge`).
 
+mod batch;
 mod fields;
 mod merge;
 mod provenance;

@@ -1,7 +1,9 @@
 //! Writing rows into the staging GeoPackage: GDAL creates each table and its system rows,
 //! rows go in through SQLite with a bulk-loaded R-tree.
 
+use super::batch::Batch;
 use super::*;
+use rusqlite::types::Value;
 
 impl Staging {
     /// Creates the empty table `name` through GDAL (system rows, R-tree and its triggers,
@@ -75,7 +77,6 @@ impl Staging {
             columns.push(q("geom"));
         }
         columns.extend(fields.iter().map(|f| q(&f.name)));
-        let sql = insert_statement(name, &columns);
         self.open_sql()?;
         let Staging {
             sql: connection,
@@ -89,14 +90,12 @@ impl Staging {
         connection
             .execute_batch("BEGIN")
             .map_err(Error::sqlite(context.clone()))?;
-        let insert = connection
-            .prepare(&sql)
-            .map_err(Error::sqlite(context.clone()))?;
+        let batch =
+            Batch::new(connection, name, &columns).map_err(Error::sqlite(context.clone()))?;
         let load =
             BulkLoad::start(connection, name, spatial).map_err(Error::sqlite(context.clone()))?;
         Ok(VectorWriter {
-            connection,
-            insert,
+            batch,
             srs_id: srs_id.unwrap_or(0),
             spatial,
             load,
@@ -105,7 +104,6 @@ impl Staging {
             count: 0,
             staged: layers,
             data_type: if spatial { "features" } else { "attributes" },
-            blob: Vec::new(),
             finished: false,
         })
     }
@@ -347,8 +345,7 @@ fn finish_table(
 /// Writes the rows of one staged layer through SQLite in one transaction;
 /// [`VectorWriter::finish`] commits it.
 pub struct VectorWriter<'a> {
-    connection: &'a Connection,
-    insert: rusqlite::Statement<'a>,
+    batch: Batch<'a>,
     srs_id: i32,
     spatial: bool,
     load: BulkLoad,
@@ -357,39 +354,34 @@ pub struct VectorWriter<'a> {
     count: u64,
     staged: &'a mut Vec<StagedLayer>,
     data_type: &'static str,
-    blob: Vec<u8>,
     finished: bool,
 }
 
 impl VectorWriter<'_> {
-    /// Adds one feature.
+    /// Adds one feature (buffered: rows go in by multi-row INSERTs, see [`Batch`]).
     ///
     /// # Errors
     /// SQLite failures, or a shape on a layer without geometry.
     pub fn add(&mut self, shape: Shape<'_>, values: &[FieldData<'_>]) -> Result<()> {
-        let fail = |e| Error::Sqlite {
-            context: format!("writing layer '{}'", self.name),
-            source: e,
-        };
-        let mut p = 1;
+        let mut row = Vec::with_capacity(self.kinds.len() + 1);
         let mut bounds = None;
         if self.spatial {
-            self.blob.clear();
-            let blob = &mut self.blob;
+            let mut blob = Vec::new();
             bounds = match shape {
                 Shape::None => None,
-                Shape::Point(x, y) => crate::gpkg::blob::encode_point(blob, self.srs_id, x, y),
+                Shape::Point(x, y) => crate::gpkg::blob::encode_point(&mut blob, self.srs_id, x, y),
                 Shape::Polygon(polygon) => {
                     let multi = geo_types::MultiPolygon::new(vec![polygon.clone()]);
-                    crate::gpkg::blob::encode_multipolygon(blob, self.srs_id, &multi)
+                    crate::gpkg::blob::encode_multipolygon(&mut blob, self.srs_id, &multi)
                 }
                 Shape::MultiPolygon(multi) => {
-                    crate::gpkg::blob::encode_multipolygon(blob, self.srs_id, multi)
+                    crate::gpkg::blob::encode_multipolygon(&mut blob, self.srs_id, multi)
                 }
             };
-            let geometry = (!matches!(shape, Shape::None)).then_some(self.blob.as_slice());
-            self.insert.raw_bind_parameter(p, geometry).map_err(fail)?;
-            p += 1;
+            row.push(match shape {
+                Shape::None => Value::Null,
+                _ => Value::Blob(blob),
+            });
         } else if !matches!(shape, Shape::None) {
             return Err(Error::Failed(format!(
                 "layer '{}' has no geometry column",
@@ -398,33 +390,26 @@ impl VectorWriter<'_> {
         }
         for (index, kind) in self.kinds.iter().enumerate() {
             let value = values.get(index).copied().unwrap_or(FieldData::Null);
-            match (value, kind) {
-                (FieldData::Null, _) => self.insert.raw_bind_parameter(p, rusqlite::types::Null),
-                (FieldData::Real(v), _) if v.is_nan() => {
-                    self.insert.raw_bind_parameter(p, rusqlite::types::Null)
-                }
-                (FieldData::Integer(v), FieldKind::Real) => {
-                    self.insert.raw_bind_parameter(p, v as f64)
-                }
-                (FieldData::Integer(v), _) => self.insert.raw_bind_parameter(p, v),
-                (FieldData::Real(v), _) => self.insert.raw_bind_parameter(p, v),
-                (FieldData::Text(v), _) => self.insert.raw_bind_parameter(p, v),
-                (FieldData::DateTime(seconds), _) => {
-                    // The form GDAL writes for DateTime fields, read back as UTC.
-                    let text = chrono::DateTime::from_timestamp(seconds, 0)
-                        .map(|t| t.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string());
-                    self.insert.raw_bind_parameter(p, text)
-                }
-            }
-            .map_err(fail)?;
-            p += 1;
+            row.push(match (value, kind) {
+                (FieldData::Null, _) => Value::Null,
+                (FieldData::Real(v), _) if v.is_nan() => Value::Null,
+                (FieldData::Integer(v), FieldKind::Real) => Value::Real(v as f64),
+                (FieldData::Integer(v), _) => Value::Integer(v),
+                (FieldData::Real(v), _) => Value::Real(v),
+                (FieldData::Text(v), _) => Value::Text(v.to_owned()),
+                // The form GDAL writes for DateTime fields, read back as UTC.
+                (FieldData::DateTime(seconds), _) => chrono::DateTime::from_timestamp(seconds, 0)
+                    .map_or(Value::Null, |t| {
+                        Value::Text(t.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string())
+                    }),
+            });
         }
-        self.insert.raw_execute().map_err(fail)?;
-        if let Some(e) = bounds {
-            self.load
-                .entries
-                .push((self.connection.last_insert_rowid(), e));
-        }
+        self.batch
+            .push(row, bounds, &mut self.load.entries)
+            .map_err(|e| Error::Sqlite {
+                context: format!("writing layer '{}'", self.name),
+                source: e,
+            })?;
         self.count += 1;
         Ok(())
     }
@@ -435,12 +420,14 @@ impl VectorWriter<'_> {
     /// SQLite failures.
     pub fn finish(mut self) -> Result<u64> {
         self.finished = true;
-        finish_table(self.connection, &self.name, &self.load, self.count).map_err(|e| {
-            Error::Sqlite {
+        let connection = self.batch.connection();
+        self.batch
+            .flush(&mut self.load.entries)
+            .and_then(|()| finish_table(connection, &self.name, &self.load, self.count))
+            .map_err(|e| Error::Sqlite {
                 context: format!("committing layer '{}'", self.name),
                 source: e,
-            }
-        })?;
+            })?;
         self.staged.push(StagedLayer {
             name: self.name.clone(),
             data_type: self.data_type,
@@ -454,7 +441,7 @@ impl Drop for VectorWriter<'_> {
     fn drop(&mut self) {
         if !self.finished {
             // An abandoned layer: its rows are dropped; the run fails and the file is removed.
-            let _ = self.connection.execute_batch("ROLLBACK");
+            let _ = self.batch.connection().execute_batch("ROLLBACK");
         }
     }
 }
