@@ -6,6 +6,7 @@
 
 pub mod analysis;
 pub mod clusters;
+pub mod cylinders;
 pub mod engine;
 pub mod input;
 pub mod models;
@@ -19,7 +20,7 @@ use serde_json::Value;
 use stance_core::error::{Error, Result};
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 
-use analysis::{scan_areas, scan_points, ScanResult};
+use analysis::{scan_areas, scan_points, scan_space_time, ScanResult, TimedModel, TimedRecords};
 use input::{read_areas, read_records, Data, DataKind};
 pub use output::circle;
 use output::{cluster_row, summary, write_layers, ClusterRow};
@@ -94,7 +95,7 @@ impl Tool for Scan {
             .map(|c| cluster_row(&config, &data, &scanned, c))
             .collect();
         log_clusters(run, &scanned, &rows);
-        write_layers(run, &data, &scanned, &rows)?;
+        write_layers(run, &config, &data, &scanned, &rows)?;
         let mut results = summary(run, &config, &data, &scanned, &rows);
         results["scan_time_s"] = ((scan_s * 1000.0).round() / 1000.0).into();
         Ok(results)
@@ -109,7 +110,7 @@ fn read(config: &Config, run: &mut Run) -> Result<Data> {
             field,
             classes,
             roles,
-        } => read_records(run, &input, field, classes, roles),
+        } => read_records(run, &input, field, classes, roles, config.time.as_ref()),
         Subject::Areas(fields) => read_areas(run, &input, fields),
     }
 }
@@ -146,8 +147,23 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
         }
     };
     let stop = run.interrupt().flag();
-    let outcome = match &data.kind {
-        DataKind::Points { labels, model, .. } => scan_points(
+    let outcome = match (&data.kind, &data.times) {
+        (DataKind::Points { labels, model, .. }, Some(times)) => {
+            let records = TimedRecords {
+                x: &data.x,
+                y: &data.y,
+                period: &times.of_record,
+                periods: times.periods,
+                labels,
+            };
+            let timed = match config.model {
+                ModelChoice::SpaceTimePermutation => TimedModel::Permutation,
+                _ => TimedModel::Labels(*model),
+            };
+            let duration = max_duration(config, times.periods);
+            scan_space_time(&records, timed, duration, &config.scan, &report, stop)
+        }
+        (DataKind::Points { labels, model, .. }, None) => scan_points(
             &data.x,
             &data.y,
             labels,
@@ -156,7 +172,7 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
             &report,
             stop,
         ),
-        DataKind::Areas { cases, expected } => scan_areas(
+        (DataKind::Areas { cases, expected }, _) => scan_areas(
             &data.x,
             &data.y,
             cases,
@@ -167,6 +183,16 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
         ),
     };
     outcome.map_err(|_| Error::Interrupted)
+}
+
+/// The longest run of periods: as asked, or half the `periods` studied (at least 1).
+pub fn max_duration(config: &Config, periods: usize) -> usize {
+    config
+        .time
+        .as_ref()
+        .and_then(|t| t.max_duration)
+        .unwrap_or(periods / 2)
+        .clamp(1, periods.max(1))
 }
 
 /// One log line per cluster (shown with -v).
