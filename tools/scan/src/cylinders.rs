@@ -357,7 +357,12 @@ impl<M: WindowModel> Scanner<'_, M> {
                     Sizing::Records => n as f64,
                     Sizing::Expected => circle.circle_records * in_periods as f64 / self.all_records,
                 };
-                if n == 0 && self.setup.sizing == Sizing::Records {
+                let skip = match self.setup.sizing {
+                    Sizing::Records => n == 0,
+                    // High clusters only: no ratio where c ≤ μ (saves the logarithms).
+                    Sizing::Expected => f64::from(inside[0]) <= size,
+                };
+                if skip {
                     continue;
                 }
                 let (llr, side) = self.model.llr(&self.model.window(size), &inside[..width]);
