@@ -310,7 +310,8 @@ impl<M: WindowModel> Scanner<'_, M> {
                     records: &records,
                     circle_records,
                 };
-                let found = self.runs(&circle, observed, &mut max, &mut windows);
+                let floor = centre_best.map_or(0.0, |b| b.llr);
+                let found = self.runs(&circle, observed, floor, &mut max, &mut windows);
                 if let Some(mut found) = found {
                     if centre_best.is_none_or(|b| found.llr > b.llr) {
                         found.locations = step + 1;
@@ -332,11 +333,13 @@ impl<M: WindowModel> Scanner<'_, M> {
     }
 
     /// Scores every run of periods of one circle: raises `max`, counts the cylinders and, when
-    /// `observed`, returns the circle's best cylinder (earliest, then shortest, on ties).
+    /// `observed`, returns the circle's best cylinder above `centre_floor` (the centre's best
+    /// so far; earliest, then shortest, on ties).
     fn runs(
         &self,
         circle: &Circle<'_>,
         observed: bool,
+        centre_floor: f64,
         max: &mut f64,
         windows: &mut u64,
     ) -> Option<CylinderBest> {
@@ -357,10 +360,17 @@ impl<M: WindowModel> Scanner<'_, M> {
                     Sizing::Records => n as f64,
                     Sizing::Expected => circle.circle_records * in_periods as f64 / self.all_records,
                 };
+                // A cylinder whose ratio cannot exceed this changes nothing.
+                let floor = if observed {
+                    best.map_or(centre_floor, |b| b.llr.max(centre_floor))
+                } else {
+                    *max
+                };
                 let skip = match self.setup.sizing {
                     Sizing::Records => n == 0,
-                    // High clusters only: no ratio where c ≤ μ (saves the logarithms).
-                    Sizing::Expected => f64::from(inside[0]) <= size,
+                    Sizing::Expected => {
+                        permutation_bound(f64::from(inside[0]), size, self.all_records) <= floor
+                    }
                 };
                 if skip {
                     continue;
@@ -387,6 +397,19 @@ impl<M: WindowModel> Scanner<'_, M> {
         }
         best
     }
+}
+
+/// An upper bound on the space-time permutation ratio of a cylinder with `c` records where `mu`
+/// are expected, out of `total`, that needs no logarithm (0 when c ≤ μ: high clusters only).
+/// From ln y ≤ y − 1 on both terms: ln Λ ≤ (c − μ)·(c/μ − (C − c)/(C − μ)). Widened by 1e-9
+/// relative so rounding never hides a cylinder that beats the floor.
+#[inline(always)]
+fn permutation_bound(c: f64, mu: f64, total: f64) -> f64 {
+    if c <= mu || mu <= 0.0 {
+        return 0.0;
+    }
+    let bound = (c - mu) * (c / mu - (total - c) / (total - mu));
+    bound * (1.0 + 1e-9) + 1e-12
 }
 
 /// The per-period counts of one circle.

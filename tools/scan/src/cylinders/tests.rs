@@ -163,3 +163,77 @@ fn permutations_keep_both_margins_and_do_not_depend_on_threads() {
         assert_eq!(a.p_value, b.p_value);
     }
 }
+
+#[test]
+fn permutation_bound_is_never_below_the_ratio() {
+    // ln y ≤ y − 1 gives the bound; check it over a grid of counts and expectations.
+    for total in [10u64, 24, 400, 100_000] {
+        let model = SpaceTimePermutation::new(total);
+        for c in 0..=total.min(300) {
+            for mu in [0.01, 0.5, 1.0, 2.5, 7.3, 40.0, 299.9] {
+                if mu >= total as f64 {
+                    continue;
+                }
+                let llr = model.ratio(mu, c);
+                let bound = permutation_bound(c as f64, mu, total as f64);
+                assert!(bound >= llr, "{total} {c} {mu}: {bound} < {llr}");
+            }
+        }
+    }
+}
+
+#[test]
+fn pruned_replicate_maxima_equal_every_cylinder_scored() {
+    // The replicate maxima with the bound's pruning against all cylinders scored directly.
+    let table = [[1, 4, 1, 0], [1, 3, 1, 1], [2, 1, 4, 5]];
+    let (x, y, period) = records_of(&table, &[0.0, 1.0, 3.0]);
+    let records = TimedRecords {
+        x: &x,
+        y: &y,
+        period: &period,
+        periods: 4,
+        labels: &[],
+    };
+    let never = AtomicBool::new(false);
+    let scanned = scan_space_time(
+        &records,
+        TimedModel::Permutation,
+        2,
+        &config(0.5, 30),
+        &|_| {},
+        &never,
+    )
+    .expect("scan");
+    let location: Vec<u32> = x.iter().map(|&v| if v == 3.0 { 2 } else { v as u32 }).collect();
+    let labelling = TimePermutation {
+        location: &location,
+        period: &period,
+        periods: 4,
+        seed: 7,
+    };
+    let model = SpaceTimePermutation::new(24);
+    // Circles: {A}, {B}, {A,B}, {C} (rows 0, 1, 0+1, 2); the margins are fixed.
+    let circles: [&[usize]; 4] = [&[0], &[1], &[0, 1], &[2]];
+    for (r, &observed_max) in scanned.replicate_max.iter().enumerate() {
+        let mut counts = vec![0u32; 12];
+        labelling.fill(r + 1, &mut counts);
+        let mut max = 0.0f64;
+        for circle in circles {
+            let circle_total: u32 = circle.iter().map(|&l| table[l].iter().sum::<u32>()).sum();
+            for first in 0..4 {
+                for last in first..4.min(first + 2) {
+                    let c: u32 = circle
+                        .iter()
+                        .map(|&l| counts[l * 4 + first..=l * 4 + last].iter().sum::<u32>())
+                        .sum();
+                    let in_periods: u32 = (first..=last)
+                        .map(|t| table.iter().map(|row| row[t]).sum::<u32>())
+                        .sum();
+                    let mu = f64::from(circle_total) * f64::from(in_periods) / 24.0;
+                    max = max.max(model.ratio(mu, u64::from(c)));
+                }
+            }
+        }
+        assert_eq!(observed_max, max, "replicate {}", r + 1);
+    }
+}
