@@ -5,7 +5,9 @@
 use std::sync::atomic::AtomicBool;
 
 use crate::clusters::{select, select_cylinders, Cluster, Selection};
-use crate::cylinders::{scan_cylinders, CylinderSetup, Sizing, TimePermutation, TimedLabels};
+use crate::cylinders::{
+    scan_cylinders, CylinderOutcome, CylinderSetup, Sizing, TimePermutation, TimedLabels,
+};
 use crate::engine::{scan, AreaCases, PointLabels, ScanSetup, Stopped};
 use crate::models::{
     Bernoulli, Direction, Multinomial, Ordinal, Poisson, SpaceTimePermutation, ORDINAL_CLASSES,
@@ -313,47 +315,14 @@ pub fn scan_space_time(
             Sizing::Records
         },
     };
-    let labels = |width| TimedLabels {
-        location: &locations.of_point,
-        period: records.period,
-        labels: records.labels,
-        width,
-        periods: t,
-        seed: config.seed,
-    };
-    let mut totals = [0u64; ORDINAL_CLASSES];
-    for &l in records.labels {
-        totals[usize::from(l).min(ORDINAL_CLASSES - 1)] += 1;
-    }
-    let (outcome, class_totals) = match model {
-        TimedModel::Permutation => {
-            let permutation = TimePermutation {
-                location: &locations.of_point,
-                period: records.period,
-                periods: t,
-                seed: config.seed,
-            };
-            let m = SpaceTimePermutation::new(total);
-            let outcome = scan_cylinders(&setup, &m, &permutation, progress, stop)?;
-            (outcome, vec![total])
-        }
-        TimedModel::Labels(PointModel::Bernoulli) => {
-            let cases = totals[1];
-            let m = Bernoulli::new(total, cases, config.direction);
-            let outcome = scan_cylinders(&setup, &m, &labels(1), progress, stop)?;
-            (outcome, vec![total - cases, cases])
-        }
-        TimedModel::Labels(PointModel::Ordinal) => {
-            let m = Ordinal::new(totals, config.direction);
-            let outcome = scan_cylinders(&setup, &m, &labels(ORDINAL_CLASSES), progress, stop)?;
-            (outcome, totals.to_vec())
-        }
-        TimedModel::Labels(PointModel::Multinomial) => {
-            let m = Multinomial::new(totals);
-            let outcome = scan_cylinders(&setup, &m, &labels(ORDINAL_CLASSES), progress, stop)?;
-            (outcome, totals.to_vec())
-        }
-    };
+    let (outcome, class_totals) = scan_model(
+        &setup,
+        model,
+        &locations.of_point,
+        records,
+        config,
+        (progress, stop),
+    )?;
     let clusters = select_cylinders(
         &Selection {
             x: &locations.x,
@@ -379,5 +348,61 @@ pub fn scan_space_time(
         windows: outcome.windows,
         class_totals,
         total_weight: total as f64,
+    })
+}
+
+/// Runs the cylinder scan of `model`: the outcome and the records per class (Bernoulli
+/// [controls, cases]; ordinal and multinomial 3 classes; permutation [records]).
+fn scan_model(
+    setup: &CylinderSetup<'_>,
+    model: TimedModel,
+    of_point: &[u32],
+    records: &TimedRecords<'_>,
+    config: &ScanConfig,
+    (progress, stop): (&(dyn Fn(f64) + Sync), &AtomicBool),
+) -> Result<(CylinderOutcome, Vec<u64>), Stopped> {
+    let t = records.periods;
+    let total = records.period.len() as u64;
+    let (direction, seed) = (config.direction, config.seed);
+    let labels = |width| TimedLabels {
+        location: of_point,
+        period: records.period,
+        labels: records.labels,
+        width,
+        periods: t,
+        seed,
+    };
+    let mut totals = [0u64; ORDINAL_CLASSES];
+    for &l in records.labels {
+        totals[usize::from(l).min(ORDINAL_CLASSES - 1)] += 1;
+    }
+    Ok(match model {
+        TimedModel::Permutation => {
+            let permutation = TimePermutation {
+                location: of_point,
+                period: records.period,
+                periods: t,
+                seed,
+            };
+            let m = SpaceTimePermutation::new(total);
+            let outcome = scan_cylinders(setup, &m, &permutation, progress, stop)?;
+            (outcome, vec![total])
+        }
+        TimedModel::Labels(PointModel::Bernoulli) => {
+            let cases = totals[1];
+            let m = Bernoulli::new(total, cases, direction);
+            let outcome = scan_cylinders(setup, &m, &labels(1), progress, stop)?;
+            (outcome, vec![total - cases, cases])
+        }
+        TimedModel::Labels(PointModel::Ordinal) => {
+            let m = Ordinal::new(totals, direction);
+            let outcome = scan_cylinders(setup, &m, &labels(ORDINAL_CLASSES), progress, stop)?;
+            (outcome, totals.to_vec())
+        }
+        TimedModel::Labels(PointModel::Multinomial) => {
+            let m = Multinomial::new(totals);
+            let outcome = scan_cylinders(setup, &m, &labels(ORDINAL_CLASSES), progress, stop)?;
+            (outcome, totals.to_vec())
+        }
     })
 }

@@ -231,7 +231,7 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
     let labellings = setup.replicates + 1;
     let done = AtomicUsize::new(0);
     let cells = setup.x.len() * t * M::WIDTH;
-    let results: Vec<Option<(f64, Vec<Option<CylinderBest>>, u64)>> = (0..labellings)
+    let results: Vec<Option<Scanned>> = (0..labellings)
         .into_par_iter()
         .map_init(
             || vec![0u32; cells],
@@ -268,6 +268,10 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
     Ok(outcome)
 }
 
+/// One labelling scanned: its maximum ratio, the best cylinder of each centre (observed data
+/// only) and the number of cylinders.
+type Scanned = (f64, Vec<Option<CylinderBest>>, u64);
+
 /// Scans one labelling's counts.
 struct Scanner<'a, M> {
     setup: &'a CylinderSetup<'a>,
@@ -280,7 +284,7 @@ struct Scanner<'a, M> {
 impl<M: WindowModel> Scanner<'_, M> {
     /// The maximum ratio over all cylinders, the best cylinder of each centre (when
     /// `observed`) and the number of cylinders.
-    fn labelling(&self, counts: &[u32], observed: bool) -> (f64, Vec<Option<CylinderBest>>, u64) {
+    fn labelling(&self, counts: &[u32], observed: bool) -> Scanned {
         let t = self.setup.periods;
         let width = M::WIDTH;
         let mut acc = vec![0u32; t * width];
@@ -295,10 +299,16 @@ impl<M: WindowModel> Scanner<'_, M> {
             let mut centre_best: Option<CylinderBest> = None;
             for (step, &location) in circles.order.iter().enumerate() {
                 let l = location as usize;
-                for (a, &c) in acc.iter_mut().zip(&counts[l * t * width..(l + 1) * t * width]) {
+                for (a, &c) in acc
+                    .iter_mut()
+                    .zip(&counts[l * t * width..(l + 1) * t * width])
+                {
                     *a += c;
                 }
-                for (a, &c) in records.iter_mut().zip(&self.setup.records[l * t..(l + 1) * t]) {
+                for (a, &c) in records
+                    .iter_mut()
+                    .zip(&self.setup.records[l * t..(l + 1) * t])
+                {
                     *a += c;
                 }
                 circle_records += self.setup.weight[l];
@@ -358,7 +368,9 @@ impl<M: WindowModel> Scanner<'_, M> {
                 *windows += 1;
                 let size = match self.setup.sizing {
                     Sizing::Records => n as f64,
-                    Sizing::Expected => circle.circle_records * in_periods as f64 / self.all_records,
+                    Sizing::Expected => {
+                        circle.circle_records * in_periods as f64 / self.all_records
+                    }
                 };
                 // A cylinder whose ratio cannot exceed this changes nothing.
                 let floor = if observed {

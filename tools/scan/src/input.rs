@@ -111,6 +111,55 @@ fn counts_text(per_record: &[Stance]) -> String {
         .join(", ")
 }
 
+/// The classes a model analyses and how the records are labelled, or why the records cannot be
+/// scanned.
+fn analysed_classes(
+    roles: &RecordRoles,
+    per_record: &[Stance],
+) -> std::result::Result<(Vec<Stance>, PointModel), String> {
+    let found = || counts_text(per_record);
+    Ok(match roles {
+        RecordRoles::Bernoulli { cases, controls } => {
+            let has = |s: &Stance| per_record.contains(s);
+            if !has(cases) || !controls.iter().any(has) {
+                return Err(format!(
+                    "needs both cases ({cases}) and controls ({}); found {}",
+                    crate::params::joined(controls).replace('+', ","),
+                    found()
+                ));
+            }
+            let mut at_risk = controls.clone();
+            at_risk.push(*cases);
+            (at_risk, PointModel::Bernoulli)
+        }
+        RecordRoles::Permutation { classes, .. } => {
+            if !classes.iter().any(|s| per_record.contains(s)) {
+                return Err(format!(
+                    "has no record of {} to count; found {}",
+                    crate::params::joined(classes).replace('+', ","),
+                    found()
+                ));
+            }
+            // The permutation model reads no label; the class values are kept as labels.
+            (classes.clone(), PointModel::Multinomial)
+        }
+        RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
+            let (name, model) = match roles {
+                RecordRoles::Ordinal { .. } => ("ordinal", PointModel::Ordinal),
+                _ => ("multinomial", PointModel::Multinomial),
+            };
+            let present = classes.iter().filter(|s| per_record.contains(s)).count();
+            if present < 2 {
+                return Err(format!(
+                    "the {name} model needs at least two classes present; found {}",
+                    found()
+                ));
+            }
+            (classes.clone(), model)
+        }
+    })
+}
+
 /// Reads the stance records of the input's point layer.
 ///
 /// # Errors
@@ -144,46 +193,7 @@ pub fn read_records(
         message,
     };
     let per_record = classify_records(column, classes, bad_field)?;
-    let (at_risk, model): (Vec<Stance>, PointModel) = match roles {
-        RecordRoles::Bernoulli { cases, controls } => {
-            let has = |s: &Stance| per_record.contains(s);
-            if !has(cases) || !controls.iter().any(has) {
-                return Err(bad_field(format!(
-                    "needs both cases ({cases}) and controls ({}); found {}",
-                    crate::params::joined(controls).replace('+', ","),
-                    counts_text(&per_record)
-                )));
-            }
-            let mut at_risk = controls.clone();
-            at_risk.push(*cases);
-            (at_risk, PointModel::Bernoulli)
-        }
-        RecordRoles::Permutation { classes, .. } => {
-            if !classes.iter().any(|s| per_record.contains(s)) {
-                return Err(bad_field(format!(
-                    "has no record of {} to count; found {}",
-                    crate::params::joined(classes).replace('+', ","),
-                    counts_text(&per_record)
-                )));
-            }
-            // The permutation model reads no label; the class values are kept as labels.
-            (classes.clone(), PointModel::Multinomial)
-        }
-        RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
-            let (name, model) = match roles {
-                RecordRoles::Ordinal { .. } => ("ordinal", PointModel::Ordinal),
-                _ => ("multinomial", PointModel::Multinomial),
-            };
-            let present = classes.iter().filter(|s| per_record.contains(s)).count();
-            if present < 2 {
-                return Err(bad_field(format!(
-                    "the {name} model needs at least two classes present; found {}",
-                    counts_text(&per_record)
-                )));
-            }
-            (classes.clone(), model)
-        }
-    };
+    let (at_risk, model) = analysed_classes(roles, &per_record).map_err(bad_field)?;
     let label_of = |s: Stance| -> u8 {
         match roles {
             RecordRoles::Bernoulli { cases, .. } => u8::from(s == *cases),
@@ -225,8 +235,8 @@ pub fn read_records(
     }
     let excluded = (per_record.len() - fids.len()) as u64;
     let times = match time {
-        Some(t) => Some(study_periods(t.period, &periods, without_time).ok_or_else(|| {
-            Error::BadField {
+        Some(t) => Some(
+            study_periods(t.period, &periods, without_time).ok_or_else(|| Error::BadField {
                 path: input.to_owned(),
                 layer: layer.layer.clone(),
                 field: t.field.clone(),
@@ -234,8 +244,8 @@ pub fn read_records(
                     "no analysed record has a usable date-time ({without_time} without); expected \
                      e.g. 2026-03-04 or 2026-03-04T05:06:07Z"
                 ),
-            }
-        })?),
+            })?,
+        ),
         None => None,
     };
     Ok(Data {

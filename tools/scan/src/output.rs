@@ -182,7 +182,11 @@ pub fn cluster_row(config: &Config, data: &Data, scanned: &ScanResult, c: &Clust
         time: data.times.as_ref().zip(c.time).map(|(times, t)| {
             let first = times.first + t.first_period as i64;
             let last = first + t.periods as i64 - 1;
-            (times.period.label(first), times.period.label(last), t.periods)
+            (
+                times.period.label(first),
+                times.period.label(last),
+                t.periods,
+            )
         }),
     };
     if let Some(expected) = c.time.and_then(|t| t.expected) {

@@ -118,7 +118,9 @@ fn permutations_keep_both_margins_and_do_not_depend_on_threads() {
     };
     let margins = |counts: &[u32]| {
         let rows: Vec<u32> = counts.chunks(4).map(|r| r.iter().sum()).collect();
-        let columns: Vec<u32> = (0..4).map(|t| counts[t..].iter().step_by(4).sum()).collect();
+        let columns: Vec<u32> = (0..4)
+            .map(|t| counts[t..].iter().step_by(4).sum())
+            .collect();
         (rows, columns)
     };
     let mut observed = vec![0u32; 12];
@@ -204,7 +206,10 @@ fn pruned_replicate_maxima_equal_every_cylinder_scored() {
         &never,
     )
     .expect("scan");
-    let location: Vec<u32> = x.iter().map(|&v| if v == 3.0 { 2 } else { v as u32 }).collect();
+    let location: Vec<u32> = x
+        .iter()
+        .map(|&v| if v == 3.0 { 2 } else { v as u32 })
+        .collect();
     let labelling = TimePermutation {
         location: &location,
         period: &period,
