@@ -303,6 +303,7 @@ fn planted_burst_is_found_in_most_seeds() {
             ));
         }
     }
+    eprintln!("planted burst found in {found} of 20 seeds; missed: {misses:?}");
     assert!(found >= 18, "found in {found} of 20 seeds; {misses:?}");
 }
 
@@ -386,5 +387,6 @@ fn false_alarms_with_times_permuted_stay_near_alpha() {
         }
     }
     let rate = f64::from(alarms) / 200.0;
+    eprintln!("false-alarm rate {rate} ({alarms} of 200 runs)");
     assert!((0.02..=0.09).contains(&rate), "false-alarm rate {rate}");
 }
