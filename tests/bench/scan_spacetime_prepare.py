@@ -21,6 +21,7 @@ sites = xy[np.sort(first)[:locations]]
 weight = rng.lognormal(0.0, 1.0, len(sites))
 burst = records // 200
 site = rng.choice(len(sites), records - burst, p=weight / weight.sum())
+site[: len(sites)] = np.arange(len(sites))  # every location holds a record
 month = rng.integers(0, months, records - burst)
 near = np.flatnonzero(((sites - towns[7]) ** 2).sum(axis=1) <= 4_000.0 ** 2)
 site = np.concatenate([site, rng.choice(near, burst)])
