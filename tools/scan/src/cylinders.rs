@@ -227,6 +227,9 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
         circles: &circles,
         period_total: &period_total,
         all_records: period_total.iter().sum::<u64>() as f64,
+        runs_per_circle: (0..t)
+            .map(|first| setup.max_duration.min(t - first) as u64)
+            .sum(),
     };
     let labellings = setup.replicates + 1;
     let done = AtomicUsize::new(0);
@@ -279,6 +282,8 @@ struct Scanner<'a, M> {
     circles: &'a [Circles],
     period_total: &'a [u64],
     all_records: f64,
+    /// Cylinders per circle.
+    runs_per_circle: u64,
 }
 
 impl<M: WindowModel> Scanner<'_, M> {
@@ -321,7 +326,13 @@ impl<M: WindowModel> Scanner<'_, M> {
                     circle_records,
                 };
                 let floor = centre_best.map_or(0.0, |b| b.llr);
-                let found = self.runs(&circle, observed, floor, &mut max, &mut windows);
+                let found = match self.setup.sizing {
+                    Sizing::Records => self.runs(&circle, observed, floor, &mut max, &mut windows),
+                    Sizing::Expected => {
+                        windows += self.runs_per_circle;
+                        self.expected_runs(&circle, observed, floor, &mut max)
+                    }
+                };
                 if let Some(mut found) = found {
                     if centre_best.is_none_or(|b| found.llr > b.llr) {
                         found.locations = step + 1;
@@ -340,6 +351,65 @@ impl<M: WindowModel> Scanner<'_, M> {
             }
         }
         (max, best, windows)
+    }
+
+    /// [`Scanner::runs`] for the space-time permutation model, with most cylinders ruled out by
+    /// [`permutation_bound`] written without a division: with P = c(circle)·c(periods) (so
+    /// μ = P/C), c > μ ⇔ cC − P > 0 and the bound (c − μ)²·C/(μ(C − μ)) ≤ floor ⇔
+    /// (cC − P)²·C ≤ floor·P·(C² − P). Widened by 1e-9 relative so rounding never hides a
+    /// cylinder that beats the floor.
+    fn expected_runs(
+        &self,
+        circle: &Circle<'_>,
+        observed: bool,
+        centre_floor: f64,
+        max: &mut f64,
+    ) -> Option<CylinderBest> {
+        let t = self.setup.periods;
+        let total = self.all_records;
+        let total2 = total * total;
+        let mut best: Option<CylinderBest> = None;
+        let mut floor = if observed { centre_floor } else { *max };
+        for first in 0..t {
+            let (mut c, mut n, mut in_periods) = (0u32, 0u32, 0u64);
+            for last in first..t.min(first + self.setup.max_duration) {
+                c += circle.acc[last];
+                n += circle.records[last];
+                in_periods += self.period_total[last];
+                let p = circle.circle_records * in_periods as f64;
+                let excess = f64::from(c) * total - p;
+                if excess <= 0.0
+                    || excess * excess * total * (1.0 + 1e-9) <= floor * p * (total2 - p)
+                {
+                    continue;
+                }
+                let size = circle.circle_records * in_periods as f64 / total;
+                let (llr, side) = self.model.llr(&self.model.window(size), &[c]);
+                if llr <= floor {
+                    continue;
+                }
+                floor = llr;
+                if observed {
+                    let mut inside = [0u32; ORDINAL_CLASSES];
+                    inside[0] = c;
+                    best = Some(CylinderBest {
+                        llr,
+                        side,
+                        locations: 0,
+                        radius_m: 0.0,
+                        next_distance_m: f64::INFINITY,
+                        first_period: first,
+                        periods: last - first + 1,
+                        records: u64::from(n),
+                        size,
+                        inside,
+                    });
+                } else {
+                    *max = llr;
+                }
+            }
+        }
+        best
     }
 
     /// Scores every run of periods of one circle: raises `max`, counts the cylinders and, when
