@@ -354,7 +354,7 @@ impl<M: WindowModel> Scanner<'_, M> {
     }
 
     /// [`Scanner::runs`] for the space-time permutation model, with most cylinders ruled out by
-    /// [`permutation_bound`] written without a division: with P = c(circle)·c(periods) (so
+    /// an upper bound on the ratio (ln y ≤ y − 1 on both terms) written without a division: with P = c(circle)·c(periods) (so
     /// μ = P/C), c > μ ⇔ cC − P > 0 and the bound (c − μ)²·C/(μ(C − μ)) ≤ floor ⇔
     /// (cC − P)²·C ≤ floor·P·(C² − P). Widened by 1e-9 relative so rounding never hides a
     /// cylinder that beats the floor.
@@ -412,8 +412,9 @@ impl<M: WindowModel> Scanner<'_, M> {
         best
     }
 
-    /// Scores every run of periods of one circle: raises `max`, counts the cylinders and, when
-    /// `observed`, returns the circle's best cylinder above `centre_floor` (the centre's best
+    /// Scores every run of periods of one circle for the case/control models (the size is the
+    /// records inside): raises `max`, counts the cylinders and, when `observed`, returns the
+    /// circle's best cylinder above `centre_floor` (the centre's best
     /// so far; earliest, then shortest, on ties).
     fn runs(
         &self,
@@ -428,40 +429,22 @@ impl<M: WindowModel> Scanner<'_, M> {
         let mut best: Option<CylinderBest> = None;
         for first in 0..t {
             let mut inside = [0u32; ORDINAL_CLASSES];
-            let (mut n, mut in_periods) = (0u64, 0u64);
+            let mut n = 0u64;
             for last in first..t.min(first + self.setup.max_duration) {
                 for (k, value) in inside.iter_mut().take(width).enumerate() {
                     *value += circle.acc[last * width + k];
                 }
                 n += u64::from(circle.records[last]);
-                in_periods += self.period_total[last];
                 *windows += 1;
-                let size = match self.setup.sizing {
-                    Sizing::Records => n as f64,
-                    Sizing::Expected => {
-                        circle.circle_records * in_periods as f64 / self.all_records
-                    }
-                };
-                // A cylinder whose ratio cannot exceed this changes nothing.
-                let floor = if observed {
-                    best.map_or(centre_floor, |b| b.llr.max(centre_floor))
-                } else {
-                    *max
-                };
-                let skip = match self.setup.sizing {
-                    Sizing::Records => n == 0,
-                    Sizing::Expected => {
-                        permutation_bound(f64::from(inside[0]), size, self.all_records) <= floor
-                    }
-                };
-                if skip {
+                if n == 0 {
                     continue;
                 }
+                let size = n as f64;
                 let (llr, side) = self.model.llr(&self.model.window(size), &inside[..width]);
                 if llr > *max {
                     *max = llr;
                 }
-                if observed && llr > 0.0 && best.is_none_or(|b| llr > b.llr) {
+                if observed && llr > centre_floor && best.is_none_or(|b| llr > b.llr) {
                     best = Some(CylinderBest {
                         llr,
                         side,
@@ -481,6 +464,7 @@ impl<M: WindowModel> Scanner<'_, M> {
     }
 }
 
+#[cfg(test)]
 /// An upper bound on the space-time permutation ratio of a cylinder with `c` records where `mu`
 /// are expected, out of `total`, that needs no logarithm (0 when c ≤ μ: high clusters only).
 /// From ln y ≤ y − 1 on both terms: ln Λ ≤ (c − μ)·(c/μ − (C − c)/(C − μ)). Widened by 1e-9
