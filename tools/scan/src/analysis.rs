@@ -1,12 +1,17 @@
 //! Whole scans from plain arrays: records (Bernoulli, ordinal or multinomial) or areas (Poisson),
-//! windows, Monte Carlo inference and cluster selection (Kulldorff 1997; Jung, Kulldorff & Klassen 2007;
+//! circles or, with times, cylinders (Kulldorff, Heffernan, Hartman, Assunção & Mostashari 2005), Monte Carlo inference and cluster selection (Kulldorff 1997; Jung, Kulldorff & Klassen 2007;
 //! Jung, Kulldorff & Richard 2010).
 
 use std::sync::atomic::AtomicBool;
 
-use crate::clusters::{select, Cluster, Selection};
+use crate::clusters::{select, select_cylinders, Cluster, Selection};
+use crate::cylinders::{
+    scan_cylinders, CylinderOutcome, CylinderSetup, Sizing, TimePermutation, TimedLabels,
+};
 use crate::engine::{scan, AreaCases, PointLabels, ScanSetup, Stopped};
-use crate::models::{Bernoulli, Direction, Multinomial, Ordinal, Poisson, ORDINAL_CLASSES};
+use crate::models::{
+    Bernoulli, Direction, Multinomial, Ordinal, Poisson, SpaceTimePermutation, ORDINAL_CLASSES,
+};
 use crate::windows::{grid_centres, merge_locations, WindowLimits};
 
 /// Memory for the counts of one block of labellings; more replicates run in several passes.
@@ -244,5 +249,160 @@ pub fn scan_areas(
         windows: outcome.windows,
         class_totals: vec![total_cases],
         total_weight: total_expected,
+    })
+}
+
+/// The models of a space-time scan.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TimedModel {
+    /// Space-time permutation: the records alone (Kulldorff et al. 2005).
+    Permutation,
+    /// A case/control or class model on records, inside cylinders.
+    Labels(PointModel),
+}
+
+/// The records of a space-time scan: positions (m), periods (0…periods−1) and labels (as for
+/// [`scan_points`]; unused by the permutation model).
+#[derive(Debug, Clone, Copy)]
+pub struct TimedRecords<'a> {
+    /// Eastings (m).
+    pub x: &'a [f64],
+    /// Northings (m).
+    pub y: &'a [f64],
+    /// Period of each record, 0…periods−1.
+    pub period: &'a [u32],
+    /// Periods studied.
+    pub periods: usize,
+    /// Label of each record.
+    pub labels: &'a [u8],
+}
+
+/// Scans cylinders (circles × runs of at most `max_duration` periods) over timed records.
+///
+/// # Errors
+/// [`Stopped`] once `stop` is set.
+pub fn scan_space_time(
+    records: &TimedRecords<'_>,
+    model: TimedModel,
+    max_duration: usize,
+    config: &ScanConfig,
+    progress: &(dyn Fn(f64) + Sync),
+    stop: &AtomicBool,
+) -> Result<ScanResult, Stopped> {
+    let locations = merge_locations(records.x, records.y);
+    let t = records.periods;
+    let mut weight = vec![0.0; locations.x.len()];
+    let mut per_cell = vec![0u32; locations.x.len() * t];
+    for (&l, &p) in locations.of_point.iter().zip(records.period) {
+        weight[l as usize] += 1.0;
+        per_cell[l as usize * t + p as usize] += 1;
+    }
+    let total = records.period.len() as u64;
+    let centres = centres_for(config, &locations.x, &locations.y);
+    let setup = CylinderSetup {
+        x: &locations.x,
+        y: &locations.y,
+        weight: &weight,
+        records: &per_cell,
+        periods: t,
+        max_duration: max_duration.clamp(1, t.max(1)),
+        centres: &centres,
+        limits: limits(config, total as f64),
+        replicates: config.replicates,
+        sizing: if model == TimedModel::Permutation {
+            Sizing::Expected
+        } else {
+            Sizing::Records
+        },
+    };
+    let (outcome, class_totals) = scan_model(
+        &setup,
+        model,
+        &locations.of_point,
+        records,
+        config,
+        (progress, stop),
+    )?;
+    let clusters = select_cylinders(
+        &Selection {
+            x: &locations.x,
+            y: &locations.y,
+            weight: &weight,
+            centres: &centres,
+            limits: setup.limits,
+            max_clusters: config.max_clusters,
+            report_p: config.report_p,
+        },
+        &outcome.best,
+        &outcome.replicate_max,
+        model == TimedModel::Permutation,
+    );
+    Ok(ScanResult {
+        x: locations.x,
+        y: locations.y,
+        of_point: locations.of_point,
+        weight,
+        centres,
+        clusters,
+        replicate_max: outcome.replicate_max,
+        windows: outcome.windows,
+        class_totals,
+        total_weight: total as f64,
+    })
+}
+
+/// Runs the cylinder scan of `model`: the outcome and the records per class (Bernoulli
+/// [controls, cases]; ordinal and multinomial 3 classes; permutation [records]).
+fn scan_model(
+    setup: &CylinderSetup<'_>,
+    model: TimedModel,
+    of_point: &[u32],
+    records: &TimedRecords<'_>,
+    config: &ScanConfig,
+    (progress, stop): (&(dyn Fn(f64) + Sync), &AtomicBool),
+) -> Result<(CylinderOutcome, Vec<u64>), Stopped> {
+    let t = records.periods;
+    let total = records.period.len() as u64;
+    let (direction, seed) = (config.direction, config.seed);
+    let labels = |width| TimedLabels {
+        location: of_point,
+        period: records.period,
+        labels: records.labels,
+        width,
+        periods: t,
+        seed,
+    };
+    let mut totals = [0u64; ORDINAL_CLASSES];
+    for &l in records.labels {
+        totals[usize::from(l).min(ORDINAL_CLASSES - 1)] += 1;
+    }
+    Ok(match model {
+        TimedModel::Permutation => {
+            let permutation = TimePermutation {
+                location: of_point,
+                period: records.period,
+                periods: t,
+                seed,
+            };
+            let m = SpaceTimePermutation::new(total);
+            let outcome = scan_cylinders(setup, &m, &permutation, progress, stop)?;
+            (outcome, vec![total])
+        }
+        TimedModel::Labels(PointModel::Bernoulli) => {
+            let cases = totals[1];
+            let m = Bernoulli::new(total, cases, direction);
+            let outcome = scan_cylinders(setup, &m, &labels(1), progress, stop)?;
+            (outcome, vec![total - cases, cases])
+        }
+        TimedModel::Labels(PointModel::Ordinal) => {
+            let m = Ordinal::new(totals, direction);
+            let outcome = scan_cylinders(setup, &m, &labels(ORDINAL_CLASSES), progress, stop)?;
+            (outcome, totals.to_vec())
+        }
+        TimedModel::Labels(PointModel::Multinomial) => {
+            let m = Multinomial::new(totals);
+            let outcome = scan_cylinders(setup, &m, &labels(ORDINAL_CLASSES), progress, stop)?;
+            (outcome, totals.to_vec())
+        }
     })
 }

@@ -1,9 +1,10 @@
 //! Most likely and secondary clusters (no shared location with a higher-ranked one; Kulldorff
-//! 1997, §6) with Monte Carlo p-values against the distribution of the maximum (Dwass 1957) and
+//! 1997, §6; cylinders: no shared location in a shared period) with Monte Carlo p-values against the distribution of the maximum (Dwass 1957) and
 //! Gumbel-approximated p-values (Abrams, Kleinman & Kulldorff 2010, Int. J. Health Geogr. 9:61).
 
+use crate::cylinders::CylinderBest;
 use crate::engine::CentreBest;
-use crate::windows::{GridIndex, Neighbourhood, WindowLimits};
+use crate::windows::{GridIndex, Neighbourhood, Sites, WindowLimits};
 
 /// A selected cluster, before its statistics are written.
 #[derive(Debug, Clone)]
@@ -16,6 +17,8 @@ pub struct Cluster {
     pub window: CentreBest,
     /// Its locations.
     pub members: Vec<u32>,
+    /// Its run of periods (space-time scans).
+    pub time: Option<ClusterTime>,
     /// Monte Carlo p-value, None without replicates.
     pub p_value: Option<f64>,
     /// Gumbel p-value, None with fewer than 2 replicates or no spread in the maxima.
@@ -41,6 +44,25 @@ pub struct Selection<'a> {
     pub report_p: f64,
 }
 
+/// When a space-time cluster happens: a run of periods.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ClusterTime {
+    /// First period of the run (0 = the first period studied).
+    pub first_period: usize,
+    /// Periods in the run.
+    pub periods: usize,
+    /// Records expected inside from the margins (space-time permutation), else None.
+    pub expected: Option<f64>,
+}
+
+impl ClusterTime {
+    /// Whether the runs share a period.
+    fn overlaps(&self, other: &ClusterTime) -> bool {
+        self.first_period < other.first_period + other.periods
+            && other.first_period < self.first_period + self.periods
+    }
+}
+
 /// Picks clusters from the best window of each centre, highest ratio first (ties: lower centre
 /// index), skipping any that shares a location with one already picked; then attaches p-values
 /// from the replicate maxima and drops those above `report_p`.
@@ -49,34 +71,82 @@ pub fn select(
     best: &[Option<CentreBest>],
     replicate_max: &[f64],
 ) -> Vec<Cluster> {
-    let mut order: Vec<(usize, CentreBest)> = best
+    let candidates = best
         .iter()
         .enumerate()
-        .filter_map(|(i, b)| b.map(|b| (i, b)))
-        .filter(|(_, b)| b.llr > 0.0)
+        .filter_map(|(i, b)| b.map(|b| (i, b, None)))
         .collect();
+    pick(selection, candidates, replicate_max)
+}
+
+/// [`select`] for cylinders: a cylinder is skipped when it shares a location with one already
+/// picked and a period with it too.
+pub fn select_cylinders(
+    selection: &Selection<'_>,
+    best: &[Option<CylinderBest>],
+    replicate_max: &[f64],
+    permutation: bool,
+) -> Vec<Cluster> {
+    let candidates = best
+        .iter()
+        .enumerate()
+        .filter_map(|(i, b)| {
+            b.map(|b| {
+                let window = CentreBest {
+                    llr: b.llr,
+                    side: b.side,
+                    locations: b.locations,
+                    size: b.records as f64,
+                    radius_m: b.radius_m,
+                    next_distance_m: b.next_distance_m,
+                    inside: b.inside,
+                };
+                let time = ClusterTime {
+                    first_period: b.first_period,
+                    periods: b.periods,
+                    expected: permutation.then_some(b.size),
+                };
+                (i, window, Some(time))
+            })
+        })
+        .collect();
+    pick(selection, candidates, replicate_max)
+}
+
+/// The selection shared by circles and cylinders.
+fn pick(
+    selection: &Selection<'_>,
+    mut order: Vec<(usize, CentreBest, Option<ClusterTime>)>,
+    replicate_max: &[f64],
+) -> Vec<Cluster> {
+    order.retain(|(_, b, _)| b.llr > 0.0);
     order.sort_by(|a, b| b.1.llr.total_cmp(&a.1.llr).then(a.0.cmp(&b.0)));
     let index = GridIndex::new(selection.x, selection.y);
+    let sites = Sites {
+        index: &index,
+        x: selection.x,
+        y: selection.y,
+        weight: selection.weight,
+    };
     let mut hood = Neighbourhood::default();
-    let mut used = vec![false; selection.x.len()];
+    // Per location, the clusters (their positions in `clusters`) holding it.
+    let mut holders: Vec<Vec<usize>> = vec![Vec::new(); selection.x.len()];
     let gumbel = GumbelFit::of(replicate_max);
     let mut clusters: Vec<Cluster> = Vec::new();
-    for (centre, window) in order {
+    for (centre, window, time) in order {
         if clusters.len() >= selection.max_clusters {
             break;
         }
-        let (cx, cy) = selection.centres[centre];
-        hood.fill(
-            &index,
-            selection.x,
-            selection.y,
-            selection.weight,
-            cx,
-            cy,
-            selection.limits,
-        );
+        hood.fill(&sites, selection.centres[centre], selection.limits);
         let members: Vec<u32> = hood.order[..window.locations.min(hood.order.len())].to_vec();
-        if members.iter().any(|&m| used[m as usize]) {
+        let clashes = |other: &Cluster| match (&time, &other.time) {
+            (Some(a), Some(b)) => a.overlaps(b),
+            _ => true,
+        };
+        if members
+            .iter()
+            .any(|&m| holders[m as usize].iter().any(|&k| clashes(&clusters[k])))
+        {
             continue;
         }
         let p_value = (!replicate_max.is_empty())
@@ -86,13 +156,14 @@ pub fn select(
             break;
         }
         for &m in &members {
-            used[m as usize] = true;
+            holders[m as usize].push(clusters.len());
         }
         clusters.push(Cluster {
             rank: clusters.len() + 1,
             centre,
             window,
             members,
+            time,
             p_value,
             p_value_gumbel: gumbel.map(|g| g.upper_tail(window.llr)),
         });

@@ -9,10 +9,11 @@ use stance_core::gpkg::areas;
 use stance_core::gpkg::read::{read_points, read_polygons, Column, FieldWant, PolygonCrs};
 use stance_core::host::Run;
 use stance_core::stance::{classify_codes, ClassMap, Stance};
+use stance_core::time::Period;
 use stance_core::weights;
 
 use crate::analysis::PointModel;
-use crate::params::{AreaFields, RecordRoles};
+use crate::params::{AreaFields, RecordRoles, TimeConfig};
 use crate::windows;
 
 /// The records or areas of a scan.
@@ -36,6 +37,21 @@ pub enum DataKind {
     },
 }
 
+/// The records' periods of a space-time scan.
+#[derive(Debug, Clone)]
+pub struct Times {
+    /// The calendar period.
+    pub period: Period,
+    /// Index ([`Period::index`]) of the first period studied: the first holding a record.
+    pub first: i64,
+    /// Periods studied, from the first to the last holding a record.
+    pub periods: usize,
+    /// Per analysed record: its period, 0…periods−1.
+    pub of_record: Vec<u32>,
+    /// Records left out for want of a usable time.
+    pub without_time: u64,
+}
+
 /// What was read, in the working CRS.
 pub struct Data {
     /// Feature ids of the analysed records (areas).
@@ -48,8 +64,10 @@ pub struct Data {
     pub kind: DataKind,
     /// The working CRS.
     pub srs: gdal::spatial_ref::SpatialRef,
-    /// Records left out (a class outside the population at risk).
+    /// Records left out (a class outside the population at risk, or no usable time).
     pub excluded: u64,
+    /// Space-time scans: the records' periods.
+    pub times: Option<Times>,
 }
 
 impl Data {
@@ -93,6 +111,55 @@ fn counts_text(per_record: &[Stance]) -> String {
         .join(", ")
 }
 
+/// The classes a model analyses and how the records are labelled, or why the records cannot be
+/// scanned.
+fn analysed_classes(
+    roles: &RecordRoles,
+    per_record: &[Stance],
+) -> std::result::Result<(Vec<Stance>, PointModel), String> {
+    let found = || counts_text(per_record);
+    Ok(match roles {
+        RecordRoles::Bernoulli { cases, controls } => {
+            let has = |s: &Stance| per_record.contains(s);
+            if !has(cases) || !controls.iter().any(has) {
+                return Err(format!(
+                    "needs both cases ({cases}) and controls ({}); found {}",
+                    crate::params::joined(controls).replace('+', ","),
+                    found()
+                ));
+            }
+            let mut at_risk = controls.clone();
+            at_risk.push(*cases);
+            (at_risk, PointModel::Bernoulli)
+        }
+        RecordRoles::Permutation { classes, .. } => {
+            if !classes.iter().any(|s| per_record.contains(s)) {
+                return Err(format!(
+                    "has no record of {} to count; found {}",
+                    crate::params::joined(classes).replace('+', ","),
+                    found()
+                ));
+            }
+            // The permutation model reads no label; the class values are kept as labels.
+            (classes.clone(), PointModel::Multinomial)
+        }
+        RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
+            let (name, model) = match roles {
+                RecordRoles::Ordinal { .. } => ("ordinal", PointModel::Ordinal),
+                _ => ("multinomial", PointModel::Multinomial),
+            };
+            let present = classes.iter().filter(|s| per_record.contains(s)).count();
+            if present < 2 {
+                return Err(format!(
+                    "the {name} model needs at least two classes present; found {}",
+                    found()
+                ));
+            }
+            (classes.clone(), model)
+        }
+    })
+}
+
 /// Reads the stance records of the input's point layer.
 ///
 /// # Errors
@@ -103,11 +170,16 @@ pub fn read_records(
     field: &str,
     classes: &ClassMap,
     roles: &RecordRoles,
+    time: Option<&TimeConfig>,
 ) -> Result<Data> {
+    let mut wants = vec![(field, FieldWant::Text)];
+    if let Some(t) = time {
+        wants.push((t.field.as_str(), FieldWant::DateTime));
+    }
     let layer = read_points(
         input,
         run.common.layer.as_deref(),
-        &[(field, FieldWant::Text)],
+        &wants,
         run.common.crs.as_deref(),
     )?;
     run.note_input_layer(&layer.layer);
@@ -121,46 +193,39 @@ pub fn read_records(
         message,
     };
     let per_record = classify_records(column, classes, bad_field)?;
-    let (at_risk, model): (Vec<Stance>, PointModel) = match roles {
-        RecordRoles::Bernoulli { cases, controls } => {
-            let has = |s: &Stance| per_record.contains(s);
-            if !has(cases) || !controls.iter().any(has) {
-                return Err(bad_field(format!(
-                    "needs both cases ({cases}) and controls ({}); found {}",
-                    crate::params::joined(controls).replace('+', ","),
-                    counts_text(&per_record)
-                )));
-            }
-            let mut at_risk = controls.clone();
-            at_risk.push(*cases);
-            (at_risk, PointModel::Bernoulli)
-        }
-        RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
-            let (name, model) = match roles {
-                RecordRoles::Ordinal { .. } => ("ordinal", PointModel::Ordinal),
-                _ => ("multinomial", PointModel::Multinomial),
-            };
-            let present = classes.iter().filter(|s| per_record.contains(s)).count();
-            if present < 2 {
-                return Err(bad_field(format!(
-                    "the {name} model needs at least two classes present; found {}",
-                    counts_text(&per_record)
-                )));
-            }
-            (classes.clone(), model)
-        }
-    };
+    let (at_risk, model) = analysed_classes(roles, &per_record).map_err(bad_field)?;
     let label_of = |s: Stance| -> u8 {
         match roles {
             RecordRoles::Bernoulli { cases, .. } => u8::from(s == *cases),
-            RecordRoles::Ordinal { .. } | RecordRoles::Multinomial { .. } => (s.value() + 1) as u8,
+            RecordRoles::Ordinal { .. }
+            | RecordRoles::Multinomial { .. }
+            | RecordRoles::Permutation { .. } => (s.value() + 1) as u8,
         }
     };
+    let seconds = match layer.columns.get(1) {
+        Some(Column::DateTime(v)) => Some(v),
+        _ => None,
+    };
+    let period_of = |i: usize| -> Option<i64> {
+        let t = time?;
+        seconds.and_then(|v| v[i]).and_then(|s| t.period.index(s))
+    };
     let (mut fids, mut x, mut y) = (Vec::new(), Vec::new(), Vec::new());
-    let (mut labels, mut stances) = (Vec::new(), Vec::new());
+    let (mut labels, mut stances, mut periods) = (Vec::new(), Vec::new(), Vec::new());
+    let mut without_time = 0u64;
     for (i, s) in per_record.iter().enumerate() {
         if !at_risk.contains(s) {
             continue;
+        }
+        let period = period_of(i);
+        if time.is_some() {
+            match period {
+                Some(p) => periods.push(p),
+                None => {
+                    without_time += 1;
+                    continue;
+                }
+            }
         }
         fids.push(layer.fids[i]);
         x.push(layer.x[i]);
@@ -169,6 +234,20 @@ pub fn read_records(
         stances.push(*s);
     }
     let excluded = (per_record.len() - fids.len()) as u64;
+    let times = match time {
+        Some(t) => Some(
+            study_periods(t.period, &periods, without_time).ok_or_else(|| Error::BadField {
+                path: input.to_owned(),
+                layer: layer.layer.clone(),
+                field: t.field.clone(),
+                message: format!(
+                    "no analysed record has a usable date-time ({without_time} without); expected \
+                     e.g. 2026-03-04 or 2026-03-04T05:06:07Z"
+                ),
+            })?,
+        ),
+        None => None,
+    };
     Ok(Data {
         fids,
         x,
@@ -180,6 +259,21 @@ pub fn read_records(
         },
         srs: layer.srs,
         excluded,
+        times,
+    })
+}
+
+/// The periods studied (first to last holding a record) and each record's place among them;
+/// None without records.
+fn study_periods(period: Period, of_record: &[i64], without_time: u64) -> Option<Times> {
+    let first = *of_record.iter().min()?;
+    let last = *of_record.iter().max()?;
+    Some(Times {
+        period,
+        first,
+        periods: usize::try_from(last - first + 1).ok()?,
+        of_record: of_record.iter().map(|p| (p - first) as u32).collect(),
+        without_time,
     })
 }
 
@@ -262,5 +356,6 @@ pub fn read_areas(run: &mut Run, input: &Path, fields: &AreaFields) -> Result<Da
         kind: DataKind::Areas { cases, expected },
         srs: layer.srs,
         excluded: 0,
+        times: None,
     })
 }

@@ -2,10 +2,13 @@
 //! Poisson on areas (Kulldorff 1997), ordinal on oppose < neutral < support (Jung, Kulldorff &
 //! Klassen 2007), multinomial on the unordered mix of classes (Jung, Kulldorff & Richard 2010)
 //! — with Monte Carlo p-values (Dwass 1957) and Gumbel-approximated p-values (Abrams, Kleinman
-//! & Kulldorff 2010).
+//! & Kulldorff 2010). With a time field the windows are cylinders, a circle × a run of periods,
+//! and the space-time permutation model (Kulldorff, Heffernan, Hartman, Assunção & Mostashari
+//! 2005) finds bursts of records from the margins of place and period alone.
 
 pub mod analysis;
 pub mod clusters;
+pub mod cylinders;
 pub mod engine;
 pub mod input;
 pub mod models;
@@ -19,7 +22,7 @@ use serde_json::Value;
 use stance_core::error::{Error, Result};
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 
-use analysis::{scan_areas, scan_points, ScanResult};
+use analysis::{scan_areas, scan_points, scan_space_time, ScanResult, TimedModel, TimedRecords};
 use input::{read_areas, read_records, Data, DataKind};
 pub use output::circle;
 use output::{cluster_row, summary, write_layers, ClusterRow};
@@ -37,14 +40,18 @@ const SCAN_END: f64 = 0.95;
 impl Tool for Scan {
     type Params = ScanParams;
     const ID: &'static str = "scan";
-    const TITLE: &'static str = "Scan for circular clusters of stance";
+    const TITLE: &'static str = "Scan for circular (or space-time) clusters of stance";
     const DESCRIPTION: &'static str = "Finds circular clusters of stance beyond chance. Circles are centred on every \
         distinct location (or a grid) and grow through the nearest locations up to --max-share of the records; each is \
         scored with a log-likelihood ratio: Bernoulli (the records of --case-class against the other \
         --at-risk-classes; Kulldorff 1997), ordinal (a shift toward support or toward oppose on oppose < neutral < \
         support; Jung, Kulldorff & Klassen 2007), multinomial (any unusual mix of the unordered classes inside against \
         outside; Jung, Kulldorff & Richard 2010) or Poisson (case counts on areas against the population at risk or \
-        expected counts; Kulldorff 1997). Sides are named by stance with --toward (bernoulli, ordinal; a multinomial \
+        expected counts; Kulldorff 1997). With --time-field the windows are cylinders: every circle × every run of \
+        1 to --max-duration consecutive --period periods; the space-time-permutation model (Kulldorff, Heffernan, \
+        Hartman, Assunção & Mostashari 2005) needs no population: it compares the records of a cylinder with those \
+        expected from the margins, c(circle)·c(periods)/C, and its relabellings shuffle the records' periods; \
+        bernoulli, ordinal and multinomial compare cases and controls inside the cylinder. Sides are named by stance with --toward (bernoulli, ordinal; a multinomial \
         cluster leans to the class most over-represented inside) or as high/low with --direction (poisson). The most likely cluster and secondary clusters sharing no location are \
         compared with the largest ratio of each random relabelling (p = rank/(R+1); Dwass 1957) and with a Gumbel \
         distribution fitted to those maxima (Abrams, Kleinman & Kulldorff 2010). Records are a biased sample of \
@@ -64,14 +71,17 @@ impl Tool for Scan {
                     multinomial: share_in_<class> and share_out_<class> for each class present (share of the at-risk records \
                     inside and outside the circle); poisson: cases_in, expected_in; then risk_ratio (inside against \
                     outside; multinomial: share inside over share outside of the leans_to class), llr (log-likelihood ratio), p_monte_carlo, p_gumbel and replicates (how many random \
-                    relabellings the p-values rest on).",
+                    relabellings the p-values rest on). Space-time scans add period_start and period_end (period \
+                    labels, e.g. 2026-06) and periods (the run's length) after radius_m, and count records_in \
+                    inside the cylinder; space-time-permutation: records_in, expected_in (c(circle)·c(periods)/C) \
+                    and risk_ratio = records_in / expected_in (high clusters only).",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },
             OutputDecl {
                 id: "members",
                 title: "Cluster members",
                 description: "Attribute table <name>_members: feature_id of each input record (poisson: area) inside a \
-                    reported cluster, and its cluster_no.",
+                    reported cluster (space-time: inside its circle and run of periods), and its cluster_no.",
                 media_type: GEOPACKAGE_MEDIA_TYPE,
             },
         ]
@@ -94,7 +104,7 @@ impl Tool for Scan {
             .map(|c| cluster_row(&config, &data, &scanned, c))
             .collect();
         log_clusters(run, &scanned, &rows);
-        write_layers(run, &data, &scanned, &rows)?;
+        write_layers(run, &config, &data, &scanned, &rows)?;
         let mut results = summary(run, &config, &data, &scanned, &rows);
         results["scan_time_s"] = ((scan_s * 1000.0).round() / 1000.0).into();
         Ok(results)
@@ -109,7 +119,7 @@ fn read(config: &Config, run: &mut Run) -> Result<Data> {
             field,
             classes,
             roles,
-        } => read_records(run, &input, field, classes, roles),
+        } => read_records(run, &input, field, classes, roles, config.time.as_ref()),
         Subject::Areas(fields) => read_areas(run, &input, fields),
     }
 }
@@ -146,8 +156,23 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
         }
     };
     let stop = run.interrupt().flag();
-    let outcome = match &data.kind {
-        DataKind::Points { labels, model, .. } => scan_points(
+    let outcome = match (&data.kind, &data.times) {
+        (DataKind::Points { labels, model, .. }, Some(times)) => {
+            let records = TimedRecords {
+                x: &data.x,
+                y: &data.y,
+                period: &times.of_record,
+                periods: times.periods,
+                labels,
+            };
+            let timed = match config.model {
+                ModelChoice::SpaceTimePermutation => TimedModel::Permutation,
+                _ => TimedModel::Labels(*model),
+            };
+            let duration = max_duration(config, times.periods);
+            scan_space_time(&records, timed, duration, &config.scan, &report, stop)
+        }
+        (DataKind::Points { labels, model, .. }, None) => scan_points(
             &data.x,
             &data.y,
             labels,
@@ -156,7 +181,7 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
             &report,
             stop,
         ),
-        DataKind::Areas { cases, expected } => scan_areas(
+        (DataKind::Areas { cases, expected }, _) => scan_areas(
             &data.x,
             &data.y,
             cases,
@@ -167,6 +192,16 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
         ),
     };
     outcome.map_err(|_| Error::Interrupted)
+}
+
+/// The longest run of periods: as asked, or half the `periods` studied (at least 1).
+pub fn max_duration(config: &Config, periods: usize) -> usize {
+    config
+        .time
+        .as_ref()
+        .and_then(|t| t.max_duration)
+        .unwrap_or(periods / 2)
+        .clamp(1, periods.max(1))
 }
 
 /// One log line per cluster (shown with -v).

@@ -191,6 +191,69 @@ impl WindowModel for Bernoulli {
     }
 }
 
+/// Space-time permutation model (Kulldorff, Heffernan, Hartman, Assunção & Mostashari 2005,
+/// PLoS Med. 2(3): e59): C records in all; a cylinder holding c of them where
+/// μ = c(circle)·c(periods)/C are expected from the margins scores
+///
+/// ln Λ = c ln(c/μ) + (C−c) ln((C−c)/(C−μ)) for c > μ, else 0 (high clusters only).
+///
+/// The window "size" this model is given is μ itself.
+#[derive(Debug, Clone)]
+pub struct SpaceTimePermutation {
+    table: XLogX,
+    total: u64,
+}
+
+/// Window constants of the space-time permutation model.
+#[derive(Debug, Clone, Copy)]
+pub struct PermutationWindow {
+    expected: f64,
+    ln_expected: f64,
+    ln_expected_outside: f64,
+}
+
+impl SpaceTimePermutation {
+    /// The model for `total` records.
+    pub fn new(total: u64) -> Self {
+        SpaceTimePermutation {
+            table: XLogX::new(total),
+            total,
+        }
+    }
+
+    /// ln Λ of a cylinder with `observed` records where `expected` are expected.
+    pub fn ratio(&self, expected: f64, observed: u64) -> f64 {
+        self.llr(&self.window(expected), &[observed as u32]).0
+    }
+}
+
+impl WindowModel for SpaceTimePermutation {
+    const WIDTH: usize = 1;
+    type Window = PermutationWindow;
+
+    fn window(&self, expected: f64) -> PermutationWindow {
+        let outside = self.total as f64 - expected;
+        PermutationWindow {
+            expected,
+            ln_expected: if expected > 0.0 { expected.ln() } else { 0.0 },
+            ln_expected_outside: if outside > 0.0 { outside.ln() } else { 0.0 },
+        }
+    }
+
+    #[inline(always)]
+    fn llr(&self, w: &PermutationWindow, inside: &[u32]) -> (f64, Side) {
+        let c = u64::from(inside[0]).min(self.total);
+        let observed = c as f64;
+        if observed <= w.expected || w.expected <= 0.0 {
+            return (0.0, Side::High);
+        }
+        let rest = self.total - c;
+        let value = self.table.at(c) - observed * w.ln_expected + self.table.at(rest)
+            - (rest as f64) * w.ln_expected_outside;
+        (value.max(0.0), Side::High)
+    }
+}
+
 /// Poisson model: areas with observed and expected cases, expected summing to the C observed.
 ///
 /// ln Λ = c ln(c/E) + (C−c) ln((C−c)/(C−E)) for a window with c observed and E expected cases,

@@ -13,7 +13,7 @@ use crate::analysis::ScanResult;
 use crate::clusters::Cluster;
 use crate::input::{Data, DataKind};
 use crate::models::Side;
-use crate::params::{joined, Config, RecordRoles, Subject};
+use crate::params::{joined, Config, ModelChoice, RecordRoles, Subject};
 
 /// Vertices of a drawn cluster circle.
 const CIRCLE_VERTICES: usize = 72;
@@ -45,6 +45,39 @@ pub struct ClusterRow {
     pub p_gumbel: Option<f64>,
     /// Replicates the p-values rest on.
     pub replicates: usize,
+    /// Space-time: the first and last period of the run (labels) and its length.
+    pub time: Option<(String, String, usize)>,
+}
+
+/// Which columns the cluster table has.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Columns {
+    /// Record models: share_in_/share_out_ of these classes.
+    pub shares: Vec<Stance>,
+    /// cases_in (poisson).
+    pub cases_in: bool,
+    /// expected_in (poisson, space-time permutation).
+    pub expected_in: bool,
+    /// period_start, period_end, periods (space-time scans).
+    pub time: bool,
+}
+
+impl Columns {
+    /// The columns of a scan of `data` under `config`.
+    pub fn of(config: &Config, data: &Data) -> Self {
+        let permutation = config.model == ModelChoice::SpaceTimePermutation;
+        let points = matches!(data.kind, DataKind::Points { .. });
+        Columns {
+            shares: if points && !permutation {
+                classes_present(data)
+            } else {
+                Vec::new()
+            },
+            cases_in: !points,
+            expected_in: !points || permutation,
+            time: data.times.is_some(),
+        }
+    }
 }
 
 /// `a / b` when finite.
@@ -75,6 +108,7 @@ fn leans_to(config: &Config, present: &[Stance], side: Side) -> String {
             }
             // Read from the shares once they are known (`most_over_represented`).
             (RecordRoles::Multinomial { .. }, _) => String::new(),
+            (RecordRoles::Permutation { .. }, _) => "high".into(),
         },
     }
 }
@@ -106,13 +140,24 @@ fn inside_by_class(data: &Data, scanned: &ScanResult, c: &Cluster) -> BTreeMap<S
     }
     let mut counts = BTreeMap::new();
     if let DataKind::Points { stances, .. } = &data.kind {
-        for (s, &l) in stances.iter().zip(&scanned.of_point) {
-            if inside_location[l as usize] {
+        for (i, (s, &l)) in stances.iter().zip(&scanned.of_point).enumerate() {
+            if inside_location[l as usize] && in_run(data, c, i) {
                 *counts.entry(*s).or_default() += 1;
             }
         }
     }
     counts
+}
+
+/// Whether record `i` falls in the cluster's run of periods (always, for a circle).
+fn in_run(data: &Data, c: &Cluster, i: usize) -> bool {
+    match (&data.times, &c.time) {
+        (Some(times), Some(t)) => {
+            let p = times.of_record[i] as usize;
+            p >= t.first_period && p < t.first_period + t.periods
+        }
+        _ => true,
+    }
 }
 
 /// The table row of cluster `c`.
@@ -134,7 +179,23 @@ pub fn cluster_row(config: &Config, data: &Data, scanned: &ScanResult, c: &Clust
         p_monte_carlo: c.p_value,
         p_gumbel: c.p_value_gumbel,
         replicates: scanned.replicate_max.len(),
+        time: data.times.as_ref().zip(c.time).map(|(times, t)| {
+            let first = times.first + t.first_period as i64;
+            let last = first + t.periods as i64 - 1;
+            (
+                times.period.label(first),
+                times.period.label(last),
+                t.periods,
+            )
+        }),
     };
+    if let Some(expected) = c.time.and_then(|t| t.expected) {
+        // Observed over expected (Kulldorff et al. 2005).
+        row.records_in = Some(u64::from(w.inside[0]));
+        row.expected_in = Some(expected);
+        row.risk_ratio = ratio(f64::from(w.inside[0]), expected);
+        return row;
+    }
     match &data.kind {
         DataKind::Areas { .. } => {
             // (O/E) / ((C − O)/(C − E)) (Kulldorff 1997, §5).
@@ -185,27 +246,33 @@ pub fn cluster_row(config: &Config, data: &Data, scanned: &ScanResult, c: &Clust
     row
 }
 
-/// The fields of the cluster layer, in order, for the classes `present`.
-pub fn cluster_fields(points: bool, present: &[Stance]) -> Vec<FieldDef> {
+/// The fields of the cluster layer, in order.
+pub fn cluster_fields(columns: &Columns) -> Vec<FieldDef> {
     let mut fields = vec![
         FieldDef::new("cluster_no", FieldKind::Integer),
         FieldDef::new("leans_to", FieldKind::Text),
         FieldDef::new("radius_m", FieldKind::Real),
-        FieldDef::new("records_in", FieldKind::Integer),
     ];
-    if points {
-        for class in present {
-            fields.push(FieldDef::new(
-                &format!("share_in_{}", class.label()),
-                FieldKind::Real,
-            ));
-            fields.push(FieldDef::new(
-                &format!("share_out_{}", class.label()),
-                FieldKind::Real,
-            ));
-        }
-    } else {
+    if columns.time {
+        fields.push(FieldDef::new("period_start", FieldKind::Text));
+        fields.push(FieldDef::new("period_end", FieldKind::Text));
+        fields.push(FieldDef::new("periods", FieldKind::Integer));
+    }
+    fields.push(FieldDef::new("records_in", FieldKind::Integer));
+    for class in &columns.shares {
+        fields.push(FieldDef::new(
+            &format!("share_in_{}", class.label()),
+            FieldKind::Real,
+        ));
+        fields.push(FieldDef::new(
+            &format!("share_out_{}", class.label()),
+            FieldKind::Real,
+        ));
+    }
+    if columns.cases_in {
         fields.push(FieldDef::new("cases_in", FieldKind::Integer));
+    }
+    if columns.expected_in {
         fields.push(FieldDef::new("expected_in", FieldKind::Real));
     }
     for (name, kind) in [
@@ -222,22 +289,33 @@ pub fn cluster_fields(points: bool, present: &[Stance]) -> Vec<FieldDef> {
 
 impl ClusterRow {
     /// The row's values, in the order of [`cluster_fields`].
-    fn values(&self, points: bool) -> Vec<FieldData<'_>> {
+    fn values(&self, columns: &Columns) -> Vec<FieldData<'_>> {
         let int = |v: Option<u64>| v.map_or(FieldData::Null, |v| FieldData::Integer(v as i64));
         let real = |v: Option<f64>| v.map_or(FieldData::Null, FieldData::Real);
         let mut values = vec![
             FieldData::Integer(self.cluster_no as i64),
             FieldData::Text(&self.leans_to),
             FieldData::Real(self.radius_m),
-            int(self.records_in),
         ];
-        if points {
-            for &(_, share_in, share_out) in &self.shares {
-                values.push(real(share_in.is_finite().then_some(share_in)));
-                values.push(real(share_out.is_finite().then_some(share_out)));
+        if columns.time {
+            match &self.time {
+                Some((start, end, periods)) => values.extend([
+                    FieldData::Text(start),
+                    FieldData::Text(end),
+                    FieldData::Integer(*periods as i64),
+                ]),
+                None => values.extend([FieldData::Null, FieldData::Null, FieldData::Null]),
             }
-        } else {
+        }
+        values.push(int(self.records_in));
+        for &(_, share_in, share_out) in &self.shares {
+            values.push(real(share_in.is_finite().then_some(share_in)));
+            values.push(real(share_out.is_finite().then_some(share_out)));
+        }
+        if columns.cases_in {
             values.push(int(self.cases_in));
+        }
+        if columns.expected_in {
             values.push(real(self.expected_in));
         }
         values.extend([
@@ -250,29 +328,45 @@ impl ClusterRow {
         values
     }
 
-    /// The row as a JSON object whose keys are the layer's field names, in the same order.
-    pub fn to_json(&self, points: bool) -> Value {
+    /// (field name, JSON value) in the order of [`cluster_fields`].
+    fn to_pairs(&self, columns: &Columns) -> Vec<(String, Value)> {
         let finite = |v: f64| if v.is_finite() { json!(v) } else { Value::Null };
-        let mut object = Map::new();
-        object.insert("cluster_no".into(), json!(self.cluster_no));
-        object.insert("leans_to".into(), json!(self.leans_to));
-        object.insert("radius_m".into(), json!(self.radius_m));
-        object.insert("records_in".into(), json!(self.records_in));
-        if points {
-            for &(class, share_in, share_out) in &self.shares {
-                object.insert(format!("share_in_{class}"), finite(share_in));
-                object.insert(format!("share_out_{class}"), finite(share_out));
-            }
-        } else {
-            object.insert("cases_in".into(), json!(self.cases_in));
-            object.insert("expected_in".into(), json!(self.expected_in));
+        let mut pairs: Vec<(String, Value)> = vec![
+            ("cluster_no".into(), json!(self.cluster_no)),
+            ("leans_to".into(), json!(self.leans_to)),
+            ("radius_m".into(), json!(self.radius_m)),
+        ];
+        if columns.time {
+            let (start, end, periods) = match &self.time {
+                Some((a, b, n)) => (json!(a), json!(b), json!(n)),
+                None => (Value::Null, Value::Null, Value::Null),
+            };
+            pairs.push(("period_start".into(), start));
+            pairs.push(("period_end".into(), end));
+            pairs.push(("periods".into(), periods));
         }
-        object.insert("risk_ratio".into(), json!(self.risk_ratio));
-        object.insert("llr".into(), json!(self.llr));
-        object.insert("p_monte_carlo".into(), json!(self.p_monte_carlo));
-        object.insert("p_gumbel".into(), json!(self.p_gumbel));
-        object.insert("replicates".into(), json!(self.replicates));
-        Value::Object(object)
+        pairs.push(("records_in".into(), json!(self.records_in)));
+        for &(class, share_in, share_out) in &self.shares {
+            pairs.push((format!("share_in_{class}"), finite(share_in)));
+            pairs.push((format!("share_out_{class}"), finite(share_out)));
+        }
+        if columns.cases_in {
+            pairs.push(("cases_in".into(), json!(self.cases_in)));
+        }
+        if columns.expected_in {
+            pairs.push(("expected_in".into(), json!(self.expected_in)));
+        }
+        pairs.push(("risk_ratio".into(), json!(self.risk_ratio)));
+        pairs.push(("llr".into(), json!(self.llr)));
+        pairs.push(("p_monte_carlo".into(), json!(self.p_monte_carlo)));
+        pairs.push(("p_gumbel".into(), json!(self.p_gumbel)));
+        pairs.push(("replicates".into(), json!(self.replicates)));
+        pairs
+    }
+
+    /// The row as a JSON object whose keys are the layer's field names, in the same order.
+    pub fn to_json(&self, columns: &Columns) -> Value {
+        Value::Object(self.to_pairs(columns).into_iter().collect::<Map<_, _>>())
     }
 }
 
@@ -310,19 +404,20 @@ fn drawn_circle(scanned: &ScanResult, c: &Cluster) -> geo_types::Polygon<f64> {
 /// Failures of the staging file.
 pub fn write_layers(
     run: &mut Run,
+    config: &Config,
     data: &Data,
     scanned: &ScanResult,
     rows: &[ClusterRow],
 ) -> Result<()> {
-    let points = matches!(data.kind, DataKind::Points { .. });
-    let fields = cluster_fields(points, &classes_present(data));
+    let columns = Columns::of(config, data);
+    let fields = cluster_fields(&columns);
     let name = run.layer_name("clusters");
     let mut writer =
         run.output()
             .create_vector(&name, GeometryKind::MultiPolygon, Some(&data.srs), &fields)?;
     for (c, row) in scanned.clusters.iter().zip(rows) {
         let polygon = drawn_circle(scanned, c);
-        writer.add(Shape::Polygon(&polygon), &row.values(points))?;
+        writer.add(Shape::Polygon(&polygon), &row.values(&columns))?;
     }
     writer.finish()?;
     write_members(run, data, scanned)
@@ -330,10 +425,11 @@ pub fn write_layers(
 
 /// Every analysed record (or area) whose location lies in a reported cluster.
 fn write_members(run: &mut Run, data: &Data, scanned: &ScanResult) -> Result<()> {
-    let mut cluster_of_location = vec![0usize; scanned.x.len()];
+    // Per location, the clusters holding it (several only for cylinders in other periods).
+    let mut clusters_at = vec![Vec::new(); scanned.x.len()];
     for c in &scanned.clusters {
         for &m in &c.members {
-            cluster_of_location[m as usize] = c.rank;
+            clusters_at[m as usize].push(c);
         }
     }
     let fields = [
@@ -348,9 +444,12 @@ fn write_members(run: &mut Run, data: &Data, scanned: &ScanResult) -> Result<()>
         .fids
         .iter()
         .zip(&scanned.of_point)
-        .filter_map(|(&fid, &l)| {
-            let no = cluster_of_location[l as usize];
-            (no > 0).then_some((no, fid))
+        .enumerate()
+        .filter_map(|(i, (&fid, &l))| {
+            clusters_at[l as usize]
+                .iter()
+                .find(|c| in_run(data, c, i))
+                .map(|c| (c.rank, fid))
         })
         .collect();
     rows.sort_unstable();
@@ -381,7 +480,7 @@ pub fn summary(
     scanned: &ScanResult,
     rows: &[ClusterRow],
 ) -> Value {
-    let points = matches!(data.kind, DataKind::Points { .. });
+    let columns = Columns::of(config, data);
     let mut maxima = scanned.replicate_max.clone();
     maxima.sort_by(f64::total_cmp);
     let mut s = Map::new();
@@ -400,11 +499,23 @@ pub fn summary(
                 RecordRoles::Ordinal { classes } | RecordRoles::Multinomial { classes } => {
                     classes.clone()
                 }
+                RecordRoles::Permutation {
+                    classes,
+                    case_class,
+                } => {
+                    if *case_class {
+                        s.insert("case_class".into(), json!(joined(classes)));
+                    }
+                    classes.clone()
+                }
             };
             at_risk.sort();
             let labels: Vec<&str> = at_risk.iter().map(|c| c.label()).collect();
             s.insert("at_risk_classes".into(), json!(labels));
-            if !matches!(roles, RecordRoles::Multinomial { .. }) {
+            if !matches!(
+                roles,
+                RecordRoles::Multinomial { .. } | RecordRoles::Permutation { .. }
+            ) {
                 s.insert("toward".into(), json!(config.side_asked));
             }
             let by_class: BTreeMap<&str, u64> = data
@@ -425,6 +536,21 @@ pub fn summary(
     );
     s.insert("features_analysed".into(), json!(data.fids.len()));
     s.insert("features_excluded".into(), json!(data.excluded));
+    if let Some(times) = &data.times {
+        let last = times.first + times.periods as i64 - 1;
+        s.insert("period".into(), json!(times.period));
+        s.insert(
+            "max_duration".into(),
+            json!(crate::max_duration(config, times.periods)),
+        );
+        s.insert("periods_studied".into(), json!(times.periods));
+        s.insert(
+            "first_period".into(),
+            json!(times.period.label(times.first)),
+        );
+        s.insert("last_period".into(), json!(times.period.label(last)));
+        s.insert("records_without_time".into(), json!(times.without_time));
+    }
     s.insert("locations".into(), json!(scanned.x.len()));
     s.insert("centres".into(), json!(scanned.centres.len()));
     s.insert("windows_per_labelling".into(), json!(scanned.windows));
@@ -437,7 +563,7 @@ pub fn summary(
         "replicate_max_llr_99th_percentile".into(),
         quantile(&maxima, 0.99),
     );
-    let clusters: Vec<Value> = rows.iter().map(|r| r.to_json(points)).collect();
+    let clusters: Vec<Value> = rows.iter().map(|r| r.to_json(&columns)).collect();
     s.insert("clusters".into(), Value::Array(clusters));
     Value::Object(s)
 }

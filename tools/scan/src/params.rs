@@ -2,6 +2,7 @@
 
 use stance_core::error::{Error, Result};
 use stance_core::stance::{ClassMap, Stance};
+use stance_core::time::Period;
 
 use crate::analysis::ScanConfig;
 use crate::models::Direction;
@@ -21,6 +22,9 @@ pub enum ModelChoice {
     /// The mix of the unordered classes inside against outside on records (Jung, Kulldorff &
     /// Richard 2010).
     Multinomial,
+    /// Records bursting in space and time against the margins of place and period; needs
+    /// --time-field (Kulldorff, Heffernan, Hartman, Assunção & Mostashari 2005).
+    SpaceTimePermutation,
 }
 
 impl ModelChoice {
@@ -31,6 +35,7 @@ impl ModelChoice {
             ModelChoice::Ordinal => "ordinal",
             ModelChoice::Poisson => "poisson",
             ModelChoice::Multinomial => "multinomial",
+            ModelChoice::SpaceTimePermutation => "space-time-permutation",
         }
     }
 }
@@ -54,8 +59,9 @@ pub enum DirectionChoice {
 #[serde(rename_all = "kebab-case")]
 pub struct ScanParams {
     /// Scan statistic: bernoulli (the case class against the other at-risk classes), ordinal
-    /// (oppose < neutral < support), multinomial (the mix of the classes, unordered) or poisson
-    /// (case counts on areas).
+    /// (oppose < neutral < support), multinomial (the mix of the classes, unordered), poisson
+    /// (case counts on areas) or space-time-permutation (records bursting in space and time;
+    /// Kulldorff, Heffernan, Hartman, Assunção & Mostashari 2005).
     #[arg(long, value_enum, value_name = "MODEL", default_value = "bernoulli")]
     pub model: ModelChoice,
 
@@ -67,9 +73,11 @@ pub struct ScanParams {
     #[arg(long, value_name = "LABEL=CLASS,…")]
     pub classes: Option<String>,
 
-    /// Bernoulli: the stance class whose records are the cases.
-    #[arg(long, value_name = "CLASS", default_value = "oppose")]
-    pub case_class: String,
+    /// Bernoulli: the stance class whose records are the cases (default oppose).
+    /// Space-time-permutation: count only the records of this class (default: every at-risk
+    /// record).
+    #[arg(long, value_name = "CLASS")]
+    pub case_class: Option<String>,
 
     /// Bernoulli, ordinal, multinomial: the stance classes whose records form the population at
     /// risk, comma-separated, or all; Bernoulli controls are these minus the case class.
@@ -108,7 +116,23 @@ pub struct ScanParams {
     #[arg(long, value_name = "P", default_value_t = 1.0)]
     pub report_p: f64,
 
-    /// Random relabellings for the p-values (0: none, p-values are left empty).
+    /// Field holding each record's date-time: the scan then looks for cylinders, a circle × a
+    /// run of consecutive periods (space-time scan). Records without a usable time are left out
+    /// and counted.
+    #[arg(long, value_name = "FIELD")]
+    pub time_field: Option<String>,
+
+    /// With --time-field: the calendar period (UTC) of the cylinders' runs.
+    #[arg(long, value_enum, value_name = "PERIOD", default_value = "month")]
+    pub period: Period,
+
+    /// With --time-field: the longest run of periods in a cylinder (default: half the periods
+    /// studied, at least 1).
+    #[arg(long, value_name = "N")]
+    pub max_duration: Option<usize>,
+
+    /// Random relabellings for the p-values (0: none, p-values are left empty; space-time:
+    /// random permutations of the records' periods or labels).
     #[arg(long, value_name = "N", default_value_t = 999)]
     pub replicates: usize,
 
@@ -149,6 +173,24 @@ pub enum RecordRoles {
         /// The classes analysed.
         classes: Vec<Stance>,
     },
+    /// Space-time permutation: the classes whose records are counted, in class order.
+    Permutation {
+        /// The classes counted.
+        classes: Vec<Stance>,
+        /// Whether they are the case class given with --case-class.
+        case_class: bool,
+    },
+}
+
+/// The time of a space-time scan.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TimeConfig {
+    /// Field of the records' date-times.
+    pub field: String,
+    /// Calendar period.
+    pub period: Period,
+    /// Longest run of periods (None: half the periods studied, at least 1).
+    pub max_duration: Option<usize>,
 }
 
 /// The Poisson model's inputs.
@@ -191,6 +233,8 @@ pub struct Config {
     pub side_asked: String,
     /// The scan settings.
     pub scan: ScanConfig,
+    /// Space-time scans: the time.
+    pub time: Option<TimeConfig>,
 }
 
 impl ScanParams {
@@ -200,11 +244,13 @@ impl ScanParams {
     /// An argument error naming the option and the value.
     pub fn check(&self, seed: u64) -> Result<Config> {
         self.check_limits()?;
+        let time = self.check_time()?;
         let (subject, direction, side_asked) = match self.model {
             ModelChoice::Poisson => self.check_poisson()?,
-            ModelChoice::Bernoulli | ModelChoice::Ordinal | ModelChoice::Multinomial => {
-                self.check_records()?
-            }
+            ModelChoice::Bernoulli
+            | ModelChoice::Ordinal
+            | ModelChoice::Multinomial
+            | ModelChoice::SpaceTimePermutation => self.check_records()?,
         };
         Ok(Config {
             model: self.model,
@@ -220,7 +266,43 @@ impl ScanParams {
                 replicates: self.replicates,
                 seed,
             },
+            time,
         })
+    }
+
+    fn check_time(&self) -> Result<Option<TimeConfig>> {
+        let Some(field) = &self.time_field else {
+            if self.model == ModelChoice::SpaceTimePermutation {
+                return Err(Error::argument(
+                    "--time-field",
+                    "missing; the space-time-permutation model needs each record's date-time",
+                ));
+            }
+            if self.max_duration.is_some() {
+                return Err(Error::argument(
+                    "--max-duration",
+                    "is for space-time scans; give --time-field too",
+                ));
+            }
+            return Ok(None);
+        };
+        if self.model == ModelChoice::Poisson {
+            return Err(Error::argument(
+                "--time-field",
+                "is not for the poisson model on areas; space-time scans run on records",
+            ));
+        }
+        if self.max_duration == Some(0) {
+            return Err(Error::argument(
+                "--max-duration",
+                "0 periods; a cylinder lasts at least one period",
+            ));
+        }
+        Ok(Some(TimeConfig {
+            field: field.clone(),
+            period: self.period,
+            max_duration: self.max_duration,
+        }))
     }
 
     fn check_limits(&self) -> Result<()> {
@@ -331,8 +413,15 @@ impl ScanParams {
         let at_risk = parse_class_list("--at-risk-classes", &self.at_risk_classes)?;
         let toward = self.toward.as_deref();
         let (roles, direction, asked) = match self.model {
-            ModelChoice::Bernoulli => bernoulli_roles(&self.case_class, at_risk, toward)?,
+            ModelChoice::Bernoulli => bernoulli_roles(
+                self.case_class.as_deref().unwrap_or("oppose"),
+                at_risk,
+                toward,
+            )?,
             ModelChoice::Multinomial => multinomial_roles(at_risk, toward)?,
+            ModelChoice::SpaceTimePermutation => {
+                permutation_roles(self.case_class.as_deref(), at_risk, toward)?
+            }
             _ => ordinal_roles(at_risk, toward)?,
         };
         let subject = Subject::Records {
@@ -456,6 +545,31 @@ fn ordinal_roles(
         }
     };
     Ok((RecordRoles::Ordinal { classes: at_risk }, direction, asked))
+}
+
+fn permutation_roles(
+    case_class: Option<&str>,
+    at_risk: Vec<Stance>,
+    toward: Option<&str>,
+) -> Result<(RecordRoles, Direction, String)> {
+    if toward.is_some() {
+        return Err(Error::argument(
+            "--toward",
+            "is not for the space-time-permutation model: it looks for more records than \
+             expected (high clusters only)",
+        ));
+    }
+    let roles = match case_class {
+        Some(text) => RecordRoles::Permutation {
+            classes: vec![parse_class("--case-class", text)?],
+            case_class: true,
+        },
+        None => RecordRoles::Permutation {
+            classes: at_risk,
+            case_class: false,
+        },
+    };
+    Ok((roles, Direction::High, "high".to_owned()))
 }
 
 fn multinomial_roles(

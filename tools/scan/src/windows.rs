@@ -199,6 +199,19 @@ pub struct Neighbourhood {
     candidates: Vec<(f64, u32)>,
 }
 
+/// The locations circles grow through: their index, coordinates (m) and weights.
+#[derive(Debug, Clone, Copy)]
+pub struct Sites<'a> {
+    /// The grid index over the locations.
+    pub index: &'a GridIndex,
+    /// Eastings (m).
+    pub x: &'a [f64],
+    /// Northings (m).
+    pub y: &'a [f64],
+    /// Weight of each location (records, or expected cases).
+    pub weight: &'a [f64],
+}
+
 /// Limits on the windows: total weight (records or population) and radius.
 #[derive(Debug, Clone, Copy)]
 pub struct WindowLimits {
@@ -212,17 +225,13 @@ impl Neighbourhood {
     /// Fills the neighbourhood of centre (`cx`, `cy`): every location within the largest circle
     /// whose weight (sum of `weight` over its locations) is ≤ `limits.max_weight` and whose
     /// radius is ≤ `limits.max_radius_m`.
-    #[allow(clippy::too_many_arguments)]
-    pub fn fill(
-        &mut self,
-        index: &GridIndex,
-        x: &[f64],
-        y: &[f64],
-        weight: &[f64],
-        cx: f64,
-        cy: f64,
-        limits: WindowLimits,
-    ) {
+    pub fn fill(&mut self, sites: &Sites<'_>, (cx, cy): (f64, f64), limits: WindowLimits) {
+        let Sites {
+            index,
+            x,
+            y,
+            weight,
+        } = *sites;
         self.order.clear();
         self.distance_m.clear();
         self.closes_window.clear();
@@ -377,6 +386,12 @@ mod tests {
             .map(|_| f64::from(rng.random_range(1..4)))
             .collect();
         let index = GridIndex::new(&x, &y);
+        let sites = Sites {
+            index: &index,
+            x: &x,
+            y: &y,
+            weight: &w,
+        };
         let mut hood = Neighbourhood::default();
         for (max_weight, max_radius_m) in
             [(100.0, f64::INFINITY), (600.0, 7.5), (1e9, f64::INFINITY)]
@@ -386,10 +401,10 @@ mod tests {
                 max_radius_m,
             };
             for c in (0..x.len()).step_by(7) {
-                hood.fill(&index, &x, &y, &w, x[c], y[c], limits);
+                hood.fill(&sites, (x[c], y[c]), limits);
                 assert_eq!(hood.order, brute(&x, &y, &w, x[c], y[c], limits));
             }
-            hood.fill(&index, &x, &y, &w, 20.5, 20.5, limits);
+            hood.fill(&sites, (20.5, 20.5), limits);
             assert_eq!(hood.order, brute(&x, &y, &w, 20.5, 20.5, limits));
         }
     }

@@ -19,7 +19,7 @@ use rayon::prelude::*;
 use stance_core::montecarlo::replicate_rng;
 
 use crate::models::{Side, WindowModel, ORDINAL_CLASSES};
-use crate::windows::{hilbert_order, GridIndex, Neighbourhood, WindowLimits};
+use crate::windows::{hilbert_order, GridIndex, Neighbourhood, Sites, WindowLimits};
 
 mod kernels;
 
@@ -475,9 +475,13 @@ fn scan_centre<M: WindowModel, W: Count>(
     let has_observed = table.has_observed;
     let kernels = table.kernels;
     let stride = used * width;
-    worker
-        .hood
-        .fill(index, setup.x, setup.y, setup.weight, cx, cy, setup.limits);
+    let sites = Sites {
+        index,
+        x: setup.x,
+        y: setup.y,
+        weight: setup.weight,
+    };
+    worker.hood.fill(&sites, (cx, cy), setup.limits);
     if worker.hood.order.is_empty() {
         return;
     }

@@ -4,13 +4,22 @@ use super::kernels::tests::kernel_sets;
 use super::*;
 use crate::models::{Bernoulli, Direction, Multinomial, Ordinal, Poisson};
 
+fn sites<'a>(setup: &ScanSetup<'a>, index: &'a GridIndex) -> Sites<'a> {
+    Sites {
+        index,
+        x: setup.x,
+        y: setup.y,
+        weight: setup.weight,
+    }
+}
+
 /// Every window of every centre, evaluated without pruning, for one labelling.
 fn brute_max<M: WindowModel>(setup: &ScanSetup<'_>, model: &M, counts: &[u32]) -> f64 {
     let index = GridIndex::new(setup.x, setup.y);
     let mut hood = Neighbourhood::default();
     let mut best = 0.0f64;
     for &(cx, cy) in setup.centres {
-        hood.fill(&index, setup.x, setup.y, setup.weight, cx, cy, setup.limits);
+        hood.fill(&sites(setup, &index), (cx, cy), setup.limits);
         let mut acc = vec![0u32; M::WIDTH];
         let mut size = 0.0;
         for (step, &l) in hood.order.iter().enumerate() {
@@ -156,7 +165,7 @@ fn straightforward<M: WindowModel, L: Labelling>(
         let mut counts = vec![0u32; setup.x.len() * width];
         labelling.fill(r, &mut counts);
         for (centre, &(cx, cy)) in setup.centres.iter().enumerate() {
-            hood.fill(&index, setup.x, setup.y, setup.weight, cx, cy, setup.limits);
+            hood.fill(&sites(setup, &index), (cx, cy), setup.limits);
             let mut inside = [0u32; ORDINAL_CLASSES];
             let mut size = 0.0;
             for (step, &l) in hood.order.iter().enumerate() {
