@@ -69,7 +69,7 @@ check() {  # name tool args…: one-machine run, plan, submit, wait, compare, th
 }
 
 "$STANCE" synth --output "$WORK/scenario.gpkg" --points 3000 --seed 5 -q > /dev/null
-cp tests/reference/data/nc.gpkg "$WORK/nc.gpkg"
+ogr2ogr -f GPKG -nln nc "$WORK/nc.gpkg" tests/reference/data/nc.gpkg
 check density density --input scenario.gpkg --layer veldmark_records --cell-m 1500 \
   --type-probabilities --permutations 39 --seed 3 --name d
 check local local --input nc.gpkg --statistic gi-star --field SID79 --permutations 999 \

@@ -49,10 +49,18 @@ fn values(path: &Path, layer: &str, fields: &str) -> Vec<String> {
         .collect()
 }
 
+/// A copy of the counties made by GDAL's ogr2ogr (Debian gdal-bin): a GeoPackage of today's
+/// GDAL, which the strict validator run over every test output accepts.
 fn nc_copy(dir: &Path) -> String {
     let input = dir.join("nc.gpkg");
     let _ = std::fs::remove_file(&input);
-    std::fs::copy(root().join("tests/reference/data/nc.gpkg"), &input).expect("copy nc.gpkg");
+    let status = std::process::Command::new("ogr2ogr")
+        .args(["-f", "GPKG", "-nln", "nc"])
+        .arg(&input)
+        .arg(root().join("tests/reference/data/nc.gpkg"))
+        .status()
+        .expect("run ogr2ogr");
+    assert!(status.success(), "ogr2ogr copy of nc.gpkg");
     "nc.gpkg".to_owned()
 }
 
