@@ -37,7 +37,7 @@ check() {  # name tool args…: one-machine run, plan, submit, wait, compare, th
   local name=$1; shift
   local dir="$WORK/$name"; mkdir -p "$dir"
   (cd "$WORK" && "$STANCE" "$@" --output "$name/whole.gpkg" -q > /dev/null)
-  [ "$(dump "$dir/whole.gpkg" | grep -c '^table ')" -ge 2 ] || { echo "$name: the one-machine run wrote too little"; return 1; }
+  [ "$(dump "$dir/whole.gpkg" | grep -c '^table ')" -ge 1 ] || { echo "$name: the one-machine run wrote too little"; return 1; }
   (cd "$WORK" && "$STANCE" plan-batch --shards 3 --dir "$name/batch" -- "$@" --output "$name/merged.gpkg" > "$dir/plan.json")
   echo "$name: planned $(cat "$dir/plan.json")"
   local out; out=$(sh "$dir/batch/submit.sh")
