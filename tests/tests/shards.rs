@@ -301,4 +301,7 @@ fn plan_batch_writes_the_slurm_scripts_or_says_why_not() {
         ],
     );
     no_output.usage_error(&["--output"]);
+    let help = run_in(&dir, "stance", &["plan-batch", "--help"]);
+    assert_eq!(help.code, 0, "{}", help.stderr);
+    assert!(help.stdout.contains("Usage: stance plan-batch") && help.stderr.is_empty());
 }

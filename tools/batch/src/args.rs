@@ -82,15 +82,29 @@ pub struct Plan {
     pub workdir: PathBuf,
 }
 
+/// What the command line asks for.
+#[derive(Debug)]
+pub enum Parsed {
+    /// A plan to write.
+    Plan(Box<Plan>),
+    /// `--help`: the text to print.
+    Help(String),
+}
+
 /// Parses and checks the options.
 ///
 /// # Errors
 /// One line naming the option and what was expected.
-pub fn parse(args: Vec<OsString>) -> Result<Plan, String> {
+pub fn parse(args: Vec<OsString>) -> Result<Parsed, String> {
     let mut all = vec![OsString::from("stance plan-batch")];
     all.extend(args);
-    let cli = Cli::try_parse_from(all)
-        .map_err(|e| stance_core::host::one_line(&e.render().to_string()))?;
+    let cli = match Cli::try_parse_from(all) {
+        Ok(cli) => cli,
+        Err(e) if e.kind() == clap::error::ErrorKind::DisplayHelp => {
+            return Ok(Parsed::Help(e.render().to_string()));
+        }
+        Err(e) => return Err(stance_core::host::one_line(&e.render().to_string())),
+    };
     if cli.shards == 0 {
         return Err("--shards: must be at least 1".into());
     }
@@ -108,7 +122,7 @@ pub fn parse(args: Vec<OsString>) -> Result<Plan, String> {
     } else {
         workdir.join(&cli.dir)
     };
-    Ok(Plan {
+    Ok(Parsed::Plan(Box::new(Plan {
         shards: cli.shards,
         dir,
         cpus: cli.cpus,
@@ -122,7 +136,7 @@ pub fn parse(args: Vec<OsString>) -> Result<Plan, String> {
         args,
         output,
         workdir,
-    })
+    })))
 }
 
 /// The tool's arguments without `--output`, `--threads`, `--overwrite`, `--shard` and

@@ -24,7 +24,10 @@ pub fn main(args: Vec<OsString>, stance: &std::path::Path) -> ExitCode {
 }
 
 fn run(args: Vec<OsString>, stance: &std::path::Path) -> Result<String, String> {
-    let plan = args::parse(args)?;
+    let plan = match args::parse(args)? {
+        args::Parsed::Plan(plan) => plan,
+        args::Parsed::Help(text) => return Ok(text),
+    };
     args::check_shardable(stance, &plan.tool)?;
     let resources = match plan.fixed {
         Some(fixed) => fixed,
