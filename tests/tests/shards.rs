@@ -164,6 +164,51 @@ fn dump(path: &Path) -> Vec<(String, Vec<Vec<String>>)> {
         .collect()
 }
 
+/// Runs `tool` whole, then in N = 1, 2, 3 and 7 shards merged, with the options `base(output)`
+/// (whose run name is `name`), and checks that each merged GeoPackage holds exactly the whole
+/// run's tables and rows, and that each shard wrote its partial result and nothing else.
+fn assert_shards_merge_to_whole(
+    dir: &Path,
+    tool: &str,
+    name: &str,
+    base: &dyn Fn(&str) -> Vec<String>,
+) {
+    let call = |a: &[String]| {
+        let a: Vec<&str> = a.iter().map(String::as_str).collect();
+        run_in(dir, tool, &a)
+    };
+    let _ = std::fs::remove_file(dir.join("whole.gpkg"));
+    call(&base("whole.gpkg")).ok();
+    let whole = dump(&dir.join("whole.gpkg"));
+    assert!(!whole.is_empty(), "{tool} wrote no table");
+    for n in [1usize, 2, 3, 7] {
+        let shard_dir = format!("n{n}");
+        let _ = std::fs::remove_dir_all(dir.join(&shard_dir));
+        std::fs::create_dir_all(dir.join(&shard_dir)).expect("dir");
+        for k in 1..=n {
+            let mut a = base(&format!("{shard_dir}/{k}.gpkg"));
+            a.extend(["--shard".to_owned(), format!("{k}/{n}")]);
+            let summary = call(&a).ok();
+            assert_eq!(summary["results"]["shard"]["shard"], format!("{k}/{n}"));
+            let tables = stance_tests::tables(&dir.join(format!("{shard_dir}/{k}.gpkg")));
+            assert_eq!(tables, vec![format!("{name}_shard_{k}_of_{n}")]);
+        }
+        let merged = format!("merged{n}.gpkg");
+        let _ = std::fs::remove_file(dir.join(&merged));
+        let mut a = base(&merged);
+        a.extend(["--merge-shards".to_owned(), shard_dir]);
+        call(&a).ok();
+        assert!(
+            dump(&dir.join(&merged)) == whole,
+            "{tool}: {n} shards differ from the whole run"
+        );
+    }
+}
+
+fn owned(args: &[&str]) -> Vec<String> {
+    args.iter().map(|s| (*s).to_owned()).collect()
+}
+
 /// stance-density with tolerance (support against oppose) and type probabilities on an
 /// invented scenario of 3,000 records (stance-synth): the surfaces, p-values and contours of the
 /// merged shards are those of the one-machine run, bit for bit.
@@ -171,8 +216,8 @@ fn dump(path: &Path) -> Vec<(String, Vec<Vec<String>>)> {
 fn density_shards_merge_to_the_one_machine_run() {
     let dir = out_dir("shards_density");
     stance_tests::synth(&dir, "in.gpkg", 3000, 5);
-    let base = |output: &str| -> Vec<String> {
-        [
+    let base = |output: &str| {
+        owned(&[
             "--input",
             "in.gpkg",
             "--layer",
@@ -189,40 +234,112 @@ fn density_shards_merge_to_the_one_machine_run() {
             "--name",
             "d",
             "-q",
-        ]
-        .iter()
-        .map(|s| (*s).to_owned())
-        .collect()
+        ])
     };
-    let call = |a: &[String]| {
-        let a: Vec<&str> = a.iter().map(String::as_str).collect();
-        run_in(&dir, "stance-density", &a)
+    assert_shards_merge_to_whole(&dir, "stance-density", "d", &base);
+}
+
+/// stance-scan, ordinal model, 99 replicates, on an invented scenario of 3,000 records
+/// (stance-synth): the clusters (LLR, Monte Carlo and Gumbel p-values), members and summary
+/// of the merged shards are those of the one-machine run, bit for bit.
+#[test]
+fn scan_shards_merge_to_the_one_machine_run() {
+    let dir = out_dir("shards_scan");
+    stance_tests::synth(&dir, "in.gpkg", 3000, 8);
+    let base = |output: &str| {
+        owned(&[
+            "--input",
+            "in.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--model",
+            "ordinal",
+            "--toward",
+            "both",
+            "--max-radius-m",
+            "12000",
+            "--replicates",
+            "99",
+            "--seed",
+            "4",
+            "--output",
+            output,
+            "--name",
+            "s",
+            "-q",
+        ])
     };
-    let _ = std::fs::remove_file(dir.join("whole.gpkg"));
-    call(&base("whole.gpkg")).ok();
-    let whole = dump(&dir.join("whole.gpkg"));
-    assert!(whole.len() >= 10, "{} tables", whole.len());
-    for n in [1usize, 2, 3, 7] {
-        let shard_dir = format!("d{n}");
-        let _ = std::fs::remove_dir_all(dir.join(&shard_dir));
-        std::fs::create_dir_all(dir.join(&shard_dir)).expect("dir");
-        for k in 1..=n {
-            let mut a = base(&format!("{shard_dir}/{k}.gpkg"));
-            a.extend(["--shard".to_owned(), format!("{k}/{n}")]);
-            call(&a).ok();
-            let tables = stance_tests::tables(&dir.join(format!("{shard_dir}/{k}.gpkg")));
-            assert_eq!(tables, vec![format!("d_shard_{k}_of_{n}")]);
-        }
-        let merged = format!("merged{n}.gpkg");
-        let _ = std::fs::remove_file(dir.join(&merged));
-        let mut a = base(&merged);
-        a.extend(["--merge-shards".to_owned(), shard_dir]);
-        call(&a).ok();
-        assert!(
-            dump(&dir.join(&merged)) == whole,
-            "{n} shards differ from the whole run"
-        );
-    }
+    assert_shards_merge_to_whole(&dir, "stance-scan", "s", &base);
+    // The merged summary states the replicates the p-values rest on, as the whole run does.
+    let clusters = rows(
+        &dir.join("merged7.gpkg"),
+        "SELECT count(*), min(replicates), max(replicates) FROM s_clusters",
+    );
+    assert_ne!(clusters[0][0], "0", "no cluster to compare");
+    assert_eq!(clusters[0][1..], ["99", "99"]);
+}
+
+/// The space-time permutation scan (cylinders of up to 3 months), 49 replicates, on an
+/// invented scenario of 2,000 records (stance-synth): merged shards = the whole run.
+#[test]
+fn space_time_scan_shards_merge_to_the_one_machine_run() {
+    let dir = out_dir("shards_scan_time");
+    stance_tests::synth(&dir, "in.gpkg", 2000, 9);
+    let base = |output: &str| {
+        owned(&[
+            "--input",
+            "in.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--model",
+            "space-time-permutation",
+            "--time-field",
+            "time_utc",
+            "--period",
+            "month",
+            "--max-duration",
+            "3",
+            "--max-share",
+            "0.1",
+            "--replicates",
+            "49",
+            "--seed",
+            "5",
+            "--output",
+            output,
+            "--name",
+            "st",
+            "-q",
+        ])
+    };
+    assert_shards_merge_to_whole(&dir, "stance-scan", "st", &base);
+}
+
+/// stance-moran on the NC counties (SID79, queen contiguity built in the run, 999
+/// permutations): global I's permutation p and mean, the local p-values, adjusted p-values and
+/// cluster types of the merged shards are those of the one-machine run, bit for bit.
+#[test]
+fn moran_shards_merge_to_the_one_machine_run() {
+    let dir = out_dir("shards_moran");
+    let input = nc_copy(&dir);
+    let base = |output: &str| {
+        owned(&[
+            "--input",
+            &input,
+            "--field",
+            "SID79",
+            "--permutations",
+            "999",
+            "--seed",
+            "21",
+            "--output",
+            output,
+            "--name",
+            "m",
+            "-q",
+        ])
+    };
+    assert_shards_merge_to_whole(&dir, "stance-moran", "m", &base);
 }
 
 /// `stance plan-batch` writes the array and merge scripts for a shardable tool and refuses a

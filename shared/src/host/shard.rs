@@ -127,6 +127,98 @@ impl Sharding {
     }
 }
 
+/// One tool run's sharding: which replicates it draws, the fingerprint its shards carry and,
+/// when it merges, the shards read back.
+#[derive(Debug)]
+pub struct ShardRun {
+    sharding: Sharding,
+    total: usize,
+    fingerprint: Value,
+    merged: Option<Merged>,
+}
+
+impl ShardRun {
+    /// Fingerprints a sharded run of `tool` with `total` replicates and, when merging, reads
+    /// and checks its shards. Call after every input is read (their checksums are part of the
+    /// fingerprint).
+    ///
+    /// # Errors
+    /// A missing, duplicated or mismatched shard, named.
+    pub fn prepare<P: serde::Serialize>(
+        sharding: &Sharding,
+        total: usize,
+        tool: &str,
+        params: &P,
+        run: &mut Run,
+    ) -> Result<Self> {
+        let mut prepared = ShardRun {
+            sharding: sharding.clone(),
+            total,
+            fingerprint: Value::Null,
+            merged: None,
+        };
+        let option = match sharding {
+            Sharding::Whole => return Ok(prepared),
+            Sharding::Shard { .. } => "--shard",
+            Sharding::Merge(_) => "--merge-shards",
+        };
+        if total == 0 {
+            return Err(Error::argument(
+                option,
+                "this run draws no replicates (0 asked), so there is nothing to split",
+            ));
+        }
+        prepared.fingerprint = fingerprint(run, tool, params)?;
+        if let Sharding::Merge(files) = sharding {
+            prepared.merged = Some(merge(files, &run.name, total, &prepared.fingerprint)?);
+        }
+        Ok(prepared)
+    }
+
+    /// The replicates this run draws itself.
+    pub fn drawn(&self) -> Range<usize> {
+        self.sharding.replicates(self.total)
+    }
+
+    /// Whether the run writes its outputs (every run but a shard's).
+    pub fn publishing(&self) -> bool {
+        !matches!(self.sharding, Sharding::Shard { .. })
+    }
+
+    /// The shards of a merging run.
+    pub fn merged(&self) -> Option<&Merged> {
+        self.merged.as_ref()
+    }
+
+    /// For a shard: writes `partial` (built only when needed) and returns the run's summary
+    /// (`{"shard": …}`); otherwise None.
+    ///
+    /// # Errors
+    /// `partial`'s, or staging failures.
+    pub fn write(
+        &self,
+        run: &mut Run,
+        partial: impl FnOnce() -> Result<Partial>,
+    ) -> Result<Option<Value>> {
+        let Sharding::Shard { index, count } = self.sharding else {
+            return Ok(None);
+        };
+        let partial = partial()?;
+        let entry = write(
+            run,
+            (index, count),
+            self.total,
+            self.fingerprint.clone(),
+            &partial,
+        )?;
+        run.log(format!(
+            "shard {index} of {count}: replicates {} written to {}",
+            entry["replicates"], entry["layer"]
+        ));
+        Ok(Some(json!({ "shard": entry })))
+    }
+}
+
 /// Replicates of shard `index` (1-based) of `count` out of `total`.
 pub fn block(index: usize, count: usize, total: usize) -> Range<usize> {
     (index - 1) * total / count..index * total / count
@@ -164,9 +256,32 @@ impl Partial {
 pub struct Merged {
     shards: Vec<Partial>,
     origin: Vec<String>,
+    blocks: Vec<Range<usize>>,
 }
 
 impl Merged {
+    /// Part `part` concatenated over the shards, each checked to hold one value per replicate
+    /// of its block (per-replicate values, replicate order).
+    ///
+    /// # Errors
+    /// A shard without the part, or with another number of values than its replicates.
+    pub fn per_replicate(&self, part: &str) -> Result<Vec<f64>> {
+        for ((shard, origin), block) in self.shards.iter().zip(&self.origin).zip(&self.blocks) {
+            let values = shard
+                .parts
+                .get(part)
+                .ok_or_else(|| missing_part(origin, part))?;
+            if values.len() != block.len() {
+                return Err(Error::Failed(format!(
+                    "{origin}: part '{part}' has {} values for its {} replicates",
+                    values.len(),
+                    block.len()
+                )));
+            }
+        }
+        self.concat(part)
+    }
+
     /// Part `part` summed over the shards (counts).
     ///
     /// # Errors
@@ -373,6 +488,7 @@ pub fn merge(files: &[PathBuf], base: &str, total: usize, fingerprint: &Value) -
     let mut merged = Merged {
         shards: Vec::new(),
         origin: Vec::new(),
+        blocks: Vec::new(),
     };
     for (index, f) in by_index {
         let origin = format!(
@@ -383,6 +499,7 @@ pub fn merge(files: &[PathBuf], base: &str, total: usize, fingerprint: &Value) -
         check_record(&f, total, fingerprint, &origin)?;
         merged.shards.push(read_partial(&f)?);
         merged.origin.push(origin);
+        merged.blocks.push(block(index, count, total));
     }
     Ok(merged)
 }

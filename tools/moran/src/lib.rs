@@ -13,11 +13,12 @@ use stance_core::error::{Error, Result};
 use stance_core::gpkg::areas;
 use stance_core::gpkg::read::{read_polygons, FieldWant, PolygonCrs, PolygonLayer};
 use stance_core::gpkg::weights_table::WeightsTable;
+use stance_core::host::shard::{Partial, ShardRun};
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 use stance_core::multiple::adjust;
 use stance_core::weights::{self, Neighbours};
 
-use maths::{GlobalMoran, LocalMoran, MoranError};
+use maths::{GlobalMoran, LocalMoran, MoranError, Part};
 pub use params::{Config, MoranParams, Variable};
 pub use stance_core::host::neighbours::WeightsSource;
 
@@ -105,8 +106,34 @@ impl Tool for Moran {
         let links = neighbours(&config, &areas, table, id_field)?;
         run.debug(format!("weights ready ({})", links.source));
         run.progress.set(0.2);
+        let shards = ShardRun::prepare(
+            &config.sharding,
+            config.inference.permutations,
+            "stance-moran",
+            params,
+            run,
+        )?;
+        let part = shard_part(&shards)?;
         run.progress.phase("permutations");
-        let stats = compute(&config, &areas, &links, run)?;
+        let stats = compute(&config, &areas, &links, &part, run)?;
+        // A shard writes its permutations' global I and local counts, nothing else.
+        if let Some(summary) = shards.write(run, || {
+            let mut partial = Partial::default();
+            partial.values("global", &stats.global.permutation_values);
+            let column = |k: usize| -> Vec<u32> {
+                stats
+                    .local
+                    .permutation_counts
+                    .iter()
+                    .map(|c| c[k])
+                    .collect()
+            };
+            partial.counts("upper", &column(0));
+            partial.counts("lower", &column(1));
+            Ok(partial)
+        })? {
+            return Ok(summary);
+        }
         run.progress.phase("writing");
         let name = run.layer_name("");
         let extra = output::local_fields(&areas, &links, &stats);
@@ -207,8 +234,23 @@ fn neighbours(
     })
 }
 
+/// The permutations this run draws, or those its shards drew.
+fn shard_part(shards: &ShardRun) -> Result<Part> {
+    let mut part = Part {
+        drawn: Some(shards.drawn()),
+        ..Part::default()
+    };
+    if let Some(merged) = shards.merged() {
+        part.global = Some(merged.per_replicate("global")?);
+        let upper = merged.sum("upper")?;
+        let lower = merged.sum("lower")?;
+        part.local = Some(upper.into_iter().zip(lower).map(|(u, l)| [u, l]).collect());
+    }
+    Ok(part)
+}
+
 /// Global and local Moran's I, adjusted local p-values and cluster types.
-fn compute(config: &Config, areas: &Areas, links: &Links, run: &Run) -> Result<Stats> {
+fn compute(config: &Config, areas: &Areas, links: &Links, part: &Part, run: &Run) -> Result<Stats> {
     let w = links.neighbours.standardise(config.style);
     let constant_error = |e: MoranError| Error::BadField {
         path: areas.path.clone(),
@@ -224,15 +266,22 @@ fn compute(config: &Config, areas: &Areas, links: &Links, run: &Run) -> Result<S
                 .set_counted(from + span * share, offset + done as u64, total);
         }
     };
-    let global = maths::global_moran(&areas.values, &w, &config.inference, &report(0, 0.2, 0.2))
-        .map_err(constant_error)?;
-    run.check_interrupted()?;
-    run.debug("global Moran's I done");
-    let half = total / 2;
-    let local = maths::local_moran(
+    let global = maths::global_moran_part(
         &areas.values,
         &w,
         &config.inference,
+        part,
+        &report(0, 0.2, 0.2),
+    )
+    .map_err(constant_error)?;
+    run.check_interrupted()?;
+    run.debug("global Moran's I done");
+    let half = total / 2;
+    let local = maths::local_moran_part(
+        &areas.values,
+        &w,
+        &config.inference,
+        part,
         &report(half, 0.4, 0.5),
     )
     .map_err(constant_error)?;

@@ -9,6 +9,8 @@
 //! this. In the global I, n counts the areas with neighbours (islands carry no weight in S0).
 //! The reference checks (tests/) compare both with R spdep and PySAL esda.
 
+use std::ops::Range;
+
 use rayon::prelude::*;
 use stance_core::montecarlo::{mix64, Draws};
 use stance_core::weights::SparseWeights;
@@ -35,6 +37,19 @@ pub struct Inference {
     pub alternative: Alternative,
 }
 
+/// A run's share of the permutations when they are split over several runs (shards): which
+/// it draws, and the results of the others, gathered from the shards. The default draws all.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Part {
+    /// The permutations drawn (None: all of them).
+    pub drawn: Option<Range<usize>>,
+    /// Global I of every permutation, in permutation order (then none is drawn).
+    pub global: Option<Vec<f64>>,
+    /// Per area, how many permuted Ii were ≥ and ≤ the observed one over every permutation
+    /// (then none is drawn).
+    pub local: Option<Vec<[u32; 2]>>,
+}
+
 /// Errors of the statistics.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum MoranError {
@@ -44,6 +59,14 @@ pub enum MoranError {
     /// Too few areas with neighbours for the variances (n − 3 in a denominator).
     #[error("{0} area(s) have neighbours; Moran's I needs at least 4")]
     TooFew(usize),
+    /// Counts gathered from shards are not one per area.
+    #[error("the shards hold counts for {given} areas, the layer has {areas}")]
+    Counts {
+        /// Counts given.
+        given: usize,
+        /// Areas.
+        areas: usize,
+    },
     /// A value is missing or not finite.
     #[error("value {index} is not a finite number")]
     NotFinite {
@@ -113,6 +136,8 @@ pub struct GlobalMoran {
     pub p_permutation: f64,
     /// Mean of I over the permutations (NaN without permutations).
     pub permutation_mean: f64,
+    /// I of each permutation drawn (or given), in permutation order.
+    pub permutation_values: Vec<f64>,
     /// n used in the formulas (areas with neighbours).
     pub n: usize,
     /// Weight sums.
@@ -202,6 +227,21 @@ pub fn global_moran(
     inference: &Inference,
     progress: &dyn Fn(usize),
 ) -> Result<GlobalMoran, MoranError> {
+    global_moran_part(x, w, inference, &Part::default(), progress)
+}
+
+/// [`global_moran`] drawing only the permutations of `part` (or taking their values from it).
+/// The p-value and mean rest on the permutations drawn or given.
+///
+/// # Errors
+/// As [`global_moran`].
+pub fn global_moran_part(
+    x: &[f64],
+    w: &SparseWeights,
+    inference: &Inference,
+    part: &Part,
+    progress: &dyn Fn(usize),
+) -> Result<GlobalMoran, MoranError> {
     let Inference {
         permutations,
         seed,
@@ -229,14 +269,16 @@ pub fn global_moran(
         - expected * expected;
     let z_normality = (i - expected) / variance_normality.sqrt();
     let z_randomisation = (i - expected) / variance_randomisation.sqrt();
-    let (p_permutation, permutation_mean) = if permutations == 0 {
-        (f64::NAN, f64::NAN)
+    let replicates = if let Some(given) = &part.global {
+        given.clone()
     } else {
-        let indices: Vec<u64> = (0..permutations as u64).collect();
-        let mut replicates: Vec<f64> = Vec::with_capacity(permutations);
-        for part in indices.chunks(PROGRESS_STEP) {
+        let drawn = part.drawn.clone().unwrap_or(0..permutations);
+        let indices: Vec<u64> = drawn.map(|r| r as u64).collect();
+        let mut replicates: Vec<f64> = Vec::with_capacity(indices.len());
+        for block in indices.chunks(PROGRESS_STEP) {
             replicates.extend(
-                part.par_chunks(BLOCK)
+                block
+                    .par_chunks(BLOCK)
                     .flat_map_iter(|chunk| {
                         block_cross_products(w, &z, chunk, seed)
                             .into_iter()
@@ -247,11 +289,16 @@ pub fn global_moran(
             );
             progress(replicates.len());
         }
+        replicates
+    };
+    let (p_permutation, permutation_mean) = if replicates.is_empty() {
+        (f64::NAN, f64::NAN)
+    } else {
         let at_least = replicates.iter().filter(|v| **v >= i).count();
         let at_most = replicates.iter().filter(|v| **v <= i).count();
         (
-            permutation_p(at_least, at_most, permutations, alternative),
-            replicates.iter().sum::<f64>() / permutations as f64,
+            permutation_p(at_least, at_most, replicates.len(), alternative),
+            replicates.iter().sum::<f64>() / replicates.len() as f64,
         )
     };
     Ok(GlobalMoran {
@@ -265,6 +312,7 @@ pub fn global_moran(
         p_randomisation: normal_p(z_randomisation, alternative),
         p_permutation,
         permutation_mean,
+        permutation_values: replicates,
         n: with_neighbours,
         s0: m.s0,
         s1: m.s1,
@@ -288,6 +336,8 @@ pub struct LocalMoran {
     pub p_analytic: Vec<f64>,
     /// Conditional-permutation pseudo p (NaN without permutations).
     pub p_permutation: Vec<f64>,
+    /// Per area, how many permuted Ii drawn (or given) were ≥ and ≤ the observed one.
+    pub permutation_counts: Vec<[u32; 2]>,
     /// The centred value z_i = x_i − x̄.
     pub centred: Vec<f64>,
     /// Its spatial lag Σ_j w_ij z_j.
@@ -318,6 +368,21 @@ pub fn local_moran(
     x: &[f64],
     w: &SparseWeights,
     inference: &Inference,
+    progress: &dyn Fn(usize),
+) -> Result<LocalMoran, MoranError> {
+    local_moran_part(x, w, inference, &Part::default(), progress)
+}
+
+/// [`local_moran`] drawing only the permutations of `part` (or taking their counts from it).
+/// The p-values rest on the permutations drawn or given.
+///
+/// # Errors
+/// As [`local_moran`]; [`MoranError::Counts`] when the given counts are not one per area.
+pub fn local_moran_part(
+    x: &[f64],
+    w: &SparseWeights,
+    inference: &Inference,
+    part: &Part,
     progress: &dyn Fn(usize),
 ) -> Result<LocalMoran, MoranError> {
     let Inference {
@@ -352,23 +417,34 @@ pub fn local_moran(
         .collect();
     let column = |c: usize| rows.iter().map(|r| r[c]).collect::<Vec<f64>>();
     let ii = column(0);
-    let p_permutation = if permutations == 0 || n < 2 {
+    let (counts, counted) = match &part.local {
+        Some(given) if given.len() != n => {
+            return Err(MoranError::Counts {
+                given: given.len(),
+                areas: n,
+            })
+        }
+        Some(given) => (given.clone(), permutations),
+        None if permutations == 0 || n < 2 => (Vec::new(), 0),
+        None => {
+            let drawn = part.drawn.clone().unwrap_or(0..permutations);
+            let stream = mix64(seed ^ LOCAL_STREAM);
+            let len = drawn.len();
+            let counts = local_permutation_counts(&z, m2, w, &ii, (drawn, stream), progress);
+            (counts, len)
+        }
+    };
+    let p_permutation = if counted == 0 {
         vec![f64::NAN; n]
     } else {
-        let stream = mix64(seed ^ LOCAL_STREAM);
-        local_permutation_counts(&z, m2, w, &ii, (permutations, stream), progress)
-            .into_iter()
+        counts
+            .iter()
             .zip(&ii)
-            .map(|([at_least, at_most], value)| {
+            .map(|(&[at_least, at_most], value)| {
                 if value.is_nan() {
                     f64::NAN
                 } else {
-                    permutation_p(
-                        at_least as usize,
-                        at_most as usize,
-                        permutations,
-                        alternative,
-                    )
+                    permutation_p(at_least as usize, at_most as usize, counted, alternative)
                 }
             })
             .collect()
@@ -379,6 +455,7 @@ pub fn local_moran(
         z: column(3),
         p_analytic: column(4),
         p_permutation,
+        permutation_counts: counts,
         lag: column(5),
         local_i: ii,
         centred: z,
@@ -406,26 +483,32 @@ fn ordered_sample(n: usize, depth: usize, draws: &mut Draws) -> Vec<u32> {
 }
 
 /// Per area, how many permuted Ii were ≥ and ≤ the observed one (see [`local_moran`]).
-/// `replicates` is (permutations, random stream). Permutation r draws its sample from its own
-/// stream, so the block size (bounded for memory and for progress reports) changes nothing.
+/// `replicates` is (the permutations drawn, random stream). Permutation r draws its sample from
+/// its own stream, so the block size (bounded for memory and for progress reports) changes
+/// nothing.
 fn local_permutation_counts(
     z: &[f64],
     m2: f64,
     w: &SparseWeights,
     ii: &[f64],
-    (permutations, stream): (usize, u64),
+    (drawn, stream): (Range<usize>, u64),
     progress: &dyn Fn(usize),
 ) -> Vec<[u32; 2]> {
     let n = z.len();
     let most = (0..n).map(|i| w.row(i).0.len()).max().unwrap_or(0);
     let depth = (most + 1).min(n);
+    let permutations = drawn.len();
+    let mut counts = vec![[0u32; 2]; n];
+    if permutations == 0 {
+        return counts;
+    }
     let block = (SHARED_DRAW_VALUES / depth)
         .min(permutations.div_ceil(10))
         .clamp(1, permutations);
-    let mut counts = vec![[0u32; 2]; n];
-    let mut first = 0;
-    while first < permutations {
-        let used = block.min(permutations - first);
+    let mut done = 0;
+    while done < permutations {
+        let first = drawn.start + done;
+        let used = block.min(permutations - done);
         let samples: Vec<Vec<u32>> = (first..first + used)
             .into_par_iter()
             .map(|r| ordered_sample(n, depth, &mut Draws::new(stream, r as u64)))
@@ -499,8 +582,8 @@ fn local_permutation_counts(
                 count[1] += u32::from(ii_r <= ii[i]);
             }
         });
-        first += used;
-        progress(first);
+        done += used;
+        progress(done);
     }
     counts
 }

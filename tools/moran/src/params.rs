@@ -4,6 +4,7 @@ use std::path::PathBuf;
 
 use stance_core::error::{Error, Result};
 use stance_core::host::neighbours::{NeighbourArgs, WeightsSource};
+use stance_core::host::shard::{ShardArgs, Sharding};
 use stance_core::multiple::Adjustment;
 use stance_core::weights::Standardisation;
 
@@ -89,6 +90,11 @@ pub struct MoranParams {
     /// Significance level of the cluster types (on the adjusted local p-values).
     #[arg(long, value_name = "P", default_value_t = 0.05)]
     pub alpha: f64,
+
+    /// Sharding of the permutations over several runs (e.g. a cluster's job array).
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub shards: ShardArgs,
 }
 
 /// What is analysed.
@@ -138,6 +144,8 @@ pub struct Config {
     pub adjustment: Adjustment,
     /// Significance level of the cluster types.
     pub alpha: f64,
+    /// The whole run, one shard of its permutations, or the merge of the shards.
+    pub sharding: Sharding,
 }
 
 impl MoranParams {
@@ -170,6 +178,7 @@ impl MoranParams {
             },
             adjustment: self.adjust,
             alpha: self.alpha,
+            sharding: self.shards.sharding()?,
         })
     }
 

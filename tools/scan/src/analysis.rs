@@ -2,6 +2,7 @@
 //! circles or, with times, cylinders (Kulldorff, Heffernan, Hartman, Assunção & Mostashari 2005), Monte Carlo inference and cluster selection (Kulldorff 1997; Jung, Kulldorff & Klassen 2007;
 //! Jung, Kulldorff & Richard 2010).
 
+use std::ops::Range;
 use std::sync::atomic::AtomicBool;
 
 use crate::clusters::{select, select_cylinders, Cluster, Selection};
@@ -18,7 +19,7 @@ use crate::windows::{grid_centres, merge_locations, WindowLimits};
 pub const BLOCK_BYTES: usize = 256 << 20;
 
 /// Settings shared by every model.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct ScanConfig {
     /// Sides to look for.
     pub direction: Direction,
@@ -32,10 +33,22 @@ pub struct ScanConfig {
     pub max_clusters: usize,
     /// Report only clusters with p ≤ this.
     pub report_p: f64,
-    /// Random labellings.
+    /// Random labellings in all.
     pub replicates: usize,
+    /// The replicates (from 0) this run draws: `0..replicates`, or one shard's block.
+    pub drawn: Range<usize>,
+    /// The maximum ratio of every replicate, gathered from the shards by a merging run (which
+    /// draws none itself).
+    pub given_max: Option<Vec<f64>>,
     /// Run seed.
     pub seed: u64,
+}
+
+impl ScanConfig {
+    /// The maxima the p-values rest on: those gathered from the shards, or those drawn.
+    fn maxima(&self, drawn: Vec<f64>) -> Vec<f64> {
+        self.given_max.clone().unwrap_or(drawn)
+    }
 }
 
 /// The point models.
@@ -115,7 +128,7 @@ pub fn scan_points(
         weight: &weight,
         centres: &centres,
         limits: limits(config, total as f64),
-        replicates: config.replicates,
+        drawn: config.drawn.clone(),
         block_bytes: BLOCK_BYTES,
     };
     let (outcome, class_totals) = match model {
@@ -158,6 +171,7 @@ pub fn scan_points(
             (outcome, totals.to_vec())
         }
     };
+    let replicate_max = config.maxima(outcome.replicate_max);
     let clusters = select(
         &Selection {
             x: &locations.x,
@@ -169,7 +183,7 @@ pub fn scan_points(
             report_p: config.report_p,
         },
         &outcome.best,
-        &outcome.replicate_max,
+        &replicate_max,
     );
     Ok(ScanResult {
         x: locations.x,
@@ -178,7 +192,7 @@ pub fn scan_points(
         weight,
         centres,
         clusters,
-        replicate_max: outcome.replicate_max,
+        replicate_max,
         windows: outcome.windows,
         class_totals,
         total_weight: total as f64,
@@ -215,7 +229,7 @@ pub fn scan_areas(
         weight: expected,
         centres: &centres,
         limits: limits(config, total_expected),
-        replicates: config.replicates,
+        drawn: config.drawn.clone(),
         block_bytes: BLOCK_BYTES,
     };
     let model = Poisson::new(total_cases, config.direction);
@@ -225,6 +239,7 @@ pub fn scan_areas(
         seed: config.seed,
     };
     let outcome = scan(&setup, &model, &labelling, progress, stop)?;
+    let replicate_max = config.maxima(outcome.replicate_max);
     let clusters = select(
         &Selection {
             x,
@@ -236,7 +251,7 @@ pub fn scan_areas(
             report_p: config.report_p,
         },
         &outcome.best,
-        &outcome.replicate_max,
+        &replicate_max,
     );
     Ok(ScanResult {
         x: x.to_vec(),
@@ -245,7 +260,7 @@ pub fn scan_areas(
         weight: expected.to_vec(),
         centres,
         clusters,
-        replicate_max: outcome.replicate_max,
+        replicate_max,
         windows: outcome.windows,
         class_totals: vec![total_cases],
         total_weight: total_expected,
@@ -308,7 +323,7 @@ pub fn scan_space_time(
         max_duration: max_duration.clamp(1, t.max(1)),
         centres: &centres,
         limits: limits(config, total as f64),
-        replicates: config.replicates,
+        drawn: config.drawn.clone(),
         sizing: if model == TimedModel::Permutation {
             Sizing::Expected
         } else {
@@ -323,6 +338,7 @@ pub fn scan_space_time(
         config,
         (progress, stop),
     )?;
+    let replicate_max = config.maxima(outcome.replicate_max);
     let clusters = select_cylinders(
         &Selection {
             x: &locations.x,
@@ -334,7 +350,7 @@ pub fn scan_space_time(
             report_p: config.report_p,
         },
         &outcome.best,
-        &outcome.replicate_max,
+        &replicate_max,
         model == TimedModel::Permutation,
     );
     Ok(ScanResult {
@@ -344,7 +360,7 @@ pub fn scan_space_time(
         weight,
         centres,
         clusters,
-        replicate_max: outcome.replicate_max,
+        replicate_max,
         windows: outcome.windows,
         class_totals,
         total_weight: total as f64,

@@ -8,6 +8,7 @@
 //! Work is parallel over labellings (rayon); each draws from its own seed and keeps an exact
 //! maximum, so results do not depend on the number of threads.
 
+use std::ops::Range;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 use rand::seq::SliceRandom;
@@ -109,7 +110,7 @@ pub enum Sizing {
 }
 
 /// What the space-time scan works on.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct CylinderSetup<'a> {
     /// Location eastings (m).
     pub x: &'a [f64],
@@ -127,8 +128,9 @@ pub struct CylinderSetup<'a> {
     pub centres: &'a [(f64, f64)],
     /// Circle limits.
     pub limits: WindowLimits,
-    /// Random labellings.
-    pub replicates: usize,
+    /// The random labellings (replicates, from 0) this run draws: all of them, or one shard's
+    /// block. Replicate r is labelling r + 1 and draws from its own seed.
+    pub drawn: Range<usize>,
     /// What the model is given as size.
     pub sizing: Sizing,
 }
@@ -231,14 +233,18 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
             .map(|first| setup.max_duration.min(t - first) as u64)
             .sum(),
     };
-    let labellings = setup.replicates + 1;
+    // The observed data first, then the random labellings drawn.
+    let scanned: Vec<usize> = std::iter::once(0)
+        .chain(setup.drawn.clone().map(|r| r + 1))
+        .collect();
+    let labellings = scanned.len();
     let done = AtomicUsize::new(0);
     let cells = setup.x.len() * t * M::WIDTH;
-    let results: Vec<Option<Scanned>> = (0..labellings)
-        .into_par_iter()
+    let results: Vec<Option<Scanned>> = scanned
+        .par_iter()
         .map_init(
             || vec![0u32; cells],
-            |counts, r| {
+            |counts, &r| {
                 if stop.load(Ordering::Relaxed) {
                     return None;
                 }
@@ -256,12 +262,12 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
     }
     let mut outcome = CylinderOutcome {
         best: Vec::new(),
-        replicate_max: Vec::with_capacity(setup.replicates),
+        replicate_max: Vec::with_capacity(labellings - 1),
         windows: 0,
     };
-    for (r, result) in results.into_iter().enumerate() {
+    for (position, result) in results.into_iter().enumerate() {
         let (max, best, windows) = result.ok_or(Stopped)?;
-        if r == 0 {
+        if position == 0 {
             outcome.best = best;
             outcome.windows = windows;
         } else {

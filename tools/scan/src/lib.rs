@@ -20,6 +20,7 @@ use std::time::Instant;
 
 use serde_json::Value;
 use stance_core::error::{Error, Result};
+use stance_core::host::shard::{Partial, ShardRun};
 use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 
 use analysis::{scan_areas, scan_points, scan_space_time, ScanResult, TimedModel, TimedRecords};
@@ -88,14 +89,34 @@ impl Tool for Scan {
     }
 
     fn run(params: &ScanParams, run: &mut Run) -> Result<Value> {
-        let config = params.check(run.common.seed)?;
+        let mut config = params.check(run.common.seed)?;
         run.progress.phase("reading");
         let data = read(&config, run)?;
+        let shards = ShardRun::prepare(
+            &config.sharding,
+            config.scan.replicates,
+            "stance-scan",
+            params,
+            run,
+        )?;
+        config.scan.drawn = shards.drawn();
+        config.scan.given_max = shards
+            .merged()
+            .map(|m| m.per_replicate("max"))
+            .transpose()?;
         run.progress.set(READ_SHARE);
         let started = Instant::now();
         let scanned = scan(&config, run, &data)?;
         let scan_s = started.elapsed().as_secs_f64();
         run.check_interrupted()?;
+        // A shard writes the largest ratio of each of its replicates, nothing else.
+        if let Some(summary) = shards.write(run, || {
+            let mut partial = Partial::default();
+            partial.values("max", &scanned.replicate_max);
+            Ok(partial)
+        })? {
+            return Ok(summary);
+        }
         run.progress.phase("writing");
         run.progress.set(SCAN_END);
         let rows: Vec<ClusterRow> = scanned
@@ -128,7 +149,7 @@ fn read(config: &Config, run: &mut Run) -> Result<Data> {
 /// data and the relabellings are scanned together, so the count is of replicate-equivalents
 /// done), as phase "windows" otherwise.
 fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
-    let replicates = config.scan.replicates as u64;
+    let replicates = config.scan.drawn.len() as u64;
     run.log(format!(
         "stance-scan: {} model, {} {} on {} locations, {} replicates",
         config.model.name(),

@@ -1,6 +1,7 @@
 //! The parameters of stance-scan and their check into a validated [`Config`].
 
 use stance_core::error::{Error, Result};
+use stance_core::host::shard::{ShardArgs, Sharding};
 use stance_core::stance::{ClassMap, Stance};
 use stance_core::time::Period;
 
@@ -151,6 +152,11 @@ pub struct ScanParams {
     /// Poisson: field of expected cases (rescaled to sum to the observed total).
     #[arg(long, value_name = "FIELD")]
     pub expected_field: Option<String>,
+
+    /// Sharding of the replicates over several runs (e.g. a cluster's job array).
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub shards: ShardArgs,
 }
 
 /// What the records of a point scan are.
@@ -235,6 +241,8 @@ pub struct Config {
     pub scan: ScanConfig,
     /// Space-time scans: the time.
     pub time: Option<TimeConfig>,
+    /// The whole run, one shard of its replicates, or the merge of the shards.
+    pub sharding: Sharding,
 }
 
 impl ScanParams {
@@ -264,9 +272,12 @@ impl ScanParams {
                 max_clusters: self.max_clusters,
                 report_p: self.report_p,
                 replicates: self.replicates,
+                drawn: 0..self.replicates,
+                given_max: None,
                 seed,
             },
             time,
+            sharding: self.shards.sharding()?,
         })
     }
 

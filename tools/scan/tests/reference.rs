@@ -23,6 +23,8 @@ fn config(direction: Direction, max_share: f64, replicates: usize, seed: u64) ->
         max_clusters: 10,
         report_p: 1.0,
         replicates,
+        drawn: 0..replicates,
+        given_max: None,
         seed,
     }
 }

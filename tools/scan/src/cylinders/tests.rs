@@ -26,6 +26,8 @@ fn config(max_share: f64, replicates: usize) -> ScanConfig {
         max_clusters: 5,
         report_p: 1.0,
         replicates,
+        drawn: 0..replicates,
+        given_max: None,
         seed: 7,
     }
 }

@@ -11,6 +11,7 @@
 //! holds bytes when none of its counts can exceed 255, else u16 or u32. Neither changes a
 //! result: neighbourhoods, their ties and the sums along them are those of the input order.
 
+use std::ops::Range;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 use rand::seq::SliceRandom;
@@ -121,7 +122,7 @@ impl Labelling for AreaCases<'_> {
 }
 
 /// What the scan works on.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct ScanSetup<'a> {
     /// Location eastings (m).
     pub x: &'a [f64],
@@ -134,8 +135,9 @@ pub struct ScanSetup<'a> {
     pub centres: &'a [(f64, f64)],
     /// Window limits.
     pub limits: WindowLimits,
-    /// Random labellings (replicates).
-    pub replicates: usize,
+    /// The random labellings (replicates, from 0) this run draws: all of them, or one shard's
+    /// block. Replicate r is labelling r + 1 and draws from its own seed.
+    pub drawn: Range<usize>,
     /// Memory for the counts of one block of labellings (bytes).
     pub block_bytes: usize,
 }
@@ -164,7 +166,8 @@ pub struct CentreBest {
 pub struct ScanOutcome {
     /// Per centre, its best observed window (None when no window departs in the direction).
     pub best: Vec<Option<CentreBest>>,
-    /// Per random labelling, the maximum ratio over all windows.
+    /// Per random labelling drawn (`ScanSetup::drawn`, in order), the maximum ratio over all
+    /// windows.
     pub replicate_max: Vec<f64>,
     /// Windows per labelling.
     pub windows: u64,
@@ -277,7 +280,11 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
     kernels: Kernels,
 ) -> Result<ScanOutcome, Stopped> {
     let width = M::WIDTH;
-    let labellings = setup.replicates + 1;
+    // The observed data first, then the random labellings drawn.
+    let scanned: Vec<usize> = std::iter::once(0)
+        .chain(setup.drawn.clone().map(|r| r + 1))
+        .collect();
+    let labellings = scanned.len();
     let per_labelling =
         ((layout.narrow_at.len() + layout.wide_at.len() * std::mem::size_of::<W>()) * width).max(1);
     let block = (setup.block_bytes / per_labelling).clamp(1, labellings);
@@ -285,7 +292,7 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
     let centre_order = hilbert_order(setup.centres);
     let mut outcome = ScanOutcome {
         best: vec![None; setup.centres.len()],
-        replicate_max: vec![0.0; setup.replicates],
+        replicate_max: vec![0.0; labellings - 1],
         windows: 0,
     };
     let blocks = labellings.div_ceil(block);
@@ -294,7 +301,8 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
     for b in 0..blocks {
         let first = b * block;
         let used = block.min(labellings - first);
-        let (narrow, wide) = block_counts::<L, W>(labelling, layout, width, first, used);
+        let (narrow, wide) =
+            block_counts::<L, W>(labelling, layout, width, &scanned[first..first + used]);
         if stop.load(Ordering::Relaxed) {
             return Err(Stopped);
         }
@@ -349,9 +357,9 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
         }
         let (max, best, windows) = merged;
         for (r, value) in max.into_iter().enumerate() {
-            let labelling_index = first + r;
-            if labelling_index > 0 {
-                outcome.replicate_max[labelling_index - 1] = value;
+            let position = first + r;
+            if position > 0 {
+                outcome.replicate_max[position - 1] = value;
             }
         }
         if first == 0 {
@@ -393,14 +401,15 @@ impl<W> Table<'_, W> {
     }
 }
 
-/// Counts of labellings `first…first+used`, as narrow and wide rows (`[row][labelling][k]`).
+/// Counts of the labellings `block` (labelling numbers), as narrow and wide rows
+/// (`[row][labelling][k]`).
 fn block_counts<L: Labelling, W: Count>(
     labelling: &L,
     layout: &Layout,
     width: usize,
-    first: usize,
-    used: usize,
+    block: &[usize],
 ) -> (Vec<u8>, Vec<W>) {
+    let used = block.len();
     let locations = layout.row_of.len();
     let stride = used * width;
     let mut narrow = vec![0u8; layout.narrow_at.len() * stride];
@@ -414,7 +423,7 @@ fn block_counts<L: Labelling, W: Count>(
             .into_par_iter()
             .map(|r| {
                 let mut column = vec![0u32; locations * width];
-                labelling.fill(first + r, &mut column);
+                labelling.fill(block[r], &mut column);
                 column
             })
             .collect();

@@ -73,7 +73,7 @@ fn pruned_maxima_equal_brute_force_for_every_labelling_and_thread_count() {
                 max_weight: share * 300.0,
                 max_radius_m: f64::INFINITY,
             },
-            replicates: 19,
+            drawn: 0..19,
             // Small blocks force several passes.
             block_bytes: 300 * 4 * 6,
         };
@@ -124,7 +124,7 @@ fn pruned_maxima_equal_brute_force_for_every_labelling_and_thread_count() {
             max_weight: 150.0,
             max_radius_m: 8.0,
         },
-        replicates: 9,
+        drawn: 0..9,
         block_bytes: 1 << 20,
     };
     let mut totals = [0u64; 3];
@@ -158,10 +158,10 @@ fn straightforward<M: WindowModel, L: Labelling>(
     let mut hood = Neighbourhood::default();
     let mut out = ScanOutcome {
         best: vec![None; setup.centres.len()],
-        replicate_max: vec![0.0; setup.replicates],
+        replicate_max: vec![0.0; setup.drawn.len()],
         windows: 0,
     };
-    for r in 0..=setup.replicates {
+    for r in std::iter::once(0).chain(setup.drawn.clone().map(|r| r + 1)) {
         let mut counts = vec![0u32; setup.x.len() * width];
         labelling.fill(r, &mut counts);
         for (centre, &(cx, cy)) in setup.centres.iter().enumerate() {
@@ -178,7 +178,8 @@ fn straightforward<M: WindowModel, L: Labelling>(
                 }
                 let (llr, side) = model.llr(&model.window(size), &inside[..width]);
                 if r > 0 {
-                    out.replicate_max[r - 1] = out.replicate_max[r - 1].max(llr);
+                    let at = r - 1 - setup.drawn.start;
+                    out.replicate_max[at] = out.replicate_max[at].max(llr);
                     continue;
                 }
                 out.windows += 1;
@@ -226,6 +227,20 @@ fn assert_same_as_straightforward<M: WindowModel, L: Labelling>(
             assert_eq!(got.best, expected.best, "{kernels:?}");
             assert_eq!(got.windows, expected.windows);
         }
+    }
+    // A shard's block of the replicates (as `--shard` draws it): the same maxima as the
+    // whole run's, and the same observed windows.
+    let total = setup.drawn.len();
+    for (index, count) in [(1, 3), (2, 3), (3, 3)] {
+        let block = stance_core::host::shard::block(index, count, total);
+        let part = ScanSetup {
+            drawn: setup.drawn.start + block.start..setup.drawn.start + block.end,
+            ..setup.clone()
+        };
+        let got =
+            scan_with(&part, model, labelling, &|_| {}, &stop, Kernels::detect()).expect("scan");
+        assert_eq!(got.replicate_max, expected.replicate_max[block.clone()]);
+        assert_eq!(got.best, expected.best);
     }
 }
 
@@ -296,7 +311,7 @@ fn curve_order_and_narrow_rows_give_the_straightforward_results() {
                 max_weight: share * total,
                 max_radius_m,
             },
-            replicates: 15,
+            drawn: 0..15,
             block_bytes,
         };
         let model = Bernoulli::new(of_point.len() as u64, cases, direction);
@@ -312,7 +327,7 @@ fn curve_order_and_narrow_rows_give_the_straightforward_results() {
             max_weight: 0.25 * total,
             max_radius_m: f64::INFINITY,
         },
-        replicates: 7,
+        drawn: 0..7,
         block_bytes: 1 << 20,
     };
     let mut totals = [0u64; 3];
@@ -384,7 +399,7 @@ fn poisson_areas_give_the_straightforward_results_with_any_row_width() {
                 max_weight: 0.2 * total_cases as f64,
                 max_radius_m: f64::INFINITY,
             },
-            replicates: 5,
+            drawn: 0..5,
             block_bytes: 1 << 20,
         };
         let model = Poisson::new(total_cases, Direction::Both);
