@@ -3,9 +3,10 @@
 # runs with `stance plan-batch`, submits the generated job array and merge job, waits for them,
 # and checks that the merged outputs are bit-identical to the same run on one machine. Then
 # removes one shard: the merge job fails naming it; rerunning that shard and the merge
-# completes the run. Tools: stance-density (tolerance and type-probability relabellings) on an
-# invented scenario of 3,000 records, and stance-local (Gi* permutations) on the North Carolina
-# SIDS counties (tests/reference/data/nc.gpkg, from R spdep).
+# completes the run. Tools: stance-density (tolerance and type-probability relabellings) and
+# stance-scan (ordinal model, 99 replicates) on an invented scenario of 3,000 records, and
+# stance-local (Gi* permutations) and stance-moran (global and local, 999 permutations) on the
+# North Carolina SIDS counties (tests/reference/data/nc.gpkg, from R spdep).
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 STANCE=$(realpath "${STANCE:-target/debug/stance}")
@@ -74,4 +75,7 @@ check density density --input scenario.gpkg --layer veldmark_records --cell-m 15
   --type-probabilities --permutations 39 --seed 3 --name d
 check local local --input nc.gpkg --statistic gi-star --field SID79 --permutations 999 \
   --seed 17 --name hot
+check scan scan --input scenario.gpkg --layer veldmark_records --model ordinal --toward both \
+  --max-radius-m 12000 --replicates 99 --seed 4 --name s
+check moran moran --input nc.gpkg --field SID79 --permutations 999 --seed 21 --name m
 echo "cluster test: passed"
