@@ -479,3 +479,42 @@ fn bad_inputs_are_named_and_write_nothing() {
     assert!(summary["results"]["clusters"][0]["p_monte_carlo"].is_null());
     assert_eq!(summary["results"]["clusters"][0]["replicates"], 0);
 }
+
+/// The scan estimates its peak memory before working: the estimate is in the summary
+/// (`memory_estimate_mb`, which `stance plan-batch` reads), covers at least the fixed part and the
+/// records, and a `--max-memory-mb` below it refuses the run in one line naming the option, before
+/// anything is written.
+#[test]
+fn scan_memory_estimate_is_reported_and_enforced() {
+    let dir = out_dir("scan_memory");
+    synth(&dir, "in.gpkg", 3000, 3);
+    let args = |limit: &'static str| {
+        vec![
+            "--input",
+            "in.gpkg",
+            "--layer",
+            "veldmark_records",
+            "--case-class",
+            "oppose",
+            "--replicates",
+            "9",
+            "--output",
+            "out.gpkg",
+            "--overwrite",
+            "--max-memory-mb",
+            limit,
+            "-q",
+        ]
+    };
+    let summary = run_in(&dir, "stance-scan", &args("100000")).ok();
+    let estimate = summary["memory_estimate_mb"]
+        .as_u64()
+        .expect("memory_estimate_mb");
+    // 64 MiB fixed + 48 bytes per record for 3,000 records, plus the counts (a few kB).
+    assert!((64..80).contains(&estimate), "{estimate} MiB");
+    let _ = std::fs::remove_file(dir.join("small.gpkg"));
+    let mut small = args("10");
+    small[9] = "small.gpkg";
+    run_in(&dir, "stance-scan", &small).usage_error(&["--max-memory-mb", "MiB", "locations"]);
+    assert!(!dir.join("small.gpkg").exists());
+}

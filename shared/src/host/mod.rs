@@ -247,6 +247,7 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
         interrupted: Interrupt(interrupted),
         extra_inputs: Vec::new(),
         clock,
+        memory_estimate: std::sync::atomic::AtomicU64::new(0),
     };
     run.progress.phase("reading");
     let results = T::run(params, &mut run)?;
@@ -279,6 +280,10 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
         results: results.clone(),
     };
     let verbose = run.common.verbose && !run.common.quiet;
+    let memory_estimate_mb = match run.memory_estimate.load(Ordering::Relaxed) {
+        0 => None,
+        bytes => Some(bytes.div_ceil(1 << 20)),
+    };
     let Run {
         staging,
         interrupted,
@@ -293,14 +298,18 @@ fn execute<T: Tool>(common: CommonArgs, params: &T::Params) -> Result<Value> {
             clock.elapsed().as_secs_f64()
         ));
     }
-    Ok(json!({
+    let mut summary = json!({
         "tool": provenance.tool,
         "version": provenance.version,
         "output": provenance.parameters.get("output"),
         "layers": written,
         "results": results,
         "run_time_s": (clock.elapsed().as_secs_f64() * 1000.0).round() / 1000.0,
-    }))
+    });
+    if let Some(mb) = memory_estimate_mb {
+        summary["memory_estimate_mb"] = mb.into();
+    }
+    Ok(summary)
 }
 
 /// An input file with its checksum. The SHA-256 is computed on a second thread while the tool
@@ -381,6 +390,7 @@ pub struct Run {
     staging: Staging,
     interrupted: Interrupt,
     clock: Instant,
+    memory_estimate: std::sync::atomic::AtomicU64,
 }
 
 /// Set once SIGINT or SIGTERM arrives; long loops check it and roll back.
@@ -531,6 +541,10 @@ impl Run {
     /// [`Error::BadArgument`] naming `--max-memory-mb`, the estimate and the advice.
     pub fn guard_memory(&self, estimate_bytes: u64, what: &str, advice: &str) -> Result<()> {
         let limit = self.memory_limit_bytes();
+        // The largest estimate of the run goes into its summary (`memory_estimate_mb`), where
+        // `stance plan-batch` reads it.
+        self.memory_estimate
+            .fetch_max(estimate_bytes, Ordering::Relaxed);
         if estimate_bytes > limit {
             return Err(Error::argument(
                 "--max-memory-mb",

@@ -40,6 +40,8 @@ pub struct ScanConfig {
     /// The maximum ratio of every replicate, gathered from the shards by a merging run (which
     /// draws none itself).
     pub given_max: Option<Vec<f64>>,
+    /// Whether the observed data are scanned (not in a shard, which only draws replicates).
+    pub observed: bool,
     /// Run seed.
     pub seed: u64,
 }
@@ -129,6 +131,7 @@ pub fn scan_points(
         centres: &centres,
         limits: limits(config, total as f64),
         drawn: config.drawn.clone(),
+        observed: config.observed,
         block_bytes: BLOCK_BYTES,
     };
     let (outcome, class_totals) = match model {
@@ -230,6 +233,7 @@ pub fn scan_areas(
         centres: &centres,
         limits: limits(config, total_expected),
         drawn: config.drawn.clone(),
+        observed: config.observed,
         block_bytes: BLOCK_BYTES,
     };
     let model = Poisson::new(total_cases, config.direction);
@@ -324,6 +328,7 @@ pub fn scan_space_time(
         centres: &centres,
         limits: limits(config, total as f64),
         drawn: config.drawn.clone(),
+        observed: config.observed,
         sizing: if model == TimedModel::Permutation {
             Sizing::Expected
         } else {

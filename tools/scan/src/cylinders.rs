@@ -131,6 +131,8 @@ pub struct CylinderSetup<'a> {
     /// The random labellings (replicates, from 0) this run draws: all of them, or one shard's
     /// block. Replicate r is labelling r + 1 and draws from its own seed.
     pub drawn: Range<usize>,
+    /// Whether the observed data are scanned too (not in a shard, which only draws).
+    pub observed: bool,
     /// What the model is given as size.
     pub sizing: Sizing,
 }
@@ -233,8 +235,8 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
             .map(|first| setup.max_duration.min(t - first) as u64)
             .sum(),
     };
-    // The observed data first, then the random labellings drawn.
-    let scanned: Vec<usize> = std::iter::once(0)
+    // The observed data first (when asked), then the random labellings drawn.
+    let scanned: Vec<usize> = (usize::from(!setup.observed)..1)
         .chain(setup.drawn.clone().map(|r| r + 1))
         .collect();
     let labellings = scanned.len();
@@ -262,12 +264,12 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
     }
     let mut outcome = CylinderOutcome {
         best: Vec::new(),
-        replicate_max: Vec::with_capacity(labellings - 1),
+        replicate_max: Vec::with_capacity(labellings),
         windows: 0,
     };
-    for (position, result) in results.into_iter().enumerate() {
+    for (&r, result) in scanned.iter().zip(results) {
         let (max, best, windows) = result.ok_or(Stopped)?;
-        if position == 0 {
+        if r == 0 {
             outcome.best = best;
             outcome.windows = windows;
         } else {

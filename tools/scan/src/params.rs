@@ -274,6 +274,7 @@ impl ScanParams {
                 replicates: self.replicates,
                 drawn: 0..self.replicates,
                 given_max: None,
+                observed: true,
                 seed,
             },
             time,

@@ -25,6 +25,7 @@ fn config(direction: Direction, max_share: f64, replicates: usize, seed: u64) ->
         replicates,
         drawn: 0..replicates,
         given_max: None,
+        observed: true,
         seed,
     }
 }

@@ -28,6 +28,7 @@ fn config(max_share: f64, replicates: usize) -> ScanConfig {
         replicates,
         drawn: 0..replicates,
         given_max: None,
+        observed: true,
         seed: 7,
     }
 }

@@ -138,6 +138,8 @@ pub struct ScanSetup<'a> {
     /// The random labellings (replicates, from 0) this run draws: all of them, or one shard's
     /// block. Replicate r is labelling r + 1 and draws from its own seed.
     pub drawn: Range<usize>,
+    /// Whether the observed data are scanned too (not in a shard, which only draws).
+    pub observed: bool,
     /// Memory for the counts of one block of labellings (bytes).
     pub block_bytes: usize,
 }
@@ -280,8 +282,9 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
     kernels: Kernels,
 ) -> Result<ScanOutcome, Stopped> {
     let width = M::WIDTH;
-    // The observed data first, then the random labellings drawn.
-    let scanned: Vec<usize> = std::iter::once(0)
+    // The observed data first (when asked), then the random labellings drawn.
+    let observed = usize::from(setup.observed);
+    let scanned: Vec<usize> = (1 - observed..1)
         .chain(setup.drawn.clone().map(|r| r + 1))
         .collect();
     let labellings = scanned.len();
@@ -292,7 +295,7 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
     let centre_order = hilbert_order(setup.centres);
     let mut outcome = ScanOutcome {
         best: vec![None; setup.centres.len()],
-        replicate_max: vec![0.0; labellings - 1],
+        replicate_max: vec![0.0; labellings - observed],
         windows: 0,
     };
     let blocks = labellings.div_ceil(block);
@@ -311,7 +314,7 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
             wide: &wide,
             row_of: &layout.row_of,
             used,
-            has_observed: first == 0,
+            has_observed: first == 0 && setup.observed,
             kernels,
         };
         let merged = centre_order
@@ -358,11 +361,11 @@ fn scan_stored<M: WindowModel, L: Labelling, W: Count>(
         let (max, best, windows) = merged;
         for (r, value) in max.into_iter().enumerate() {
             let position = first + r;
-            if position > 0 {
-                outcome.replicate_max[position - 1] = value;
+            if position >= observed {
+                outcome.replicate_max[position - observed] = value;
             }
         }
-        if first == 0 {
+        if first == 0 && setup.observed {
             outcome.windows = windows;
             for (centre, found) in best {
                 outcome.best[centre] = Some(found);

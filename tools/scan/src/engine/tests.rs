@@ -74,6 +74,7 @@ fn pruned_maxima_equal_brute_force_for_every_labelling_and_thread_count() {
                 max_radius_m: f64::INFINITY,
             },
             drawn: 0..19,
+            observed: true,
             // Small blocks force several passes.
             block_bytes: 300 * 4 * 6,
         };
@@ -125,6 +126,7 @@ fn pruned_maxima_equal_brute_force_for_every_labelling_and_thread_count() {
             max_radius_m: 8.0,
         },
         drawn: 0..9,
+        observed: true,
         block_bytes: 1 << 20,
     };
     let mut totals = [0u64; 3];
@@ -312,6 +314,7 @@ fn curve_order_and_narrow_rows_give_the_straightforward_results() {
                 max_radius_m,
             },
             drawn: 0..15,
+            observed: true,
             block_bytes,
         };
         let model = Bernoulli::new(of_point.len() as u64, cases, direction);
@@ -328,6 +331,7 @@ fn curve_order_and_narrow_rows_give_the_straightforward_results() {
             max_radius_m: f64::INFINITY,
         },
         drawn: 0..7,
+        observed: true,
         block_bytes: 1 << 20,
     };
     let mut totals = [0u64; 3];
@@ -400,6 +404,7 @@ fn poisson_areas_give_the_straightforward_results_with_any_row_width() {
                 max_radius_m: f64::INFINITY,
             },
             drawn: 0..5,
+            observed: true,
             block_bytes: 1 << 20,
         };
         let model = Poisson::new(total_cases, Direction::Both);
