@@ -1,9 +1,9 @@
 //! The run's share of the permutations: all of them, one shard's block (written as a partial
 //! result instead of the outputs), or every shard's counts merged.
 
-use serde_json::{json, Value};
+use serde_json::Value;
 use stance_core::error::Result;
-use stance_core::host::shard::{self, Partial, Sharding};
+use stance_core::host::shard::{Partial, ShardRun};
 use stance_core::host::Run;
 use stance_core::montecarlo::mix64;
 
@@ -17,9 +17,8 @@ const STREAM: u64 = 0x4C4F_4341_4C5F_4A43;
 /// What this run draws, gathers or writes.
 #[derive(Debug)]
 pub struct Shards {
-    sharding: Sharding,
+    run: ShardRun,
     permutations: usize,
-    fingerprint: Value,
     given: Option<Vec<Counts>>,
 }
 
@@ -29,30 +28,33 @@ pub struct Shards {
 /// # Errors
 /// A missing, duplicated or mismatched shard, named.
 pub fn prepare(params: &LocalParams, config: &Config, run: &mut Run) -> Result<Shards> {
-    let mut shards = Shards {
-        sharding: config.sharding.clone(),
-        permutations: config.permutations,
-        fingerprint: Value::Null,
-        given: None,
+    let prepared = ShardRun::prepare(
+        &config.sharding,
+        config.permutations,
+        "stance-local",
+        params,
+        run,
+    )?;
+    let given = match prepared.merged() {
+        Some(merged) => {
+            let upper = merged.sum("upper")?;
+            let lower = merged.sum("lower")?;
+            Some(upper.into_iter().zip(lower).map(|(u, l)| [u, l]).collect())
+        }
+        None => None,
     };
-    if shards.sharding == Sharding::Whole {
-        return Ok(shards);
-    }
-    shards.fingerprint = shard::fingerprint(run, "stance-local", params)?;
-    if let Sharding::Merge(files) = &shards.sharding {
-        let merged = shard::merge(files, &run.name, config.permutations, &shards.fingerprint)?;
-        let upper = merged.sum("upper")?;
-        let lower = merged.sum("lower")?;
-        shards.given = Some(upper.into_iter().zip(lower).map(|(u, l)| [u, l]).collect());
-    }
-    Ok(shards)
+    Ok(Shards {
+        run: prepared,
+        permutations: config.permutations,
+        given,
+    })
 }
 
 impl Shards {
     /// The permutations of the run.
     pub fn replicates(&self, config: &Config) -> Replicates {
         Replicates {
-            drawn: self.sharding.replicates(self.permutations),
+            drawn: self.run.drawn(),
             given: self.given.clone(),
             ..Replicates::all(self.permutations, mix64(config.seed ^ STREAM))
         }
@@ -64,28 +66,16 @@ impl Shards {
     /// # Errors
     /// Staging failures.
     pub fn write_shard(&self, stats: &Stats, run: &mut Run) -> Result<Option<Value>> {
-        let Sharding::Shard { index, count } = self.sharding else {
-            return Ok(None);
-        };
-        let counts = match stats {
-            Stats::Joins { local, .. } => &local.counts,
-            Stats::Getis { local, .. } => &local.counts,
-        };
-        let column = |k: usize| counts.iter().map(|c| c[k]).collect::<Vec<u32>>();
-        let mut partial = Partial::default();
-        partial.counts("upper", &column(0));
-        partial.counts("lower", &column(1));
-        let entry = shard::write(
-            run,
-            (index, count),
-            self.permutations,
-            self.fingerprint.clone(),
-            &partial,
-        )?;
-        run.log(format!(
-            "shard {index} of {count}: permutations {} written to {}",
-            entry["replicates"], entry["layer"]
-        ));
-        Ok(Some(json!({ "shard": entry })))
+        self.run.write(run, || {
+            let counts = match stats {
+                Stats::Joins { local, .. } => &local.counts,
+                Stats::Getis { local, .. } => &local.counts,
+            };
+            let column = |k: usize| counts.iter().map(|c| c[k]).collect::<Vec<u32>>();
+            let mut partial = Partial::default();
+            partial.counts("upper", &column(0));
+            partial.counts("lower", &column(1));
+            Ok(partial)
+        })
     }
 }
