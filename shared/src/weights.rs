@@ -107,21 +107,51 @@ impl SparseWeights {
         let n = self.len();
         let mut row_sum = vec![0.0; n];
         let mut column_sum = vec![0.0; n];
-        let mut lookup: HashMap<(u32, u32), f64> = HashMap::with_capacity(self.weights.len());
         for (i, row) in row_sum.iter_mut().enumerate() {
             let (js, ws) = self.row(i);
             for (j, w) in js.iter().zip(ws) {
                 *row += w;
                 column_sum[*j as usize] += w;
-                lookup.insert((i as u32, *j), *w);
             }
         }
         let s0: f64 = row_sum.iter().sum();
+        // The links by target: for each area i, the (source j, w_ji) of every link j → i, in
+        // source order (rows are visited in order), so w_ji is found by binary search; of
+        // repeated links the last one counts, as a map filled row by row would keep.
+        let mut starts = vec![0usize; n + 1];
+        for i in 0..n {
+            for j in self.row(i).0 {
+                starts[*j as usize + 1] += 1;
+            }
+        }
+        for i in 0..n {
+            starts[i + 1] += starts[i];
+        }
+        let mut fill = starts.clone();
+        let mut sources = vec![0u32; starts[n]];
+        let mut incoming = vec![0.0; starts[n]];
+        for i in 0..n {
+            let (js, ws) = self.row(i);
+            for (j, w) in js.iter().zip(ws) {
+                let at = &mut fill[*j as usize];
+                sources[*at] = i as u32;
+                incoming[*at] = *w;
+                *at += 1;
+            }
+        }
+        let weight_from = |j: u32, i: usize| -> f64 {
+            let range = starts[i]..starts[i + 1];
+            let after = sources[range.clone()].partition_point(|&s| s <= j);
+            match after.checked_sub(1) {
+                Some(k) if sources[range.start + k] == j => incoming[range.start + k],
+                _ => 0.0,
+            }
+        };
         let mut s1 = 0.0;
         for i in 0..n {
             let (js, ws) = self.row(i);
             for (j, w) in js.iter().zip(ws) {
-                let back = lookup.get(&(*j, i as u32)).copied().unwrap_or(0.0);
+                let back = weight_from(*j, i);
                 s1 += (w + back).powi(2);
                 if back == 0.0 {
                     // The pair (j, i) is absent from row j, so its term (w_ji + w_ij)² is counted here.
@@ -795,6 +825,69 @@ mod tests {
             lists: vec![vec![1], vec![]],
         };
         assert_relative_eq!(a.standardise(Standardisation::Binary).moments().s1, 1.0);
+    }
+
+    /// S1 as first written: w_ji looked up in a map filled row by row (the last of repeated
+    /// links wins), summed in row order.
+    fn s1_by_map(w: &SparseWeights) -> f64 {
+        let mut lookup = HashMap::new();
+        for i in 0..w.len() {
+            let (js, ws) = w.row(i);
+            for (j, v) in js.iter().zip(ws) {
+                lookup.insert((i as u32, *j), *v);
+            }
+        }
+        let mut s1 = 0.0;
+        for i in 0..w.len() {
+            let (js, ws) = w.row(i);
+            for (j, v) in js.iter().zip(ws) {
+                let back: f64 = lookup.get(&(*j, i as u32)).copied().unwrap_or(0.0);
+                s1 += (v + back).powi(2);
+                if back == 0.0 {
+                    s1 += (v + back).powi(2);
+                }
+            }
+        }
+        s1 * 0.5
+    }
+
+    #[test]
+    fn s1_equals_the_map_lookup_bit_for_bit() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
+        let n = 300;
+        // Asymmetric links, unsorted rows, some repeated, some zero weights.
+        let mut offsets = vec![0];
+        let (mut neighbours, mut weights) = (Vec::new(), Vec::new());
+        for _ in 0..n {
+            for _ in 0..rng.random_range(0..12) {
+                neighbours.push(rng.random_range(0..n as u32));
+                weights.push(if rng.random_bool(0.1) {
+                    0.0
+                } else {
+                    rng.random_range(0.01..2.0)
+                });
+            }
+            offsets.push(neighbours.len());
+        }
+        let w = SparseWeights {
+            offsets,
+            neighbours,
+            weights,
+        };
+        assert_eq!(w.moments().s1.to_bits(), s1_by_map(&w).to_bits());
+        let queen = Neighbours {
+            lists: (0..n as u32)
+                .map(|i| {
+                    [i.wrapping_sub(1), i + 1]
+                        .into_iter()
+                        .filter(|&j| j < n as u32)
+                        .collect()
+                })
+                .collect(),
+        }
+        .standardise(Standardisation::Row);
+        assert_eq!(queen.moments().s1.to_bits(), s1_by_map(&queen).to_bits());
     }
 
     #[test]
