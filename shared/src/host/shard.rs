@@ -650,6 +650,12 @@ fn check_record(split: Split, found: &Found, total: usize, fingerprint: &Value) 
             ),
         ));
     }
+    if let Some(difference) = first_difference(&entry["fingerprint"], fingerprint, "", word) {
+        return Err(Error::argument(
+            split.merge_option,
+            format!("{origin} was written under other options or inputs: {difference}"),
+        ));
+    }
     let expected = block(found.index, found.count, total);
     let first = entry[format!("first_{unit}")]
         .as_u64()
@@ -658,18 +664,10 @@ fn check_record(split: Split, found: &Found, total: usize, fingerprint: &Value) 
         .as_u64()
         .map(|v| v as usize);
     if written_total != Some(total) || first != Some(expected.start) {
+        let written = written_total.map_or("an unknown number".to_owned(), |t| t.to_string());
         return Err(Error::argument(
             split.merge_option,
-            format!(
-                "{origin} holds {unit}s of a run of {} in all; this run has {total}",
-                written_total.map_or("an unknown number".to_owned(), |t| t.to_string())
-            ),
-        ));
-    }
-    if let Some(difference) = first_difference(&entry["fingerprint"], fingerprint, "", word) {
-        return Err(Error::argument(
-            split.merge_option,
-            format!("{origin} was written under other options or inputs: {difference}"),
+            format!("{origin} holds {unit}s of a run of {written} in all; this run has {total}"),
         ));
     }
     Ok(())

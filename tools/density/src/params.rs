@@ -122,7 +122,10 @@ pub struct DensityParams {
     #[arg(long, value_name = "P", default_value_t = 0.05)]
     pub alpha: f64,
 
-    /// How kernel sums are computed.
+    /// How kernel sums are computed. Tiles (--tile, --merge-tiles) of direct sums merge into
+    /// the surfaces of a run on one machine bit for bit; with the FFT each tile transforms its
+    /// own band, which rounds differently: every merged cell is within 1e-6 of the surface's
+    /// largest absolute value, with nodata in the same cells.
     #[arg(long, value_enum, value_name = "METHOD", default_value_t = MethodChoice::Auto)]
     pub method: MethodChoice,
 
@@ -139,12 +142,10 @@ pub struct DensityParams {
     #[serde(flatten)]
     pub shards: ShardArgs,
 
-    /// Tiling of the grid over several runs (bands of rows, each computed from the points
-    /// within the kernel's reach), merged into one coverage. With --method direct the merged
-    /// surfaces equal a run on one machine bit for bit; with the FFT every cell is within
-    /// 1e-9 of the surface's largest absolute value before the Float32 rounding (each tile's
-    /// transform rounds differently). Needs --permutations 0; not with --shard, --adaptive,
-    /// --edge-correct or --type-probabilities.
+    /// Tiling of the grid over several runs (bands of grid rows, each computed from the
+    /// points within the kernel's reach), merged into one coverage (see --method for how
+    /// closely). Needs --permutations 0; not with --shard, --adaptive, --edge-correct or
+    /// --type-probabilities.
     #[command(flatten)]
     #[serde(flatten)]
     pub tiles: TileArgs,
