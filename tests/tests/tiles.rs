@@ -34,7 +34,12 @@ fn call(dir: &Path, args: &[String]) -> stance_tests::Ran {
 
 /// Runs the N tiles of `base` into `<sub>/`, checking that each writes only its tile layer,
 /// then merges them; returns the merged file.
-fn tiles_then_merge(dir: &Path, base: &dyn Fn(&str) -> Vec<String>, sub: &str, n: usize) -> PathBuf {
+fn tiles_then_merge(
+    dir: &Path,
+    base: &dyn Fn(&str) -> Vec<String>,
+    sub: &str,
+    n: usize,
+) -> PathBuf {
     let _ = std::fs::remove_dir_all(dir.join(sub));
     std::fs::create_dir_all(dir.join(sub)).expect("dir");
     for k in 1..=n {
@@ -223,8 +228,16 @@ fn missing_duplicated_and_mismatched_tiles_are_refused_by_name() {
     for k in [1, 3] {
         tile(k, &format!("t/{k}.gpkg"), &[]).ok();
     }
-    merge(&[]).usage_error(&["--merge-tiles", "tile 2 of 3 is missing", "d_tile_2_of_3", "--tile 2/3"]);
-    assert!(!dir.join("merged.gpkg").exists(), "a refused merge wrote its output");
+    merge(&[]).usage_error(&[
+        "--merge-tiles",
+        "tile 2 of 3 is missing",
+        "d_tile_2_of_3",
+        "--tile 2/3",
+    ]);
+    assert!(
+        !dir.join("merged.gpkg").exists(),
+        "a refused merge wrote its output"
+    );
 
     // Tile 2 twice, in two files.
     tile(2, "t/2.gpkg", &[]).ok();
@@ -254,7 +267,11 @@ fn missing_duplicated_and_mismatched_tiles_are_refused_by_name() {
     std::fs::remove_file(dir.join("t/odd.gpkg")).expect("remove");
     // Shards are not tiles.
     let mut a = base("t/shard.gpkg");
-    let at = a.iter().position(|x| x == "--permutations").expect("option") + 1;
+    let at = a
+        .iter()
+        .position(|x| x == "--permutations")
+        .expect("option")
+        + 1;
     a[at] = "9".to_owned();
     a.extend(owned(&["--shard", "1/3"]));
     call(&dir, &a).ok();
@@ -358,7 +375,19 @@ fn plan_batch_writes_the_tile_scripts() {
     let ran = run_in(
         &dir,
         "stance",
-        &["plan-batch", "--tiles", "2", "--dir", "x", "--", "local", "--input", "in.gpkg", "--output", "r.gpkg"],
+        &[
+            "plan-batch",
+            "--tiles",
+            "2",
+            "--dir",
+            "x",
+            "--",
+            "local",
+            "--input",
+            "in.gpkg",
+            "--output",
+            "r.gpkg",
+        ],
     );
     assert_ne!(ran.code, 0);
     assert!(ran.stderr.contains("--tile"), "{}", ran.stderr);

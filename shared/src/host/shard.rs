@@ -657,12 +657,8 @@ fn check_record(split: Split, found: &Found, total: usize, fingerprint: &Value) 
         ));
     }
     let expected = block(found.index, found.count, total);
-    let first = entry[format!("first_{unit}")]
-        .as_u64()
-        .map(|v| v as usize);
-    let written_total = entry[format!("total_{unit}s")]
-        .as_u64()
-        .map(|v| v as usize);
+    let first = entry[format!("first_{unit}")].as_u64().map(|v| v as usize);
+    let written_total = entry[format!("total_{unit}s")].as_u64().map(|v| v as usize);
     if written_total != Some(total) || first != Some(expected.start) {
         let written = written_total.map_or("an unknown number".to_owned(), |t| t.to_string());
         return Err(Error::argument(

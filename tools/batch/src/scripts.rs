@@ -137,8 +137,14 @@ pub fn write(stance: &Path, plan: &Plan, r: &Budget) -> Result<Vec<PathBuf>, Str
         std::fs::create_dir_all(&d).map_err(|e| format!("{}: {e}", d.display()))?;
     }
     let files = [
-        (format!("{parts}.sbatch"), shards_script(stance, plan, &r.part)),
-        ("merge.sbatch".to_owned(), merge_script(stance, plan, &r.merge)),
+        (
+            format!("{parts}.sbatch"),
+            shards_script(stance, plan, &r.part),
+        ),
+        (
+            "merge.sbatch".to_owned(),
+            merge_script(stance, plan, &r.merge),
+        ),
         ("submit.sh".to_owned(), submit_script(plan)),
     ];
     let mut written = Vec::new();

@@ -268,12 +268,8 @@ impl DensityParams {
         } else {
             "--merge-tiles"
         };
-        let refuse = |name: &str, why: &str| {
-            Err(Error::argument(
-                name,
-                format!("not with {option}: {why}"),
-            ))
-        };
+        let refuse =
+            |name: &str, why: &str| Err(Error::argument(name, format!("not with {option}: {why}")));
         if self.shards.shard.is_some() || self.shards.merge_shards.is_some() {
             let name = if self.shards.shard.is_some() {
                 "--shard"
