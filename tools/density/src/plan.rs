@@ -251,28 +251,31 @@ fn surface_grid(config: &Config, run: &Run, frame: &Frame, h: f64, masked: bool)
     // the zero-padded FFT buffers (complex f64) per bandwidth level and per worker thread.
     // A tile holds its band and the kernel's reach around it (and the grid's mask flags); a
     // merge holds the whole grid but transforms nothing.
-    let (held, padded, what) = match config.tiling {
+    let (held, padded, flags, what) = match config.tiling {
         Tiling::Whole => (
             grid.len() as f64,
             padded,
+            0.0,
             format!("a {}×{} grid", grid.cols, grid.rows),
         ),
         Tiling::Tile { index, count } => {
             let band = crate::tiles::window(&grid, config.kernel, h, index, count);
             let rows = band.len() as f64;
             (
-                rows * grid.cols as f64 + grid.len() as f64 / 12.0,
+                rows * grid.cols as f64,
                 (rows + margin / cell_m) * (grid.cols as f64 + margin / cell_m),
+                if masked { grid.len() as f64 } else { 0.0 },
                 format!("a tile of {}×{} cells", grid.cols, band.len()),
             )
         }
         Tiling::Merge(_) => (
             grid.len() as f64,
             0.0,
+            0.0,
             format!("a {}×{} grid", grid.cols, grid.rows),
         ),
     };
-    let surfaces = (Stance::ALL.len() + 8) as f64 * held * 12.0;
+    let surfaces = (Stance::ALL.len() + 8) as f64 * held * 12.0 + flags;
     let fft = padded * 16.0 * (2.0 + 2.0 * rayon::current_num_threads() as f64);
     let advice = match config.tiling {
         Tiling::Whole => "use a larger --cell-m or a --mask-layer",
