@@ -792,15 +792,17 @@ pub struct TileData {
     pub parts: BTreeMap<String, Vec<f64>>,
 }
 
-/// One tiled run: its rows, the fingerprint its tiles carry and, when merging, the whole grid
-/// assembled from the tiles.
+/// One tiled run: its rows, the fingerprint its tiles carry and, when merging, its checked
+/// tiles (whose parts are assembled one at a time, so a merge holds one whole-grid part, not
+/// all of them).
 #[derive(Debug)]
 pub struct TileRun {
     tiling: Tiling,
     rows: usize,
     cols: usize,
     fingerprint: Value,
-    merged: Option<TileData>,
+    tiles: Vec<Found>,
+    parts: Vec<String>,
 }
 
 impl TileRun {
@@ -824,7 +826,8 @@ impl TileRun {
             rows,
             cols,
             fingerprint: Value::Null,
-            merged: None,
+            tiles: Vec::new(),
+            parts: Vec::new(),
         };
         if *tiling == Tiling::Whole {
             return Ok(prepared);
@@ -833,30 +836,40 @@ impl TileRun {
         fingerprint["plan"] = plan;
         if let Tiling::Merge(files) = tiling {
             let found = gather(TILES, files, &run.name, rows, &fingerprint)?;
-            let mut whole = TileData::default();
-            for f in &found {
-                let band = block(f.index, f.count, rows);
-                let tile = read_tile(f, band.len(), cols)?;
-                for (part, values) in tile.parts {
-                    let all = whole
-                        .parts
-                        .entry(part.clone())
-                        .or_insert_with(|| vec![f64::NAN; rows * cols]);
-                    all[band.start * cols..band.end * cols].copy_from_slice(&values);
-                }
-            }
-            // Every tile must hold every part (an empty band holds none).
+            // Every tile holds every part, each with one row per grid row of its band (an
+            // empty band holds none).
+            let mut parts: Option<Vec<String>> = None;
             for f in &found {
                 let band = block(f.index, f.count, rows);
                 if band.is_empty() {
                     continue;
                 }
-                let names = tile_parts(f)?;
-                if let Some(part) = whole.parts.keys().find(|p| !names.contains(*p)) {
-                    return Err(missing_part(&f.origin, part));
+                let counts = part_rows(f)?;
+                if let Some((part, n)) = counts.iter().find(|(_, n)| *n != band.len()) {
+                    return Err(Error::Failed(format!(
+                        "{}: part '{part}' has {n} of its {} rows",
+                        f.origin,
+                        band.len()
+                    )));
+                }
+                let names: Vec<String> = counts.into_iter().map(|(p, _)| p).collect();
+                match &parts {
+                    None => parts = Some(names),
+                    Some(first) => {
+                        if let Some(part) = first.iter().find(|p| !names.contains(p)) {
+                            return Err(missing_part(&f.origin, part));
+                        }
+                        if let Some(part) = names.iter().find(|p| !first.contains(p)) {
+                            return Err(Error::Failed(format!(
+                                "{} holds part '{part}', which the other tiles lack",
+                                f.origin
+                            )));
+                        }
+                    }
                 }
             }
-            prepared.merged = Some(whole);
+            prepared.parts = parts.unwrap_or_default();
+            prepared.tiles = found;
         }
         prepared.fingerprint = fingerprint;
         Ok(prepared)
@@ -872,9 +885,41 @@ impl TileRun {
         matches!(self.tiling, Tiling::Tile { .. })
     }
 
-    /// The whole grid's parts, assembled from the tiles of a merging run.
-    pub fn merged(&self) -> Option<&TileData> {
-        self.merged.as_ref()
+    /// Whether this run merges tiles.
+    pub fn is_merge(&self) -> bool {
+        matches!(self.tiling, Tiling::Merge(_))
+    }
+
+    /// The names of the parts every tile holds (merging runs).
+    pub fn parts(&self) -> &[String] {
+        &self.parts
+    }
+
+    /// Part `part` of the whole grid (`rows × cols` values), assembled from the tiles of a
+    /// merging run.
+    ///
+    /// # Errors
+    /// Not a merging run, a part the tiles do not hold, or an unreadable tile.
+    pub fn merged(&self, part: &str) -> Result<Vec<f64>> {
+        if !self.is_merge() {
+            return Err(Error::Failed("tiles read outside a merging run".into()));
+        }
+        if !self.parts.iter().any(|p| p == part) {
+            return Err(Error::Failed(format!(
+                "the tiles hold no part '{part}': they were not written for this run"
+            )));
+        }
+        let cols = self.cols;
+        let mut whole = vec![f64::NAN; self.rows * cols];
+        for f in &self.tiles {
+            let band = block(f.index, f.count, self.rows);
+            if band.is_empty() {
+                continue;
+            }
+            let values = read_tile_part(f, part, band.clone(), cols)?;
+            whole[band.start * cols..band.end * cols].copy_from_slice(&values);
+        }
+        Ok(whole)
     }
 
     /// For a tile: writes `data` (its band's cells) and returns the run's summary
@@ -936,60 +981,59 @@ impl TileRun {
     }
 }
 
-/// The part names of a tile's layer.
-fn tile_parts(found: &Found) -> Result<Vec<String>> {
-    let connection = crate::gpkg::open_sqlite_read(&found.file)?;
-    let context = format!("reading {} in {}", found.layer, found.file.display());
-    let sql = format!(
-        "SELECT DISTINCT part FROM \"{}\"",
-        found.layer.replace('"', "\"\"")
-    );
-    let mut statement = connection.prepare(&sql).map_err(Error::sqlite(&context))?;
-    let names = statement
-        .query_map([], |r| r.get::<_, String>(0))
-        .map_err(Error::sqlite(&context))?
-        .filter_map(std::result::Result::ok)
-        .collect();
-    Ok(names)
-}
-
-/// The cells of a tile's layer: each part `rows × cols` values, every row there once.
-fn read_tile(found: &Found, rows: usize, cols: usize) -> Result<TileData> {
+/// The parts of a tile's layer with their numbers of rows.
+fn part_rows(found: &Found) -> Result<Vec<(String, usize)>> {
     let connection = crate::gpkg::open_sqlite_read(&found.file)?;
     let context = format!("reading {}", found.origin);
     let sql = format!(
-        "SELECT part, row, cells FROM \"{}\" ORDER BY part, row",
+        "SELECT part, count(*) FROM \"{}\" GROUP BY part ORDER BY part",
         found.layer.replace('"', "\"\"")
     );
-    let first_row = found.record["results"]["tile"]["first_row"]
-        .as_u64()
-        .unwrap_or(0) as usize;
     let mut statement = connection.prepare(&sql).map_err(Error::sqlite(&context))?;
-    let mut cursor = statement.query([]).map_err(Error::sqlite(&context))?;
-    let mut data = TileData::default();
+    let parts = statement
+        .query_map([], |r| {
+            Ok((r.get::<_, String>(0)?, r.get::<_, i64>(1)? as usize))
+        })
+        .map_err(Error::sqlite(&context))?
+        .collect::<std::result::Result<Vec<_>, _>>()
+        .map_err(Error::sqlite(&context))?;
+    Ok(parts)
+}
+
+/// Part `part` of a tile: `band.len() × cols` values, each grid row of the band once, in order.
+fn read_tile_part(found: &Found, part: &str, band: Range<usize>, cols: usize) -> Result<Vec<f64>> {
+    let connection = crate::gpkg::open_sqlite_read(&found.file)?;
+    let context = format!("reading {}", found.origin);
+    let sql = format!(
+        "SELECT row, cells FROM \"{}\" WHERE part = ?1 ORDER BY row",
+        found.layer.replace('"', "\"\"")
+    );
+    let mut statement = connection.prepare(&sql).map_err(Error::sqlite(&context))?;
+    let mut cursor = statement.query([part]).map_err(Error::sqlite(&context))?;
+    let mut values = Vec::with_capacity(band.len() * cols);
+    let mut expected = band.start;
     while let Some(row) = cursor.next().map_err(Error::sqlite(&context))? {
-        let part: String = row.get(0).map_err(Error::sqlite(&context))?;
-        let at: i64 = row.get(1).map_err(Error::sqlite(&context))?;
-        let text: String = row.get(2).map_err(Error::sqlite(&context))?;
-        let values = data.parts.entry(part.clone()).or_default();
-        let expected = first_row + values.len() / cols.max(1);
-        let decoded = decode_f64s(&text);
-        if at < 0 || at as usize != expected || decoded.as_ref().map(Vec::len) != Some(cols) {
-            return Err(Error::Failed(format!(
-                "{context}: part '{part}' row {at} is out of order or not {cols} cells"
-            )));
+        let at: i64 = row.get(0).map_err(Error::sqlite(&context))?;
+        let text: String = row.get(1).map_err(Error::sqlite(&context))?;
+        let decoded = decode_f64s(&text).filter(|d| d.len() == cols);
+        match decoded {
+            Some(cells) if at >= 0 && at as usize == expected => values.extend(cells),
+            _ => {
+                return Err(Error::Failed(format!(
+                    "{context}: part '{part}' row {at} is out of place or not {cols} cells"
+                )))
+            }
         }
-        values.extend(decoded.unwrap_or_default());
+        expected += 1;
     }
-    for (part, values) in &data.parts {
-        if values.len() != rows * cols {
-            return Err(Error::Failed(format!(
-                "{context}: part '{part}' has {} of its {rows} rows",
-                values.len() / cols.max(1)
-            )));
-        }
+    if expected != band.end {
+        return Err(Error::Failed(format!(
+            "{context}: part '{part}' has {} of its {} rows",
+            expected - band.start,
+            band.len()
+        )));
     }
-    Ok(data)
+    Ok(values)
 }
 
 const BASE64: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";

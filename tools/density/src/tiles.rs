@@ -204,20 +204,16 @@ pub fn fft_band(
     sums[from..from + rows.len() * grid.cols].to_vec()
 }
 
-/// The whole grid's sums of `class` in slice `slice`, from the merged tiles.
+/// The whole grid's sums of `class` in slice `slice`, from the merged tiles (None unless
+/// merging).
 ///
 /// # Errors
-/// No tile holds the part (they were written for other records).
+/// No tile holds the part (they were written for other records), or an unreadable tile.
 pub fn merged_sum(tiles: &TileRun, slice: usize, class: Stance) -> Result<Option<Vec<f64>>> {
-    let Some(merged) = tiles.merged() else {
+    if !tiles.is_merge() {
         return Ok(None);
-    };
-    let name = part(slice, class);
-    merged.parts.get(&name).cloned().map(Some).ok_or_else(|| {
-        Error::Failed(format!(
-            "the tiles hold no sums '{name}': they were not written for these records"
-        ))
-    })
+    }
+    tiles.merged(&part(slice, class)).map(Some)
 }
 
 #[cfg(test)]
