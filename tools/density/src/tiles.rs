@@ -305,6 +305,12 @@ mod tests {
                     let window = window(&grid, kernel, h, index, count);
                     merged.extend(fft_band(&grid, kernel, h, &points, &all, rows, window));
                 }
+                let worst = merged
+                    .iter()
+                    .zip(&whole)
+                    .map(|(m, w)| (m - w).abs() / max)
+                    .fold(0.0, f64::max);
+                println!("{kernel:?}, {count} bands: largest difference {worst:e} of the maximum");
                 for (k, (m, w)) in merged.iter().zip(&whole).enumerate() {
                     assert!(
                         (m - w).abs() <= 1e-9 * max,
