@@ -1061,7 +1061,14 @@ pub fn encode_f64s(values: &[f64], out: &mut String) {
 /// The doubles of [`encode_f64s`]; None for text that is not such base64.
 pub fn decode_f64s(text: &str) -> Option<Vec<f64>> {
     let mut bytes = Vec::with_capacity(text.len() / 4 * 3);
-    let digit = |c: u8| BASE64.iter().position(|&d| d == c).map(|p| p as u32);
+    let mut table = [u8::MAX; 256];
+    for (value, &c) in BASE64.iter().enumerate() {
+        table[usize::from(c)] = value as u8;
+    }
+    let digit = |c: u8| match table[usize::from(c)] {
+        u8::MAX => None,
+        d => Some(u32::from(d)),
+    };
     for chunk in text.as_bytes().chunks(4) {
         if chunk.len() != 4 {
             return None;
