@@ -6,7 +6,8 @@
 # completes the run. Tools: stance-density (tolerance and type-probability relabellings) and
 # stance-scan (ordinal model, 99 replicates) on an invented scenario of 3,000 records, and
 # stance-local (Gi* permutations) and stance-moran (global and local, 999 permutations) on the
-# North Carolina SIDS counties (tests/reference/data/nc.gpkg, from R spdep).
+# North Carolina SIDS counties (tests/reference/data/nc.gpkg, from R spdep); and stance-density
+# split by tiles of its grid (direct sums, masked), planned with `plan-batch --tiles 3`.
 set -euo pipefail
 cd "$(dirname "$0")/../.."
 STANCE=$(realpath "${STANCE:-target/debug/stance}")
@@ -35,38 +36,41 @@ wait_for() {  # job ids…: waits until none is queued or running
 }
 
 check() {  # name tool args…: one-machine run, plan, submit, wait, compare, then a lost shard
+  # (SPLIT=tiles check …: the same with tiles of the grid)
+  local split=${SPLIT:-shards} word
+  word=${split%s}
   local name=$1; shift
   local dir="$WORK/$name"; mkdir -p "$dir"
   (cd "$WORK" && "$STANCE" "$@" --output "$name/whole.gpkg" -q > /dev/null)
   [ "$(dump "$dir/whole.gpkg" | grep -c '^table ')" -ge 1 ] || { echo "$name: the one-machine run wrote too little"; return 1; }
-  (cd "$WORK" && "$STANCE" plan-batch --shards 3 --dir "$name/batch" -- "$@" --output "$name/merged.gpkg" > "$dir/plan.json")
+  (cd "$WORK" && "$STANCE" plan-batch "--$split" 3 --dir "$name/batch" -- "$@" --output "$name/merged.gpkg" > "$dir/plan.json")
   echo "$name: planned $(cat "$dir/plan.json")"
   local out; out=$(sh "$dir/batch/submit.sh")
   echo "$name: $out"
   local array merge
-  array=$(echo "$out" | sed -n 's/^shards: job \([0-9]*\).*/\1/p')
+  array=$(echo "$out" | sed -n "s/^$split: job \\([0-9]*\\).*/\\1/p")
   merge=$(echo "$out" | sed -n 's/.*merge: job \([0-9]*\).*/\1/p')
   wait_for "$array" "$merge"
   [ -f "$dir/merged.gpkg" ] || { echo "$name: the merge job wrote nothing; log:"; cat "$dir/batch/logs/merge.log"; return 1; }
-  ls "$dir/batch/shards"/shard_{1,2,3}.gpkg > /dev/null
+  ls "$dir/batch/$split/${word}_1.gpkg" "$dir/batch/$split/${word}_2.gpkg" "$dir/batch/$split/${word}_3.gpkg" > /dev/null
   if ! cmp -s <(dump "$dir/whole.gpkg") <(dump "$dir/merged.gpkg"); then
     echo "$name: merged outputs differ from the one-machine run"; return 1
   fi
-  echo "$name: merged outputs of 3 Slurm shards = one-machine run, bit for bit"
+  echo "$name: merged outputs of 3 Slurm $split = one-machine run, bit for bit"
 
-  # A lost shard: the merge job fails and names it; rerunning the shard and the merge completes.
-  rm "$dir/batch/shards/shard_2.gpkg" "$dir/merged.gpkg"
+  # A lost part: the merge job fails and names it; rerunning the part and the merge completes.
+  rm "$dir/batch/$split/${word}_2.gpkg" "$dir/merged.gpkg"
   if sbatch --wait "$dir/batch/merge.sbatch" > /dev/null 2>&1; then
-    echo "$name: the merge ran without shard 2"; return 1
+    echo "$name: the merge ran without $word 2"; return 1
   fi
-  grep -q "shard 2 of 3 is missing" "$dir/batch/logs/merge.log" \
-    || { echo "$name: merge log does not name the missing shard:"; cat "$dir/batch/logs/merge.log"; return 1; }
+  grep -q "$word 2 of 3 is missing" "$dir/batch/logs/merge.log" \
+    || { echo "$name: merge log does not name the missing $word:"; cat "$dir/batch/logs/merge.log"; return 1; }
   [ ! -f "$dir/merged.gpkg" ] || { echo "$name: a refused merge wrote its output"; return 1; }
-  sbatch --wait --array=2 "$dir/batch/shards.sbatch" > /dev/null
+  sbatch --wait --array=2 "$dir/batch/$split.sbatch" > /dev/null
   sbatch --wait "$dir/batch/merge.sbatch" > /dev/null
   cmp -s <(dump "$dir/whole.gpkg") <(dump "$dir/merged.gpkg") \
-    || { echo "$name: outputs after rerunning shard 2 differ"; return 1; }
-  echo "$name: missing shard refused by name; rerun of shard 2 and the merge = one-machine run"
+    || { echo "$name: outputs after rerunning $word 2 differ"; return 1; }
+  echo "$name: missing $word refused by name; rerun of $word 2 and the merge = one-machine run"
 }
 
 "$STANCE" synth --output "$WORK/scenario.gpkg" --points 3000 --seed 5 -q > /dev/null
@@ -78,4 +82,6 @@ check local local --input nc.gpkg --statistic gi-star --field SID79 --permutatio
 check scan scan --input scenario.gpkg --layer veldmark_records --model ordinal --toward both \
   --max-radius-m 12000 --replicates 99 --seed 4 --name s
 check moran moran --input nc.gpkg --field SID79 --permutations 999 --seed 21 --name m
+SPLIT=tiles check density_tiles density --input scenario.gpkg --layer veldmark_records \
+  --cell-m 500 --method direct --permutations 0 --mask-layer veldmark_districts --name t
 echo "cluster test: passed"

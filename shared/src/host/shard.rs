@@ -63,56 +63,72 @@ impl ShardArgs {
     /// [`Error::BadArgument`] naming the option.
     pub fn sharding(&self) -> Result<Sharding> {
         if let Some(spec) = &self.shard {
-            let parsed = spec.split_once('/').and_then(|(k, n)| {
-                Some((
-                    k.trim().parse::<usize>().ok()?,
-                    n.trim().parse::<usize>().ok()?,
-                ))
-            });
-            return match parsed {
-                Some((index, count)) if index >= 1 && index <= count => {
-                    Ok(Sharding::Shard { index, count })
-                }
-                _ => Err(Error::argument(
-                    "--shard",
-                    format!("'{spec}' is not K/N with 1 ≤ K ≤ N (e.g. 2/8)"),
-                )),
-            };
+            let (index, count) = parse_k_of_n("--shard", spec)?;
+            return Ok(Sharding::Shard { index, count });
         }
-        let Some(list) = &self.merge_shards else {
-            return Ok(Sharding::Whole);
-        };
-        let mut files = Vec::new();
-        for item in list.split(',').map(str::trim).filter(|s| !s.is_empty()) {
-            let path = PathBuf::from(item);
-            if path.is_dir() {
-                let mut found: Vec<PathBuf> = std::fs::read_dir(&path)
-                    .map_err(|e| Error::argument("--merge-shards", format!("{item}: {e}")))?
-                    .filter_map(|e| e.ok().map(|e| e.path()))
-                    .filter(|p| {
-                        p.extension()
-                            .is_some_and(|x| x.eq_ignore_ascii_case("gpkg"))
-                    })
-                    .collect();
-                found.sort();
-                files.extend(found);
-            } else if path.is_file() {
-                files.push(path);
-            } else {
-                return Err(Error::argument(
-                    "--merge-shards",
-                    format!("'{item}' is neither a GeoPackage file nor a directory"),
-                ));
-            }
+        match &self.merge_shards {
+            None => Ok(Sharding::Whole),
+            Some(list) => Ok(Sharding::Merge(gpkg_files("--merge-shards", list)?)),
         }
-        if files.is_empty() {
+    }
+}
+
+/// `K/N` with 1 ≤ K ≤ N, the value of `option`.
+///
+/// # Errors
+/// [`Error::BadArgument`] naming the option and the value.
+pub fn parse_k_of_n(option: &str, spec: &str) -> Result<(usize, usize)> {
+    let parsed = spec.split_once('/').and_then(|(k, n)| {
+        Some((
+            k.trim().parse::<usize>().ok()?,
+            n.trim().parse::<usize>().ok()?,
+        ))
+    });
+    match parsed {
+        Some((index, count)) if index >= 1 && index <= count => Ok((index, count)),
+        _ => Err(Error::argument(
+            option,
+            format!("'{spec}' is not K/N with 1 ≤ K ≤ N (e.g. 2/8)"),
+        )),
+    }
+}
+
+/// The GeoPackages of `list` (comma-separated files, or directories whose `.gpkg` files are
+/// taken in name order), the value of `option`.
+///
+/// # Errors
+/// [`Error::BadArgument`] naming the option: an item that is neither, or no file at all.
+pub fn gpkg_files(option: &str, list: &str) -> Result<Vec<PathBuf>> {
+    let mut files = Vec::new();
+    for item in list.split(',').map(str::trim).filter(|s| !s.is_empty()) {
+        let path = PathBuf::from(item);
+        if path.is_dir() {
+            let mut found: Vec<PathBuf> = std::fs::read_dir(&path)
+                .map_err(|e| Error::argument(option, format!("{item}: {e}")))?
+                .filter_map(|e| e.ok().map(|e| e.path()))
+                .filter(|p| {
+                    p.extension()
+                        .is_some_and(|x| x.eq_ignore_ascii_case("gpkg"))
+                })
+                .collect();
+            found.sort();
+            files.extend(found);
+        } else if path.is_file() {
+            files.push(path);
+        } else {
             return Err(Error::argument(
-                "--merge-shards",
-                format!("no GeoPackage found in '{list}'"),
+                option,
+                format!("'{item}' is neither a GeoPackage file nor a directory"),
             ));
         }
-        Ok(Sharding::Merge(files))
     }
+    if files.is_empty() {
+        return Err(Error::argument(
+            option,
+            format!("no GeoPackage found in '{list}'"),
+        ));
+    }
+    Ok(files)
 }
 
 impl Sharding {
@@ -337,7 +353,7 @@ fn missing_part(origin: &str, part: &str) -> Error {
 /// Options that do not change what a replicate draws or what the merge computes: left out of
 /// the comparison of a shard's parameters with the merging run's.
 /// The input's path is left out too: its checksum is compared instead.
-const NOT_COMPARED: [&str; 10] = [
+const NOT_COMPARED: [&str; 12] = [
     "input",
     "output",
     "overwrite",
@@ -348,6 +364,8 @@ const NOT_COMPARED: [&str; 10] = [
     "describe",
     "shard",
     "merge-shards",
+    "tile",
+    "merge-tiles",
 ];
 
 /// What must be equal between every shard and the merging run: the tool, its version, every
@@ -419,13 +437,59 @@ pub fn write(
     }))
 }
 
-/// One shard found in a file.
-struct Found {
-    file: PathBuf,
-    layer: String,
-    index: usize,
-    count: usize,
-    record: Value,
+/// What a run is split into: the word in layer names and messages, the options, and the unit
+/// each part holds a block of (replicates for shards, grid rows for tiles).
+#[derive(Debug, Clone, Copy)]
+pub struct Split {
+    /// `shard` or `tile`: layers are `<name>_<word>_K_of_N`.
+    pub word: &'static str,
+    /// The option running one part (`--shard`).
+    pub option: &'static str,
+    /// The option merging the parts (`--merge-shards`).
+    pub merge_option: &'static str,
+    /// What the blocks count (`replicate`, `row`); the record keys are `first_<unit>` and
+    /// `total_<unit>s`.
+    pub unit: &'static str,
+}
+
+/// Shards of Monte Carlo replicates.
+pub const SHARDS: Split = Split {
+    word: "shard",
+    option: "--shard",
+    merge_option: "--merge-shards",
+    unit: "replicate",
+};
+
+/// Tiles of a grid: blocks of rows.
+pub const TILES: Split = Split {
+    word: "tile",
+    option: "--tile",
+    merge_option: "--merge-tiles",
+    unit: "row",
+};
+
+impl Split {
+    /// The layer of part `index` of `count` of the run `base`.
+    pub fn layer(&self, base: &str, index: usize, count: usize) -> String {
+        format!("{base}_{}_{index}_of_{count}", self.word)
+    }
+}
+
+/// One part (shard or tile) found in a file.
+#[derive(Debug)]
+pub struct Found {
+    /// The file.
+    pub file: PathBuf,
+    /// Its layer.
+    pub layer: String,
+    /// K.
+    pub index: usize,
+    /// N.
+    pub count: usize,
+    /// The layer's provenance record.
+    pub record: Value,
+    /// `shard K of N (<layer> in <file>)`, for messages.
+    pub origin: String,
 }
 
 /// Reads every shard of the run `base` from `files`, checks that shards 1..=N are each there
@@ -435,21 +499,49 @@ struct Found {
 /// # Errors
 /// A missing, duplicated or mismatched shard, named; unreadable files.
 pub fn merge(files: &[PathBuf], base: &str, total: usize, fingerprint: &Value) -> Result<Merged> {
+    let found = gather(SHARDS, files, base, total, fingerprint)?;
+    let mut merged = Merged {
+        shards: Vec::new(),
+        origin: Vec::new(),
+        blocks: Vec::new(),
+    };
+    for f in found {
+        merged.shards.push(read_partial(&f)?);
+        merged.blocks.push(block(f.index, f.count, total));
+        merged.origin.push(f.origin);
+    }
+    Ok(merged)
+}
+
+/// Finds the parts of kind `split` of the run `base` in `files`, checks that parts 1..=N are
+/// each there exactly once, hold their block of `total` units and were written under
+/// `fingerprint`, and returns them in order.
+///
+/// # Errors
+/// A missing, duplicated or mismatched part, named (one line, option `split.merge_option`).
+pub fn gather(
+    split: Split,
+    files: &[PathBuf],
+    base: &str,
+    total: usize,
+    fingerprint: &Value,
+) -> Result<Vec<Found>> {
+    let word = split.word;
     let mut found: Vec<Found> = Vec::new();
     for file in files {
-        found.extend(shards_in(file, base)?);
+        found.extend(parts_in(split, file, base)?);
     }
     let Some(count) = found.first().map(|f| f.count) else {
         return Err(Error::argument(
-            "--merge-shards",
-            format!("no layer {base}_shard_K_of_N in {}", list(files)),
+            split.merge_option,
+            format!("no layer {base}_{word}_K_of_N in {}", list(files)),
         ));
     };
     if let Some(other) = found.iter().find(|f| f.count != count) {
         return Err(Error::argument(
-            "--merge-shards",
+            split.merge_option,
             format!(
-                "{} in {} belongs to a run of {} shards, {} in {} to one of {count}",
+                "{} in {} belongs to a run of {} {word}s, {} in {} to one of {count}",
                 other.layer,
                 other.file.display(),
                 other.count,
@@ -462,9 +554,9 @@ pub fn merge(files: &[PathBuf], base: &str, total: usize, fingerprint: &Value) -
     for f in found {
         if let Some(first) = by_index.get(&f.index) {
             return Err(Error::argument(
-                "--merge-shards",
+                split.merge_option,
                 format!(
-                    "shard {} of {count} is there twice: {} in {} and in {}",
+                    "{word} {} of {count} is there twice: {} in {} and in {}",
                     f.index,
                     f.layer,
                     first.file.display(),
@@ -476,32 +568,28 @@ pub fn merge(files: &[PathBuf], base: &str, total: usize, fingerprint: &Value) -
     }
     if let Some(missing) = (1..=count).find(|k| !by_index.contains_key(k)) {
         return Err(Error::argument(
-            "--merge-shards",
+            split.merge_option,
             format!(
-                "shard {missing} of {count} is missing (no layer {} in {}): rerun it with \
-                 --shard {missing}/{count}",
-                layer_name(base, missing, count),
-                list(files)
+                "{word} {missing} of {count} is missing (no layer {} in {}): rerun it with \
+                 {} {missing}/{count}",
+                split.layer(base, missing, count),
+                list(files),
+                split.option
             ),
         ));
     }
-    let mut merged = Merged {
-        shards: Vec::new(),
-        origin: Vec::new(),
-        blocks: Vec::new(),
-    };
-    for (index, f) in by_index {
-        let origin = format!(
-            "shard {index} of {count} ({} in {})",
+    let mut ordered = Vec::with_capacity(count);
+    for (_, mut f) in by_index {
+        f.origin = format!(
+            "{word} {} of {count} ({} in {})",
+            f.index,
             f.layer,
             f.file.display()
         );
-        check_record(&f, total, fingerprint, &origin)?;
-        merged.shards.push(read_partial(&f)?);
-        merged.origin.push(origin);
-        merged.blocks.push(block(index, count, total));
+        check_record(split, &f, total, fingerprint)?;
+        ordered.push(f);
     }
-    Ok(merged)
+    Ok(ordered)
 }
 
 fn list(files: &[PathBuf]) -> String {
@@ -512,10 +600,10 @@ fn list(files: &[PathBuf]) -> String {
         .join(", ")
 }
 
-/// The shard layers of run `base` in `file`, with their provenance records.
-fn shards_in(file: &Path, base: &str) -> Result<Vec<Found>> {
+/// The layers of kind `split` of run `base` in `file`, with their provenance records.
+fn parts_in(split: Split, file: &Path, base: &str) -> Result<Vec<Found>> {
     let connection = crate::gpkg::open_sqlite_read(file)?;
-    let context = format!("reading the shards in {}", file.display());
+    let context = format!("reading the {}s in {}", split.word, file.display());
     let mut statement = connection
         .prepare("SELECT table_name FROM gpkg_contents")
         .map_err(Error::sqlite(&context))?;
@@ -524,7 +612,7 @@ fn shards_in(file: &Path, base: &str) -> Result<Vec<Found>> {
         .map_err(Error::sqlite(&context))?
         .filter_map(std::result::Result::ok)
         .collect();
-    let prefix = format!("{base}_shard_");
+    let prefix = format!("{base}_{}_", split.word);
     let mut found = Vec::new();
     for layer in names {
         let Some(rest) = layer.strip_prefix(&prefix) else {
@@ -543,45 +631,46 @@ fn shards_in(file: &Path, base: &str) -> Result<Vec<Found>> {
             index,
             count,
             record,
+            origin: String::new(),
         });
     }
     Ok(found)
 }
 
-/// Checks a shard's provenance: its replicates and its fingerprint.
-fn check_record(found: &Found, total: usize, fingerprint: &Value, origin: &str) -> Result<()> {
-    let shard = &found.record["results"]["shard"];
-    if shard.is_null() {
+/// Checks a part's provenance: its block and its fingerprint.
+fn check_record(split: Split, found: &Found, total: usize, fingerprint: &Value) -> Result<()> {
+    let (word, unit, origin) = (split.word, split.unit, &found.origin);
+    let entry = &found.record["results"][word];
+    if entry.is_null() {
         return Err(Error::argument(
-            "--merge-shards",
+            split.merge_option,
             format!(
-                "{origin} has no shard record in its provenance; it was not written by --shard"
+                "{origin} has no {word} record in its provenance; it was not written by {}",
+                split.option
             ),
+        ));
+    }
+    if let Some(difference) = first_difference(&entry["fingerprint"], fingerprint, "", word) {
+        return Err(Error::argument(
+            split.merge_option,
+            format!("{origin} was written under other options or inputs: {difference}"),
         ));
     }
     let expected = block(found.index, found.count, total);
-    let first = shard["first_replicate"].as_u64().map(|v| v as usize);
-    let written_total = shard["total_replicates"].as_u64().map(|v| v as usize);
+    let first = entry[format!("first_{unit}")].as_u64().map(|v| v as usize);
+    let written_total = entry[format!("total_{unit}s")].as_u64().map(|v| v as usize);
     if written_total != Some(total) || first != Some(expected.start) {
+        let written = written_total.map_or("an unknown number".to_owned(), |t| t.to_string());
         return Err(Error::argument(
-            "--merge-shards",
-            format!(
-                "{origin} holds replicates of a run of {} in all; this run has {total}",
-                written_total.map_or("an unknown number".to_owned(), |t| t.to_string())
-            ),
-        ));
-    }
-    if let Some(difference) = first_difference(&shard["fingerprint"], fingerprint, "") {
-        return Err(Error::argument(
-            "--merge-shards",
-            format!("{origin} was written under other options or inputs: {difference}"),
+            split.merge_option,
+            format!("{origin} holds {unit}s of a run of {written} in all; this run has {total}"),
         ));
     }
     Ok(())
 }
 
 /// The first place where `written` and `expected` differ, as `key: written vs expected`.
-fn first_difference(written: &Value, expected: &Value, at: &str) -> Option<String> {
+fn first_difference(written: &Value, expected: &Value, at: &str, word: &str) -> Option<String> {
     match (written, expected) {
         (Value::Object(a), Value::Object(b)) => {
             let keys: std::collections::BTreeSet<&String> = a.keys().chain(b.keys()).collect();
@@ -595,11 +684,12 @@ fn first_difference(written: &Value, expected: &Value, at: &str) -> Option<Strin
                     a.get(k).unwrap_or(&Value::Null),
                     b.get(k).unwrap_or(&Value::Null),
                     &path,
+                    word,
                 )
             })
         }
         (a, b) if a == b => None,
-        (a, b) => Some(format!("{at} is {a} in the shard, {b} in this run")),
+        (a, b) => Some(format!("{at} is {a} in the {word}, {b} in this run")),
     }
 }
 
@@ -627,6 +717,383 @@ fn read_partial(found: &Found) -> Result<Partial> {
         values.push(value.unwrap_or(f64::NAN));
     }
     Ok(partial)
+}
+
+// ---------------------------------------------------------------------------------------------
+// Tiles: one grid split into bands of rows.
+
+/// `--tile` and `--merge-tiles`, for tools whose grid cells can be computed apart (each cell
+/// from the points within the kernel's reach).
+#[derive(Debug, Clone, Default, clap::Args, serde::Serialize, schemars::JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub struct TileArgs {
+    /// Compute only tile K of N of the grid (K from 1; tile K is the K-th of N bands of grid
+    /// rows, north to south) and write its cells as the attribute layer <name>_tile_K_of_N,
+    /// for a later --merge-tiles run with the same options. No other layer is written.
+    #[arg(long, value_name = "K/N")]
+    pub tile: Option<String>,
+
+    /// GeoPackage files, or directories of them (comma-separated), holding every tile of this
+    /// run (layers <name>_tile_K_of_N): the grid's cells are taken from them instead of
+    /// computed, and the outputs are those of a run on one machine with the same options.
+    #[arg(long, value_name = "FILES", conflicts_with = "tile")]
+    pub merge_tiles: Option<String>,
+}
+
+/// How a run treats its grid.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Tiling {
+    /// Compute every cell (the usual run).
+    Whole,
+    /// Compute the rows of tile `index` (1-based) of `count` and write them.
+    Tile {
+        /// K.
+        index: usize,
+        /// N.
+        count: usize,
+    },
+    /// Take every cell from the tiles in these files.
+    Merge(Vec<PathBuf>),
+}
+
+impl TileArgs {
+    /// Checks the options.
+    ///
+    /// # Errors
+    /// [`Error::BadArgument`] naming the option.
+    pub fn tiling(&self) -> Result<Tiling> {
+        if let Some(spec) = &self.tile {
+            let (index, count) = parse_k_of_n("--tile", spec)?;
+            return Ok(Tiling::Tile { index, count });
+        }
+        match &self.merge_tiles {
+            None => Ok(Tiling::Whole),
+            Some(list) => Ok(Tiling::Merge(gpkg_files("--merge-tiles", list)?)),
+        }
+    }
+}
+
+impl Tiling {
+    /// The grid rows this run computes out of `rows`: all, the tile's band
+    /// (⌊(K−1)·rows/N⌋ .. ⌊K·rows/N⌋), or none when merging.
+    pub fn rows(&self, rows: usize) -> Range<usize> {
+        match self {
+            Tiling::Whole => 0..rows,
+            Tiling::Tile { index, count } => block(*index, *count, rows),
+            Tiling::Merge(_) => 0..0,
+        }
+    }
+}
+
+/// Cell values of a band of grid rows: named parts, each `rows.len() × cols` values, row-major.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct TileData {
+    /// Part name → values of the band's cells.
+    pub parts: BTreeMap<String, Vec<f64>>,
+}
+
+/// One tiled run: its rows, the fingerprint its tiles carry and, when merging, its checked
+/// tiles (whose parts are assembled one at a time, so a merge holds one whole-grid part, not
+/// all of them).
+#[derive(Debug)]
+pub struct TileRun {
+    tiling: Tiling,
+    rows: usize,
+    cols: usize,
+    fingerprint: Value,
+    tiles: Vec<Found>,
+    parts: Vec<String>,
+}
+
+impl TileRun {
+    /// Fingerprints a tiled run of `tool` on a grid of `rows × cols` cells and, when merging,
+    /// reads, checks and assembles its tiles. `plan` (the grid, the bandwidth… as JSON) joins
+    /// the fingerprint, so a tile planned otherwise is refused by name. Call after every input
+    /// is read.
+    ///
+    /// # Errors
+    /// A missing, duplicated or mismatched tile, named.
+    pub fn prepare<P: serde::Serialize>(
+        tiling: &Tiling,
+        (rows, cols): (usize, usize),
+        tool: &str,
+        params: &P,
+        plan: Value,
+        run: &mut Run,
+    ) -> Result<Self> {
+        let mut prepared = TileRun {
+            tiling: tiling.clone(),
+            rows,
+            cols,
+            fingerprint: Value::Null,
+            tiles: Vec::new(),
+            parts: Vec::new(),
+        };
+        if *tiling == Tiling::Whole {
+            return Ok(prepared);
+        }
+        let mut fingerprint = fingerprint(run, tool, params)?;
+        fingerprint["plan"] = plan;
+        if let Tiling::Merge(files) = tiling {
+            let found = gather(TILES, files, &run.name, rows, &fingerprint)?;
+            // Every tile holds every part, each with one row per grid row of its band (an
+            // empty band holds none).
+            let mut parts: Option<Vec<String>> = None;
+            for f in &found {
+                let band = block(f.index, f.count, rows);
+                if band.is_empty() {
+                    continue;
+                }
+                let counts = part_rows(f)?;
+                if let Some((part, n)) = counts.iter().find(|(_, n)| *n != band.len()) {
+                    return Err(Error::Failed(format!(
+                        "{}: part '{part}' has {n} of its {} rows",
+                        f.origin,
+                        band.len()
+                    )));
+                }
+                let names: Vec<String> = counts.into_iter().map(|(p, _)| p).collect();
+                match &parts {
+                    None => parts = Some(names),
+                    Some(first) => {
+                        if let Some(part) = first.iter().find(|p| !names.contains(p)) {
+                            return Err(missing_part(&f.origin, part));
+                        }
+                        if let Some(part) = names.iter().find(|p| !first.contains(p)) {
+                            return Err(Error::Failed(format!(
+                                "{} holds part '{part}', which the other tiles lack",
+                                f.origin
+                            )));
+                        }
+                    }
+                }
+            }
+            prepared.parts = parts.unwrap_or_default();
+            prepared.tiles = found;
+        }
+        prepared.fingerprint = fingerprint;
+        Ok(prepared)
+    }
+
+    /// The rows this run computes itself.
+    pub fn rows(&self) -> Range<usize> {
+        self.tiling.rows(self.rows)
+    }
+
+    /// Whether this run computes one tile (and writes nothing else).
+    pub fn is_tile(&self) -> bool {
+        matches!(self.tiling, Tiling::Tile { .. })
+    }
+
+    /// Whether this run merges tiles.
+    pub fn is_merge(&self) -> bool {
+        matches!(self.tiling, Tiling::Merge(_))
+    }
+
+    /// The names of the parts every tile holds (merging runs).
+    pub fn parts(&self) -> &[String] {
+        &self.parts
+    }
+
+    /// Part `part` of the whole grid (`rows × cols` values), assembled from the tiles of a
+    /// merging run.
+    ///
+    /// # Errors
+    /// Not a merging run, a part the tiles do not hold, or an unreadable tile.
+    pub fn merged(&self, part: &str) -> Result<Vec<f64>> {
+        if !self.is_merge() {
+            return Err(Error::Failed("tiles read outside a merging run".into()));
+        }
+        if !self.parts.iter().any(|p| p == part) {
+            return Err(Error::Failed(format!(
+                "the tiles hold no part '{part}': they were not written for this run"
+            )));
+        }
+        let cols = self.cols;
+        let mut whole = vec![f64::NAN; self.rows * cols];
+        for f in &self.tiles {
+            let band = block(f.index, f.count, self.rows);
+            if band.is_empty() {
+                continue;
+            }
+            let values = read_tile_part(f, part, band.clone(), cols)?;
+            whole[band.start * cols..band.end * cols].copy_from_slice(&values);
+        }
+        Ok(whole)
+    }
+
+    /// For a tile: writes `data` (its band's cells) and returns the run's summary
+    /// (`{"tile": …}`); otherwise None.
+    ///
+    /// # Errors
+    /// A part of the wrong size, or staging failures.
+    pub fn write(&self, run: &mut Run, data: &TileData) -> Result<Option<Value>> {
+        let Tiling::Tile { index, count } = self.tiling else {
+            return Ok(None);
+        };
+        let band = self.rows();
+        let name = TILES.layer(&run.name, index, count);
+        let fields = [
+            FieldDef::new("part", FieldKind::Text),
+            FieldDef::new("row", FieldKind::Integer),
+            FieldDef::new("cells", FieldKind::Text),
+        ];
+        let mut writer = run
+            .output()
+            .create_vector(&name, GeometryKind::None, None, &fields)?;
+        let mut text = String::new();
+        for (part, values) in &data.parts {
+            if values.len() != band.len() * self.cols {
+                return Err(Error::Failed(format!(
+                    "tile part '{part}' has {} values for {} rows of {} cells",
+                    values.len(),
+                    band.len(),
+                    self.cols
+                )));
+            }
+            for (offset, row) in values.chunks(self.cols.max(1)).enumerate() {
+                text.clear();
+                encode_f64s(row, &mut text);
+                writer.add(
+                    Shape::None,
+                    &[
+                        FieldData::Text(part),
+                        FieldData::Integer((band.start + offset) as i64),
+                        FieldData::Text(&text),
+                    ],
+                )?;
+            }
+        }
+        writer.finish()?;
+        run.log(format!(
+            "tile {index} of {count}: rows {}..{} of {} written to {name}",
+            band.start, band.end, self.rows
+        ));
+        Ok(Some(json!({ "tile": {
+            "layer": name,
+            "tile": format!("{index}/{count}"),
+            "first_row": band.start,
+            "rows": band.len(),
+            "total_rows": self.rows,
+            "cols": self.cols,
+            "fingerprint": self.fingerprint,
+        }})))
+    }
+}
+
+/// The parts of a tile's layer with their numbers of rows.
+fn part_rows(found: &Found) -> Result<Vec<(String, usize)>> {
+    let connection = crate::gpkg::open_sqlite_read(&found.file)?;
+    let context = format!("reading {}", found.origin);
+    let sql = format!(
+        "SELECT part, count(*) FROM \"{}\" GROUP BY part ORDER BY part",
+        found.layer.replace('"', "\"\"")
+    );
+    let mut statement = connection.prepare(&sql).map_err(Error::sqlite(&context))?;
+    let parts = statement
+        .query_map([], |r| {
+            Ok((r.get::<_, String>(0)?, r.get::<_, i64>(1)? as usize))
+        })
+        .map_err(Error::sqlite(&context))?
+        .collect::<std::result::Result<Vec<_>, _>>()
+        .map_err(Error::sqlite(&context))?;
+    Ok(parts)
+}
+
+/// Part `part` of a tile: `band.len() × cols` values, each grid row of the band once, in order.
+fn read_tile_part(found: &Found, part: &str, band: Range<usize>, cols: usize) -> Result<Vec<f64>> {
+    let connection = crate::gpkg::open_sqlite_read(&found.file)?;
+    let context = format!("reading {}", found.origin);
+    let sql = format!(
+        "SELECT row, cells FROM \"{}\" WHERE part = ?1 ORDER BY row",
+        found.layer.replace('"', "\"\"")
+    );
+    let mut statement = connection.prepare(&sql).map_err(Error::sqlite(&context))?;
+    let mut cursor = statement.query([part]).map_err(Error::sqlite(&context))?;
+    let mut values = Vec::with_capacity(band.len() * cols);
+    let mut expected = band.start;
+    while let Some(row) = cursor.next().map_err(Error::sqlite(&context))? {
+        let at: i64 = row.get(0).map_err(Error::sqlite(&context))?;
+        let text: String = row.get(1).map_err(Error::sqlite(&context))?;
+        let decoded = decode_f64s(&text).filter(|d| d.len() == cols);
+        match decoded {
+            Some(cells) if at >= 0 && at as usize == expected => values.extend(cells),
+            _ => {
+                return Err(Error::Failed(format!(
+                    "{context}: part '{part}' row {at} is out of place or not {cols} cells"
+                )))
+            }
+        }
+        expected += 1;
+    }
+    if expected != band.end {
+        return Err(Error::Failed(format!(
+            "{context}: part '{part}' has {} of its {} rows",
+            expected - band.start,
+            band.len()
+        )));
+    }
+    Ok(values)
+}
+
+const BASE64: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+
+/// Appends `values` as base64 of their little-endian bytes (exact: every bit of every double).
+pub fn encode_f64s(values: &[f64], out: &mut String) {
+    let bytes: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
+    out.reserve(bytes.len().div_ceil(3) * 4);
+    for chunk in bytes.chunks(3) {
+        let b = [
+            chunk[0],
+            chunk.get(1).copied().unwrap_or(0),
+            chunk.get(2).copied().unwrap_or(0),
+        ];
+        let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
+        for k in 0..=chunk.len() {
+            out.push(char::from(BASE64[((n >> (18 - 6 * k)) & 63) as usize]));
+        }
+        for _ in chunk.len()..3 {
+            out.push('=');
+        }
+    }
+}
+
+/// The doubles of [`encode_f64s`]; None for text that is not such base64.
+pub fn decode_f64s(text: &str) -> Option<Vec<f64>> {
+    let mut bytes = Vec::with_capacity(text.len() / 4 * 3);
+    let mut table = [u8::MAX; 256];
+    for (value, &c) in BASE64.iter().enumerate() {
+        table[usize::from(c)] = value as u8;
+    }
+    let digit = |c: u8| match table[usize::from(c)] {
+        u8::MAX => None,
+        d => Some(u32::from(d)),
+    };
+    for chunk in text.as_bytes().chunks(4) {
+        if chunk.len() != 4 {
+            return None;
+        }
+        let pad = chunk.iter().rev().take_while(|&&c| c == b'=').count();
+        if pad > 2 {
+            return None;
+        }
+        let mut n = 0u32;
+        for &c in &chunk[..4 - pad] {
+            n = (n << 6) | digit(c)?;
+        }
+        n <<= 6 * pad as u32;
+        let got = [(n >> 16) as u8, (n >> 8) as u8, n as u8];
+        bytes.extend_from_slice(&got[..3 - pad]);
+    }
+    if bytes.len() % 8 != 0 {
+        return None;
+    }
+    Some(
+        bytes
+            .chunks_exact(8)
+            .map(|c| f64::from_le_bytes(c.try_into().unwrap_or([0; 8])))
+            .collect(),
+    )
 }
 
 #[cfg(test)]
@@ -676,9 +1143,53 @@ mod tests {
         let a = json!({"parameters": {"permutations": 99, "seed": 1}});
         let b = json!({"parameters": {"permutations": 999, "seed": 1}});
         assert_eq!(
-            first_difference(&a, &b, "").as_deref(),
+            first_difference(&a, &b, "", "shard").as_deref(),
             Some("parameters.permutations is 99 in the shard, 999 in this run")
         );
-        assert_eq!(first_difference(&a, &a, ""), None);
+        assert_eq!(first_difference(&a, &a, "", "shard"), None);
+    }
+
+    #[test]
+    fn cells_round_trip_bit_for_bit() {
+        let values = [
+            0.0,
+            -0.0,
+            1.0 / 3.0,
+            f64::MIN_POSITIVE / 7.0,
+            f64::NAN,
+            f64::INFINITY,
+            -1.25e300,
+        ];
+        for n in 0..=values.len() {
+            let mut text = String::new();
+            encode_f64s(&values[..n], &mut text);
+            let back = decode_f64s(&text).expect("decodes");
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&back), bits(&values[..n]));
+        }
+        // "AAAAAAAA8D8=" is 1.0 (bytes 00 00 00 00 00 00 f0 3f) in RFC 4648 base64.
+        let mut one = String::new();
+        encode_f64s(&[1.0], &mut one);
+        assert_eq!(one, "AAAAAAAA8D8=");
+        assert_eq!(decode_f64s("AAAA"), None);
+    }
+
+    #[test]
+    fn tile_options_are_checked() {
+        let args = TileArgs {
+            tile: Some("3/7".into()),
+            merge_tiles: None,
+        };
+        assert_eq!(
+            args.tiling().expect("valid"),
+            Tiling::Tile { index: 3, count: 7 }
+        );
+        assert_eq!(Tiling::Tile { index: 3, count: 7 }.rows(100), 28..42);
+        let bad = TileArgs {
+            tile: Some("8/7".into()),
+            merge_tiles: None,
+        };
+        let e = bad.tiling().expect_err("8/7").to_string();
+        assert!(e.contains("--tile") && e.contains("8/7"), "{e}");
     }
 }

@@ -9,18 +9,28 @@ use clap::Parser;
 #[derive(Debug, Parser)]
 #[command(
     name = "stance plan-batch",
-    about = "Writes Slurm scripts for a sharded run: a job array of --shard K/N runs of TOOL and \
-             a merge job (--dependency=afterok) giving the outputs of one run on one machine",
+    about = "Writes Slurm scripts for a sharded or tiled run: a job array of --shard K/N (or \
+             --tile K/N) runs of TOOL and a merge job (--dependency=afterok) giving the outputs \
+             of one run on one machine",
     after_help = "Example: stance plan-batch --shards 8 --dir batch -- density --input big.gpkg \
                   --layer records --permutations 999 --output result.gpkg\n\
                   Then: sh batch/submit.sh (or sbatch batch/shards.sbatch, then sbatch \
                   --dependency=afterok:JOB batch/merge.sbatch). To redo one failed shard: \
-                  sbatch --array=K batch/shards.sbatch, then sbatch batch/merge.sbatch."
+                  sbatch --array=K batch/shards.sbatch, then sbatch batch/merge.sbatch.\n\
+                  Tiles of a large grid: stance plan-batch --tiles 8 --dir batch -- density \
+                  --input big.gpkg --layer records --bandwidth-m 2000 --permutations 0 \
+                  --output result.gpkg (scripts tiles.sbatch, merge.sbatch, submit.sh)."
 )]
+#[command(group(clap::ArgGroup::new("split").required(true).args(["shards", "tiles"])))]
 struct Cli {
-    /// Number of shards N (array tasks 1..N).
+    /// Number of shards N of the Monte Carlo replicates (array tasks 1..N, --shard K/N).
     #[arg(long, value_name = "N")]
-    shards: usize,
+    shards: Option<usize>,
+
+    /// Number of tiles N of the grid (array tasks 1..N, --tile K/N): bands of grid rows merged
+    /// into one coverage.
+    #[arg(long, value_name = "N")]
+    tiles: Option<usize>,
 
     /// Directory for the scripts, the shards' GeoPackages and the logs (created).
     #[arg(long, value_name = "DIR")]
@@ -48,7 +58,7 @@ struct Cli {
     run: Vec<String>,
 }
 
-/// Time and memory of one shard.
+/// Time and memory of one job.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Resources {
     /// Wall time, minutes.
@@ -57,11 +67,57 @@ pub struct Resources {
     pub memory_mb: u64,
 }
 
+/// Time and memory of each part (shard or tile) and of the merge.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Budget {
+    /// One part.
+    pub part: Resources,
+    /// The merge job.
+    pub merge: Resources,
+}
+
+/// What the run is split into.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Split {
+    /// Blocks of Monte Carlo replicates (`--shard K/N`, `--merge-shards`).
+    Shards,
+    /// Bands of grid rows (`--tile K/N`, `--merge-tiles`).
+    Tiles,
+}
+
+impl Split {
+    /// `shard` or `tile`: script, directory and file names.
+    pub fn word(self) -> &'static str {
+        match self {
+            Split::Shards => "shard",
+            Split::Tiles => "tile",
+        }
+    }
+
+    /// The option running one part.
+    pub fn option(self) -> &'static str {
+        match self {
+            Split::Shards => "--shard",
+            Split::Tiles => "--tile",
+        }
+    }
+
+    /// The option merging the parts.
+    pub fn merge_option(self) -> &'static str {
+        match self {
+            Split::Shards => "--merge-shards",
+            Split::Tiles => "--merge-tiles",
+        }
+    }
+}
+
 /// A checked plan.
 #[derive(Debug, Clone)]
 pub struct Plan {
     /// N.
     pub shards: usize,
+    /// Shards or tiles.
+    pub split: Split,
     /// Where scripts, shards and logs go (absolute).
     pub dir: PathBuf,
     /// CPUs per shard.
@@ -105,8 +161,13 @@ pub fn parse(args: Vec<OsString>) -> Result<Parsed, String> {
         }
         Err(e) => return Err(stance_core::host::one_line(&e.render().to_string())),
     };
-    if cli.shards == 0 {
-        return Err("--shards: must be at least 1".into());
+    let (split, count, option) = match (cli.shards, cli.tiles) {
+        (_, Some(n)) => (Split::Tiles, n, "--tiles"),
+        (Some(n), None) => (Split::Shards, n, "--shards"),
+        (None, None) => return Err("give --shards N or --tiles N".into()),
+    };
+    if count == 0 {
+        return Err(format!("{option}: must be at least 1"));
     }
     if cli.cpus == 0 {
         return Err("--cpus: must be at least 1".into());
@@ -123,7 +184,8 @@ pub fn parse(args: Vec<OsString>) -> Result<Parsed, String> {
         workdir.join(&cli.dir)
     };
     Ok(Parsed::Plan(Box::new(Plan {
-        shards: cli.shards,
+        shards: count,
+        split,
         dir,
         cpus: cli.cpus,
         partition: cli.partition,
@@ -139,8 +201,9 @@ pub fn parse(args: Vec<OsString>) -> Result<Parsed, String> {
     })))
 }
 
-/// The tool's arguments without `--output`, `--threads`, `--overwrite`, `--shard` and
-/// `--merge-shards` (the scripts set them), and the value of `--output`.
+/// The tool's arguments without `--output`, `--threads`, `--overwrite`, `--shard`,
+/// `--merge-shards`, `--tile` and `--merge-tiles` (the scripts set them), and the value of
+/// `--output`.
 fn split_output(args: &[String]) -> Result<(Vec<String>, String), String> {
     let mut kept = Vec::new();
     let mut output = None;
@@ -151,7 +214,15 @@ fn split_output(args: &[String]) -> Result<(Vec<String>, String), String> {
             Some((k, v)) if k.starts_with("--") => (k, Some(v.to_owned())),
             _ => (a.as_str(), None),
         };
-        let takes_value = ["--output", "--threads", "--shard", "--merge-shards"].contains(&key);
+        let takes_value = [
+            "--output",
+            "--threads",
+            "--shard",
+            "--merge-shards",
+            "--tile",
+            "--merge-tiles",
+        ]
+        .contains(&key);
         if takes_value {
             let value = match inline {
                 Some(v) => v,
@@ -172,11 +243,11 @@ fn split_output(args: &[String]) -> Result<(Vec<String>, String), String> {
     Ok((kept, output))
 }
 
-/// Checks that `stance <tool>` takes `--shard` (its process description lists it).
+/// Checks that `stance <tool>` takes `--shard` (or `--tile`; its process description lists it).
 ///
 /// # Errors
-/// An unknown tool, or one that cannot be sharded.
-pub fn check_shardable(stance: &Path, tool: &str) -> Result<(), String> {
+/// An unknown tool, or one that cannot be split so.
+pub fn check_shardable(stance: &Path, tool: &str, split: Split) -> Result<(), String> {
     let described = std::process::Command::new(stance)
         .args([tool, "--describe"])
         .output()
@@ -187,12 +258,18 @@ pub fn check_shardable(stance: &Path, tool: &str) -> Result<(), String> {
         ));
     }
     let text = String::from_utf8_lossy(&described.stdout);
-    if text.contains("\"shard\"") && text.contains("\"merge-shards\"") {
+    let word = split.word();
+    let merge = &split.merge_option()[2..];
+    if text.contains(&format!("\"{word}\"")) && text.contains(&format!("\"{merge}\"")) {
         Ok(())
     } else {
+        let what = match split {
+            Split::Shards => "its work into shards",
+            Split::Tiles => "its grid into tiles",
+        };
         Err(format!(
-            "stance {tool} cannot split its work into shards (no --shard option); \
-             run it on one machine"
+            "stance {tool} cannot split {what} (no {} option); run it on one machine",
+            split.option()
         ))
     }
 }

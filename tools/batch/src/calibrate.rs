@@ -1,15 +1,22 @@
-//! Time and memory of one shard from two short runs of the same tool on small shards.
+//! Time and memory of one shard (or tile) from two short runs of the same tool on small ones.
 //!
 //! A run's time is taken as t(f) = a + b·f, where f is the fraction of the replicates it draws
 //! (a: reading, planning and writing; b: the replicates). Two calibration runs draw 1/(10 N)
 //! and 1/(20 N) of them (shard 1 of 10 N and of 20 N), which gives a and b; a shard of the plan
 //! draws 1/N. The memory is the larger peak resident size of the two runs (measured by the
 //! kernel for the finished child), which does not grow with the replicates a run draws.
+//!
+//! Tiles: f is the fraction of the grid's rows; the calibration tiles are the middle ones of
+//! 10 N and 20 N (the edges of a grid are often empty). A tile's memory grows with its band,
+//! so memory too is taken as m(f) = c + d·f through the two peaks (the smaller tile runs
+//! first: the kernel reports the largest peak of the children so far). The merge holds the
+//! whole grid: its time and memory are the lines at f = 1 (a whole run's, an upper bound, as
+//! the merge computes no sums).
 
 use std::path::Path;
 use std::time::Instant;
 
-use crate::args::{Plan, Resources};
+use crate::args::{Budget, Plan, Resources, Split};
 
 /// Safety factor on the calibrated time and memory.
 const MARGIN: f64 = 1.5;
@@ -18,23 +25,35 @@ const START_MINUTES: u64 = 2;
 /// Least memory asked for, MiB.
 const MIN_MEMORY_MB: u64 = 256;
 
-/// Runs the two calibration shards and returns the resources of one shard of the plan.
+/// Runs the two calibration shards (or tiles) and returns the resources of one part of the
+/// plan and of its merge.
 ///
 /// # Errors
 /// A calibration run that fails (its error line is passed on).
-pub fn calibrate(stance: &Path, plan: &Plan) -> Result<Resources, String> {
+pub fn calibrate(stance: &Path, plan: &Plan) -> Result<Budget, String> {
     let dir = plan.dir.join("calibration");
     std::fs::create_dir_all(&dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+    let (word, option) = (plan.split.word(), plan.split.option());
+    let factors = match plan.split {
+        Split::Shards => [10, 20],
+        Split::Tiles => [20, 10],
+    };
     let mut timed = Vec::new();
-    for factor in [10, 20] {
-        let shards = plan.shards * factor;
-        let output = dir.join(format!("shard_1_of_{shards}.gpkg"));
+    let mut peaks = Vec::new();
+    for factor in factors {
+        let parts = plan.shards * factor;
+        let index = match plan.split {
+            Split::Shards => 1,
+            Split::Tiles => parts.div_ceil(2),
+        };
+        let spec = format!("{index}/{parts}");
+        let output = dir.join(format!("{word}_{index}_of_{parts}.gpkg"));
         let clock = Instant::now();
         let ran = std::process::Command::new(stance)
             .current_dir(&plan.workdir)
             .arg(&plan.tool)
             .args(&plan.args)
-            .args(["--shard", &format!("1/{shards}"), "--overwrite", "-q"])
+            .args([option, &spec, "--overwrite", "-q"])
             .args(["--threads", &plan.cpus.to_string()])
             .arg("--output")
             .arg(&output)
@@ -45,22 +64,34 @@ pub fn calibrate(stance: &Path, plan: &Plan) -> Result<Resources, String> {
             let stderr = String::from_utf8_lossy(&ran.stderr);
             let last = stderr.lines().last().unwrap_or("no message");
             return Err(format!(
-                "the calibration run (shard 1/{shards}) failed: {last}"
+                "the calibration run ({word} {spec}) failed: {last}"
             ));
         }
-        timed.push((1.0 / shards as f64, seconds));
+        timed.push((1.0 / parts as f64, seconds));
+        peaks.push((1.0 / parts as f64, peak_child_mb()));
         let _ = std::fs::remove_file(&output);
     }
     let _ = std::fs::remove_dir(&dir);
-    let seconds = shard_seconds(&timed, 1.0 / plan.shards as f64);
-    Ok(Resources {
+    let resources = |seconds: f64, mb: f64| Resources {
         minutes: (seconds * MARGIN / 60.0).ceil() as u64 + START_MINUTES,
-        memory_mb: ((peak_child_mb() * MARGIN).ceil() as u64).max(MIN_MEMORY_MB),
+        memory_mb: ((mb * MARGIN).ceil() as u64).max(MIN_MEMORY_MB),
+    };
+    let fraction = 1.0 / plan.shards as f64;
+    let part_seconds = shard_seconds(&timed, fraction);
+    Ok(match plan.split {
+        Split::Shards => {
+            let part = resources(part_seconds, peak_child_mb());
+            Budget { part, merge: part }
+        }
+        Split::Tiles => Budget {
+            part: resources(part_seconds, shard_seconds(&peaks, fraction)),
+            merge: resources(shard_seconds(&timed, 1.0), shard_seconds(&peaks, 1.0)),
+        },
     })
 }
 
-/// The time of a run drawing `fraction` of the replicates, from the line through two timed
-/// runs (never less than the longer of them).
+/// The time (or memory) of a run drawing `fraction` of the replicates (or rows), from the line
+/// through two measured runs (never less than the larger of them).
 pub fn shard_seconds(timed: &[(f64, f64)], fraction: f64) -> f64 {
     let longest = timed.iter().map(|t| t.1).fold(0.0, f64::max);
     let [(f1, t1), (f2, t2)] = [timed[0], timed[1]];

@@ -1,6 +1,6 @@
-//! `stance plan-batch`: writes the Slurm scripts of a sharded run — a job array of `--shard
-//! K/N` runs and a merge job that starts when every shard has succeeded — with each shard's
-//! time and memory from a short calibration run. The toolbox never talks to the scheduler: the
+//! `stance plan-batch`: writes the Slurm scripts of a sharded (or tiled) run — a job array of
+//! `--shard K/N` (`--tile K/N`) runs and a merge job that starts when every part has
+//! succeeded — with each part's time and memory from two short calibration runs. The toolbox never talks to the scheduler: the
 //! user submits the scripts with `sbatch` (or `submit.sh`).
 
 pub mod args;
@@ -28,21 +28,27 @@ fn run(args: Vec<OsString>, stance: &std::path::Path) -> Result<String, String> 
         args::Parsed::Plan(plan) => plan,
         args::Parsed::Help(text) => return Ok(text),
     };
-    args::check_shardable(stance, &plan.tool)?;
-    let resources = match plan.fixed {
-        Some(fixed) => fixed,
+    args::check_shardable(stance, &plan.tool, plan.split)?;
+    let budget = match plan.fixed {
+        Some(fixed) => args::Budget {
+            part: fixed,
+            merge: fixed,
+        },
         None => calibrate::calibrate(stance, &plan)?,
     };
-    let written = scripts::write(stance, &plan, &resources)?;
+    let written = scripts::write(stance, &plan, &budget)?;
+    let word = plan.split.word();
     Ok(format!(
-        "{{\"scripts\": {:?}, \"shards\": {}, \"minutes_per_shard\": {}, \"memory_mb_per_shard\": {}, \"calibrated\": {}}}\n",
+        "{{\"scripts\": {:?}, \"{word}s\": {}, \"minutes_per_{word}\": {}, \"memory_mb_per_{word}\": {}, \"minutes_merge\": {}, \"memory_mb_merge\": {}, \"calibrated\": {}}}\n",
         written
             .iter()
             .map(|p| p.display().to_string())
             .collect::<Vec<_>>(),
         plan.shards,
-        resources.minutes,
-        resources.memory_mb,
+        budget.part.minutes,
+        budget.part.memory_mb,
+        budget.merge.minutes,
+        budget.merge.memory_mb,
         plan.fixed.is_none()
     ))
 }

@@ -1,9 +1,9 @@
-//! The three files of a plan: `shards.sbatch` (the job array), `merge.sbatch` and `submit.sh`
-//! (submits both, the merge after every shard has succeeded).
+//! The three files of a plan: `shards.sbatch` (the job array; `tiles.sbatch` for tiles),
+//! `merge.sbatch` and `submit.sh` (submits both, the merge after every part has succeeded).
 
 use std::path::{Path, PathBuf};
 
-use crate::args::{Plan, Resources};
+use crate::args::{Budget, Plan, Resources};
 
 /// A word quoted for a POSIX shell.
 fn quote(word: &str) -> String {
@@ -48,40 +48,58 @@ fn command(stance: &Path, plan: &Plan) -> String {
     words.join(" ")
 }
 
-/// The array job: shard K of N writes `<dir>/shards/shard_K.gpkg`.
+/// The array job: shard K of N writes `<dir>/shards/shard_K.gpkg` (tile K:
+/// `<dir>/tiles/tile_K.gpkg`).
 pub fn shards_script(stance: &Path, plan: &Plan, r: &Resources) -> String {
-    let shards_dir = plan.dir.join("shards");
+    let word = plan.split.word();
+    let parts_dir = plan.dir.join(format!("{word}s"));
+    let what = match plan.split {
+        crate::args::Split::Shards => "each writes only its partial result",
+        crate::args::Split::Tiles => "each writes only its band of grid rows",
+    };
     format!(
         "{}#SBATCH --array=1-{n}\n\
-         # Shard K of {n} of `stance {tool}`; each writes only its partial result.\n\
-         # Redo one shard K: sbatch --array=K shards.sbatch\n\
+         # {Word} K of {n} of `stance {tool}`; {what}.\n\
+         # Redo one {word} K: sbatch --array=K {word}s.sbatch\n\
          set -euo pipefail\n\
-         exec {} --shard \"${{SLURM_ARRAY_TASK_ID}}/{n}\" --overwrite \\\n  \
-         --output {}/\"shard_${{SLURM_ARRAY_TASK_ID}}.gpkg\"\n",
+         exec {} {option} \"${{SLURM_ARRAY_TASK_ID}}/{n}\" --overwrite \\\n  \
+         --output {}/\"{word}_${{SLURM_ARRAY_TASK_ID}}.gpkg\"\n",
         header(
             plan,
-            &format!("stance-{}-shards", plan.tool),
+            &format!("stance-{}-{word}s", plan.tool),
             r.minutes,
             r.memory_mb,
-            "shard_%a.log"
+            &format!("{word}_%a.log")
         ),
         command(stance, plan),
-        quote(&shards_dir.display().to_string()),
+        quote(&parts_dir.display().to_string()),
         n = plan.shards,
         tool = plan.tool,
+        option = plan.split.option(),
+        Word = capitalised(word),
     )
 }
 
-/// The merge job: the run's outputs from every shard (refused, naming the shard, if one is
-/// missing or was written under other options).
+fn capitalised(word: &str) -> String {
+    let mut chars = word.chars();
+    chars
+        .next()
+        .map(|c| c.to_uppercase().chain(chars).collect())
+        .unwrap_or_default()
+}
+
+/// The merge job: the run's outputs from every shard or tile (refused, naming the part, if one
+/// is missing or was written under other options).
 pub fn merge_script(stance: &Path, plan: &Plan, r: &Resources) -> String {
+    let word = plan.split.word();
     format!(
-        "{}# Merges the {n} shards into {output}; the same outputs as one run of `stance {tool}`.\n\
+        "{}# Merges the {n} {word}s into {output}; the same outputs as one run of `stance {tool}`.\n\
          set -euo pipefail\n\
-         exec {} --merge-shards {} --output {}{}\n",
+         exec {} {} {} --output {}{}\n",
         header(plan, &format!("stance-{}-merge", plan.tool), r.minutes, r.memory_mb, "merge.log"),
         command(stance, plan),
-        quote(&plan.dir.join("shards").display().to_string()),
+        plan.split.merge_option(),
+        quote(&plan.dir.join(format!("{word}s")).display().to_string()),
         quote(&plan.output),
         if plan.overwrite { " --overwrite" } else { "" },
         n = plan.shards,
@@ -93,15 +111,16 @@ pub fn merge_script(stance: &Path, plan: &Plan, r: &Resources) -> String {
 /// Submits the array, then the merge with `--dependency=afterok` on it.
 pub fn submit_script(plan: &Plan) -> String {
     let dir = quote(&plan.dir.display().to_string());
+    let word = plan.split.word();
     format!(
         "#!/bin/sh\n\
-         # Submits the {n} shards of `stance {tool}` and their merge, which starts only when every\n\
-         # shard has succeeded.\n\
+         # Submits the {n} {word}s of `stance {tool}` and their merge, which starts only when every\n\
+         # {word} has succeeded.\n\
          set -eu\n\
-         array=$(sbatch --parsable {dir}/shards.sbatch)\n\
+         array=$(sbatch --parsable {dir}/{word}s.sbatch)\n\
          array=${{array%%;*}}\n\
          merge=$(sbatch --parsable --dependency=afterok:\"$array\" {dir}/merge.sbatch)\n\
-         echo \"shards: job $array (array 1-{n}); merge: job ${{merge%%;*}}\"\n",
+         echo \"{word}s: job $array (array 1-{n}); merge: job ${{merge%%;*}}\"\n",
         n = plan.shards,
         tool = plan.tool,
     )
@@ -111,15 +130,22 @@ pub fn submit_script(plan: &Plan) -> String {
 ///
 /// # Errors
 /// A directory or file that cannot be written.
-pub fn write(stance: &Path, plan: &Plan, r: &Resources) -> Result<Vec<PathBuf>, String> {
-    for sub in ["shards", "logs"] {
+pub fn write(stance: &Path, plan: &Plan, r: &Budget) -> Result<Vec<PathBuf>, String> {
+    let parts = format!("{}s", plan.split.word());
+    for sub in [parts.as_str(), "logs"] {
         let d = plan.dir.join(sub);
         std::fs::create_dir_all(&d).map_err(|e| format!("{}: {e}", d.display()))?;
     }
     let files = [
-        ("shards.sbatch", shards_script(stance, plan, r)),
-        ("merge.sbatch", merge_script(stance, plan, r)),
-        ("submit.sh", submit_script(plan)),
+        (
+            format!("{parts}.sbatch"),
+            shards_script(stance, plan, &r.part),
+        ),
+        (
+            "merge.sbatch".to_owned(),
+            merge_script(stance, plan, &r.merge),
+        ),
+        ("submit.sh".to_owned(), submit_script(plan)),
     ];
     let mut written = Vec::new();
     for (name, text) in files {
@@ -137,6 +163,7 @@ mod tests {
     fn plan() -> Plan {
         Plan {
             shards: 4,
+            split: crate::args::Split::Shards,
             dir: PathBuf::from("/work/b"),
             cpus: 2,
             partition: Some("long".into()),
@@ -179,5 +206,22 @@ mod tests {
             "{submit}"
         );
         assert_eq!(quote("it's"), "'it'\\''s'");
+
+        let tiles = Plan {
+            split: crate::args::Split::Tiles,
+            ..plan()
+        };
+        let array = shards_script(Path::new("/opt/stance"), &tiles, &r);
+        assert!(
+            array.contains("--tile \"${SLURM_ARRAY_TASK_ID}/4\"")
+                && array.contains("--output /work/b/tiles/\"tile_${SLURM_ARRAY_TASK_ID}.gpkg\""),
+            "{array}"
+        );
+        let merge = merge_script(Path::new("/opt/stance"), &tiles, &r);
+        assert!(
+            merge.contains("--merge-tiles /work/b/tiles --output out.gpkg"),
+            "{merge}"
+        );
+        assert!(submit_script(&tiles).contains("/work/b/tiles.sbatch"));
     }
 }

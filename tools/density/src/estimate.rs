@@ -302,6 +302,46 @@ impl Estimator {
         out
     }
 
+    /// [`Estimator::sum`] by exact direct sums on the grid rows `rows` only (a tile of a tiled
+    /// run; no edge correction): equal to those rows of `sum` with [`Method::Direct`] bit for
+    /// bit. NaN outside the mask.
+    pub fn direct_sum_rows(
+        &self,
+        points: &Points<'_>,
+        indices: &[usize],
+        rows: std::ops::Range<usize>,
+    ) -> Vec<f64> {
+        let cols = self.grid.cols;
+        let mut out = vec![0.0; rows.len() * cols];
+        for (l, h) in self.bandwidths.levels_m.iter().enumerate() {
+            let group: Vec<usize> = if self.bandwidths.levels_m.len() == 1 {
+                indices.to_vec()
+            } else {
+                indices
+                    .iter()
+                    .copied()
+                    .filter(|&i| self.bandwidths.level(i) == l)
+                    .collect()
+            };
+            if group.is_empty() {
+                continue;
+            }
+            let level = direct_sum_rows(&self.grid, self.kernel, *h, points, &group, rows.clone());
+            for (o, v) in out.iter_mut().zip(&level) {
+                *o += v;
+            }
+        }
+        if let Some(mask) = &self.mask {
+            let inside = &mask[rows.start * cols..rows.end * cols];
+            for (v, inside) in out.iter_mut().zip(inside) {
+                if !*inside {
+                    *v = f64::NAN;
+                }
+            }
+        }
+        out
+    }
+
     fn add_corrected(&self, out: &mut [f64], level: &[f64], l: usize) {
         match &self.edge_mass {
             Some(edge) => {
@@ -330,7 +370,37 @@ pub fn direct_sum(
     points: &Points<'_>,
     indices: &[usize],
 ) -> Vec<f64> {
-    let mut out = vec![0.0; grid.len()];
+    direct_sum_rows(grid, kernel, h_m, points, indices, 0..grid.rows)
+}
+
+/// The rows of the grid a point at northing `y` reaches with a kernel reaching `reach` m
+/// (empty when none): the rows whose centres lie within `reach` of `y`.
+pub fn rows_reached(grid: &Grid, y: f64, reach: f64) -> std::ops::Range<usize> {
+    let y_max = grid.y_max();
+    let r_lo = (((y_max - y - reach) / grid.cell_m - 0.5).ceil()).max(0.0) as usize;
+    let r_hi = ((y_max - y + reach) / grid.cell_m - 0.5).floor();
+    if r_hi < 0.0 {
+        return 0..0;
+    }
+    let r_hi = (r_hi as usize).min(grid.rows.saturating_sub(1));
+    r_lo..(r_hi + 1).max(r_lo)
+}
+
+/// [`direct_sum`] on the grid rows `rows` only (`rows.len() × cols` values): every cell gets
+/// the same terms, in the same order and with the same arithmetic, as in the whole grid's sum,
+/// so a band of rows equals those rows of [`direct_sum`] bit for bit.
+pub fn direct_sum_rows(
+    grid: &Grid,
+    kernel: Kernel,
+    h_m: f64,
+    points: &Points<'_>,
+    indices: &[usize],
+    rows: std::ops::Range<usize>,
+) -> Vec<f64> {
+    let mut out = vec![0.0; rows.len() * grid.cols];
+    if rows.is_empty() {
+        return out;
+    }
     let reach = kernel.support_m(h_m);
     let y_max = grid.y_max();
     for &i in indices {
@@ -344,11 +414,14 @@ pub fn direct_sum(
         }
         let c_hi = (c_hi as usize).min(grid.cols.saturating_sub(1));
         let r_hi = (r_hi as usize).min(grid.rows.saturating_sub(1));
+        let r_lo = r_lo.max(rows.start);
+        let r_hi = r_hi.min(rows.end - 1);
         for r in r_lo..=r_hi {
             let dy = y_max - (r as f64 + 0.5) * grid.cell_m - y;
+            let row = (r - rows.start) * grid.cols;
             for c in c_lo..=c_hi {
                 let dx = grid.x_min + (c as f64 + 0.5) * grid.cell_m - x;
-                out[r * grid.cols + c] += w * kernel.value(dx * dx + dy * dy, h_m);
+                out[row + c] += w * kernel.value(dx * dx + dy * dy, h_m);
             }
         }
     }

@@ -25,6 +25,7 @@ pub mod segregation;
 pub mod shards;
 pub mod slice;
 pub mod surfaces;
+pub mod tiles;
 pub mod tolerance;
 pub mod types;
 
@@ -126,6 +127,14 @@ impl Tool for Density {
             false => None,
         };
         let shards = shards::prepare(params, &config, run)?;
+        let tiles = tiles::prepare(params, &config, &plan, run)?;
+        if tiles.is_tile() {
+            run.progress.phase("tile");
+            let data = tiles::compute(&config, &records, &plan, &slices, &tiles, run)?;
+            if let Some(summary) = tiles.write(run, &data)? {
+                return Ok(summary);
+            }
+        }
         let context = Context {
             config: &config,
             records: &records,
@@ -133,6 +142,7 @@ impl Tool for Density {
             slices: slices.len(),
             types: types_plan.as_ref(),
             shards: &shards,
+            tiles: &tiles,
         };
         let mut summaries = Vec::with_capacity(slices.len());
         // Time spent in the class estimates alone (for benchmarks; logged with -v).

@@ -337,7 +337,7 @@ pub fn summary(config: &Config, records: &Records, plan: &Plan, slices: &[SliceS
             "pilot_geometric_mean_per_km2": g * 1e6,
         })
     });
-    let method = match plan.estimator.method() {
+    let method = match plan.method {
         Method::Fft => "linear binning + FFT",
         Method::Direct => "direct exact sums",
     };

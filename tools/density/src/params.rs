@@ -2,7 +2,7 @@
 
 use stance_core::error::{Error, Result};
 use stance_core::gpkg;
-use stance_core::host::shard::{ShardArgs, Sharding};
+use stance_core::host::shard::{ShardArgs, Sharding, TileArgs, Tiling};
 use stance_core::stance::{ClassMap, Stance};
 
 use crate::kernel::Kernel;
@@ -122,7 +122,10 @@ pub struct DensityParams {
     #[arg(long, value_name = "P", default_value_t = 0.05)]
     pub alpha: f64,
 
-    /// How kernel sums are computed.
+    /// How kernel sums are computed. Tiles (--tile, --merge-tiles) of direct sums merge into
+    /// the surfaces of a run on one machine bit for bit; with the FFT each tile transforms its
+    /// own band, which rounds differently: every merged cell is within 1e-6 of the surface's
+    /// largest absolute value, with nodata in the same cells.
     #[arg(long, value_enum, value_name = "METHOD", default_value_t = MethodChoice::Auto)]
     pub method: MethodChoice,
 
@@ -138,6 +141,14 @@ pub struct DensityParams {
     #[command(flatten)]
     #[serde(flatten)]
     pub shards: ShardArgs,
+
+    /// Tiling of the grid over several runs (bands of grid rows, each computed from the
+    /// points within the kernel's reach), merged into one coverage (see --method for how
+    /// closely). Needs --permutations 0; not with --shard, --adaptive, --edge-correct or
+    /// --type-probabilities.
+    #[command(flatten)]
+    #[serde(flatten)]
+    pub tiles: TileArgs,
 }
 
 /// The parameters after [`DensityParams::check`]: numbers in range, classes parsed.
@@ -145,6 +156,8 @@ pub struct DensityParams {
 pub struct Config {
     /// The whole run, one shard of its relabellings, or the merge of the shards.
     pub sharding: Sharding,
+    /// The whole grid, one tile of its rows, or the merge of the tiles.
+    pub tiling: Tiling,
     /// Labels → classes.
     pub classes: ClassMap,
     /// Class A of `--compare` (the numerator).
@@ -218,7 +231,12 @@ impl DensityParams {
             None => ClassMap::default(),
         };
         let (class_a, class_b) = parse_compare(&self.compare)?;
+        let tiling = self.tiles.tiling()?;
+        if tiling != Tiling::Whole {
+            self.check_tiled()?;
+        }
         Ok(Config {
+            tiling,
             sharding: self.shards.sharding()?,
             classes,
             class_a,
@@ -238,6 +256,53 @@ impl DensityParams {
             slice: self.slice,
             type_probabilities: self.type_probabilities,
         })
+    }
+}
+
+impl DensityParams {
+    /// The options a tiled run does not take, refused naming the option: what needs the whole
+    /// grid (or every point's pilot density) at once.
+    fn check_tiled(&self) -> Result<()> {
+        let option = if self.tiles.tile.is_some() {
+            "--tile"
+        } else {
+            "--merge-tiles"
+        };
+        let refuse =
+            |name: &str, why: &str| Err(Error::argument(name, format!("not with {option}: {why}")));
+        if self.shards.shard.is_some() || self.shards.merge_shards.is_some() {
+            let name = if self.shards.shard.is_some() {
+                "--shard"
+            } else {
+                "--merge-shards"
+            };
+            return refuse(name, "a run is split into shards or into tiles, not both");
+        }
+        if self.permutations > 0 {
+            return refuse(
+                "--permutations",
+                "the tolerance p-values compare every relabelling with a floor taken from the                  whole grid; give --permutations 0 (or split the relabellings with --shard)",
+            );
+        }
+        if self.type_probabilities {
+            return refuse(
+                "--type-probabilities",
+                "its bandwidth and test use the whole grid; run it whole or split it with --shard",
+            );
+        }
+        if self.adaptive {
+            return refuse(
+                "--adaptive",
+                "the bandwidth of every point comes from a pilot estimate over the whole grid",
+            );
+        }
+        if self.edge_correct {
+            return refuse(
+                "--edge-correct",
+                "the kernel mass inside the mask is computed over the whole grid",
+            );
+        }
+        Ok(())
     }
 }
 

@@ -5,6 +5,7 @@
 use geo_types::MultiPolygon;
 use stance_core::error::{Error, Result};
 use stance_core::grid::Grid;
+use stance_core::host::shard::Tiling;
 use stance_core::host::Run;
 use stance_core::stance::Stance;
 
@@ -37,8 +38,11 @@ pub struct Plan {
     pub bandwidth: Selection,
     /// The grid.
     pub grid: Grid,
-    /// The estimator on the grid.
+    /// The estimator on the grid (in a tiled run, direct sums only: the tiles' method is
+    /// [`Plan::method`]).
     pub estimator: Estimator,
+    /// How the kernel sums are computed (the same in every tile of a tiled run).
+    pub method: Method,
     /// Geometric mean of the pilot estimate (per m²) of an adaptive estimate.
     pub pilot_geometric_mean: Option<f64>,
     /// Points outside the mask (they add nothing).
@@ -98,11 +102,16 @@ pub fn plan(
     let h_max = bandwidths.levels_m.iter().cloned().fold(0.0, f64::max);
     let levels = bandwidths.levels_m.len();
     let method = choose(config, &grid, h_max, levels, points.x.len());
+    // A tiled run never transforms the whole grid: its tiles sum on their own bands.
+    let whole_method = match config.tiling {
+        Tiling::Whole => method,
+        _ => Method::Direct,
+    };
     let estimator = Estimator::new(
         grid,
         config.kernel,
         bandwidths,
-        method,
+        whole_method,
         mask,
         config.edge_correct,
     );
@@ -110,6 +119,7 @@ pub fn plan(
         bandwidth,
         grid,
         estimator,
+        method,
         pilot_geometric_mean,
         dropped_outside_mask,
     })
@@ -239,13 +249,39 @@ fn surface_grid(config: &Config, run: &Run, frame: &Frame, h: f64, masked: bool)
     }
     // Memory: the output and per-class surfaces (f64 while computed, f32 when written), and
     // the zero-padded FFT buffers (complex f64) per bandwidth level and per worker thread.
-    let surfaces = (Stance::ALL.len() + 8) as f64 * grid.len() as f64 * 12.0;
+    // A tile holds its band and the kernel's reach around it (and the grid's mask flags); a
+    // merge holds the whole grid but transforms nothing.
+    let (held, padded, flags, what) = match config.tiling {
+        Tiling::Whole => (
+            grid.len() as f64,
+            padded,
+            0.0,
+            format!("a {}×{} grid", grid.cols, grid.rows),
+        ),
+        Tiling::Tile { index, count } => {
+            let band = crate::tiles::window(&grid, config.kernel, h, index, count);
+            let rows = band.len() as f64;
+            (
+                rows * grid.cols as f64,
+                (rows + margin / cell_m) * (grid.cols as f64 + margin / cell_m),
+                if masked { grid.len() as f64 } else { 0.0 },
+                format!("a tile of {}×{} cells", grid.cols, band.len()),
+            )
+        }
+        Tiling::Merge(_) => (
+            grid.len() as f64,
+            0.0,
+            0.0,
+            format!("a {}×{} grid", grid.cols, grid.rows),
+        ),
+    };
+    let surfaces = (Stance::ALL.len() + 8) as f64 * held * 12.0 + flags;
     let fft = padded * 16.0 * (2.0 + 2.0 * rayon::current_num_threads() as f64);
-    run.guard_memory(
-        (surfaces + fft) as u64,
-        &format!("a {}×{} grid", grid.cols, grid.rows),
-        "use a larger --cell-m or a --mask-layer",
-    )?;
+    let advice = match config.tiling {
+        Tiling::Whole => "use a larger --cell-m or a --mask-layer",
+        _ => "use a larger --cell-m, a --mask-layer or more tiles",
+    };
+    run.guard_memory((surfaces + fft) as u64, &what, advice)?;
     if margin < 2.0 * cell_m {
         run.log(format!(
             "warning: the kernel reaches {margin:.0} m, under two cells of {cell_m} m; \

@@ -6,6 +6,7 @@ use std::time::Instant;
 
 use geo_types::Polygon;
 use stance_core::error::{Error, Result};
+use stance_core::host::shard::TileRun;
 use stance_core::host::Run;
 use stance_core::montecarlo::replicate_seed;
 use stance_core::stance::Stance;
@@ -39,6 +40,8 @@ pub struct Context<'a> {
     pub types: Option<&'a TypesPlan>,
     /// This run's share of the relabellings.
     pub shards: &'a Shards,
+    /// The merged tiles of a `--merge-tiles` run (their sums replace the estimator's).
+    pub tiles: &'a TileRun,
 }
 
 impl Context<'_> {
@@ -122,7 +125,10 @@ pub fn slice_surfaces(
         };
         summary.counts.push((class, idx.len()));
         let clock = Instant::now();
-        let sum = context.plan.estimator.sum(&points, idx);
+        let sum = match crate::tiles::merged_sum(context.tiles, slice.index, class)? {
+            Some(merged) => merged,
+            None => context.plan.estimator.sum(&points, idx),
+        };
         compute_s += clock.elapsed().as_secs_f64();
         let factor = per_km2(config.scale, points.total_weight(idx));
         let scaled: Vec<f64> = sum.iter().map(|v| v * factor).collect();
