@@ -47,7 +47,7 @@ pub fn tools() -> Vec<Entry> {
 
 const USAGE: &str = "usage: stance list | stance describe [TOOL] | stance <TOOL> ARGS… \
     (stance <TOOL> --help) | stance check-plugin PATH | stance serve [OPTIONS] | \
-    stance plan-batch --shards N --dir DIR -- TOOL ARGS…";
+    stance plan-batch --shards N|--tiles N --dir DIR -- TOOL ARGS…";
 
 /// Every process: the built-in tools, then plugins from `STANCE_PLUGIN_PATH` and `PATH`.
 pub fn processes(tools: &[Entry]) -> Vec<Process> {
