@@ -3,8 +3,11 @@
 //! A run's time is taken as t(f) = a + b·f, where f is the fraction of the replicates it draws
 //! (a: reading, planning and writing; b: the replicates). Two calibration runs draw 1/(10 N)
 //! and 1/(20 N) of them (shard 1 of 10 N and of 20 N), which gives a and b; a shard of the plan
-//! draws 1/N. The memory is the larger peak resident size of the two runs (measured by the
-//! kernel for the finished child), which does not grow with the replicates a run draws.
+//! draws 1/N. The memory is the larger of the two runs' peak resident sizes (measured by the
+//! kernel for the finished child) and of the tool's own estimate of its peak
+//! (`memory_estimate_mb` in the run's summary, where the tool makes one), which do not grow with
+//! the replicates a run draws. The fixed part a repeats in every shard; when N shards cost much
+//! more than one process because of it, a warning says so.
 //!
 //! Tiles: f is the fraction of the grid's rows; the calibration tiles are the middle ones of
 //! 10 N and 20 N (the edges of a grid are often empty). A tile's memory grows with its band,
@@ -40,6 +43,7 @@ pub fn calibrate(stance: &Path, plan: &Plan) -> Result<Budget, String> {
     };
     let mut timed = Vec::new();
     let mut peaks = Vec::new();
+    let mut estimates = Vec::new();
     for factor in factors {
         let parts = plan.shards * factor;
         let index = match plan.split {
@@ -69,6 +73,7 @@ pub fn calibrate(stance: &Path, plan: &Plan) -> Result<Budget, String> {
         }
         timed.push((1.0 / parts as f64, seconds));
         peaks.push((1.0 / parts as f64, peak_child_mb()));
+        estimates.push((1.0 / parts as f64, memory_estimate_mb(&ran.stdout)));
         let _ = std::fs::remove_file(&output);
     }
     let _ = std::fs::remove_dir(&dir);
@@ -78,16 +83,57 @@ pub fn calibrate(stance: &Path, plan: &Plan) -> Result<Budget, String> {
     };
     let fraction = 1.0 / plan.shards as f64;
     let part_seconds = shard_seconds(&timed, fraction);
+    let memory = |at: f64| shard_seconds(&peaks, at).max(shard_seconds(&estimates, at));
+    if plan.split == Split::Shards {
+        if let Some(share) = repeated_share(&timed, plan.shards) {
+            crate::warn(&format!(
+                "each shard repeats about {:.1} s of reading and set-up, so {} shards take about                  {:.0} % longer in all than one process; fewer shards (or more replicates) waste less",
+                fixed_seconds(&timed),
+                plan.shards,
+                100.0 * share
+            ));
+        }
+    }
     Ok(match plan.split {
         Split::Shards => {
-            let part = resources(part_seconds, peak_child_mb());
+            let most = estimates.iter().map(|e| e.1).fold(0.0, f64::max);
+            let part = resources(part_seconds, peak_child_mb().max(most));
             Budget { part, merge: part }
         }
         Split::Tiles => Budget {
-            part: resources(part_seconds, shard_seconds(&peaks, fraction)),
-            merge: resources(shard_seconds(&timed, 1.0), shard_seconds(&peaks, 1.0)),
+            part: resources(part_seconds, memory(fraction)),
+            merge: resources(shard_seconds(&timed, 1.0), memory(1.0)),
         },
     })
+}
+
+/// The tool's estimate of its peak memory in a run's summary (`memory_estimate_mb`), MiB; 0
+/// when it makes none.
+fn memory_estimate_mb(stdout: &[u8]) -> f64 {
+    serde_json::from_slice::<serde_json::Value>(stdout)
+        .ok()
+        .and_then(|v| v["memory_estimate_mb"].as_f64())
+        .unwrap_or(0.0)
+}
+
+/// The fixed part a of t(f) = a + b·f through two timed runs.
+fn fixed_seconds(timed: &[(f64, f64)]) -> f64 {
+    let [(f1, t1), (f2, t2)] = [timed[0], timed[1]];
+    let slope = if (f1 - f2).abs() > 0.0 {
+        ((t1 - t2) / (f1 - f2)).max(0.0)
+    } else {
+        0.0
+    };
+    (t1 - slope * f1).max(0.0)
+}
+
+/// How much longer `shards` shards take in all than one process, as a share of the one
+/// process's time ((N − 1)·a / (a + b)), when that exceeds a tenth; None otherwise.
+pub fn repeated_share(timed: &[(f64, f64)], shards: usize) -> Option<f64> {
+    let a = fixed_seconds(timed);
+    let whole = shard_seconds(timed, 1.0);
+    let share = (shards.saturating_sub(1)) as f64 * a / whole.max(f64::MIN_POSITIVE);
+    (share > 0.1).then_some(share)
 }
 
 /// The time (or memory) of a run drawing `fraction` of the replicates (or rows), from the line
@@ -128,5 +174,23 @@ mod tests {
         assert!((t - 53.0).abs() < 1e-9, "{t}");
         // Noise making the slope negative: the longer run is the estimate.
         assert_eq!(shard_seconds(&[(0.0125, 5.0), (0.00625, 6.0)], 0.125), 6.0);
+    }
+
+    #[test]
+    fn repeated_start_by_hand() {
+        // t = 3 + 400 f: one process 403 s; 8 shards repeat 3 s seven more times = 21 s, 5 %:
+        // no warning. t = 30 + 400 f: 7 × 30 / 430 = 49 %.
+        assert_eq!(repeated_share(&[(0.0125, 8.0), (0.00625, 5.5)], 8), None);
+        let share = repeated_share(&[(0.0125, 35.0), (0.00625, 32.5)], 8).expect("warned");
+        assert!((share - 210.0 / 430.0).abs() < 1e-9, "{share}");
+    }
+
+    #[test]
+    fn the_tool_estimate_is_read_from_the_summary() {
+        assert_eq!(
+            memory_estimate_mb(br#"{"results": {}, "memory_estimate_mb": 612}"#),
+            612.0
+        );
+        assert_eq!(memory_estimate_mb(br#"{"results": {}}"#), 0.0);
     }
 }

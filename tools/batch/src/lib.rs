@@ -23,6 +23,11 @@ pub fn main(args: Vec<OsString>, stance: &std::path::Path) -> ExitCode {
     }
 }
 
+/// A warning line on stderr (the plan is still written).
+pub fn warn(message: &str) {
+    print_stderr(&format!("stance plan-batch: warning: {message}"));
+}
+
 fn run(args: Vec<OsString>, stance: &std::path::Path) -> Result<String, String> {
     let plan = match args::parse(args)? {
         args::Parsed::Plan(plan) => plan,
