@@ -510,7 +510,7 @@ fn scan_memory_estimate_is_reported_and_enforced() {
     let estimate = summary["memory_estimate_mb"]
         .as_u64()
         .expect("memory_estimate_mb");
-    // 64 MiB fixed + 48 bytes per record for 3,000 records, plus the counts (a few kB).
+    // 64 MiB fixed + 52 bytes per record for 3,000 records, plus the counts (a few kB).
     assert!((64..80).contains(&estimate), "{estimate} MiB");
     let _ = std::fs::remove_file(dir.join("small.gpkg"));
     let mut small = args("10");

@@ -227,7 +227,7 @@ fn scan(config: &Config, run: &mut Run, data: &Data) -> Result<ScanResult> {
 }
 
 /// The peak memory of a scan, estimated before it runs (bytes): a fixed 64 MiB (program, GDAL,
-/// buffers); about 48 bytes per feature read (positions, ids, classes and times as read, the
+/// buffers); about 52 bytes per feature read (positions, ids, classes and times as read, the
 /// locations they map to, and the relabelled copies the worker threads hold; measured at 1, 5
 /// and 10 million records); the counts of one block of labellings (a byte per location,
 /// labelling and class, at most [`analysis::BLOCK_BYTES`]); for space-time scans each worker's
@@ -246,7 +246,7 @@ pub fn memory_estimate(
     let (features, locations) = (features as f64, locations as f64);
     let labellings = (config.scan.drawn.len() + 1) as f64;
     let threads = rayon::current_num_threads() as f64;
-    let mut bytes = 64.0 * 1048576.0 + 48.0 * features;
+    let mut bytes = 64.0 * 1048576.0 + 52.0 * features;
     match periods {
         None => bytes += (locations * labellings * width).min(analysis::BLOCK_BYTES as f64),
         Some(t) => {
