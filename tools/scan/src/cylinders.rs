@@ -17,7 +17,7 @@ use stance_core::montecarlo::replicate_rng;
 
 use crate::engine::Stopped;
 use crate::models::{Side, WindowModel, ORDINAL_CLASSES};
-use crate::windows::{GridIndex, Neighbourhood, Sites, WindowLimits};
+use crate::windows::{hilbert_order, GridIndex, Neighbourhood, Sites, WindowLimits};
 
 /// The counts of one labelling per location and period.
 pub trait CylinderLabelling: Sync {
@@ -229,7 +229,14 @@ pub fn scan_cylinders<M: WindowModel, L: CylinderLabelling>(
         setup,
         model,
         circles: &circles,
+        visit: hilbert_order(setup.centres),
         period_total: &period_total,
+        period_prefix: std::iter::once(0.0)
+            .chain(period_total.iter().scan(0u64, |sum, &v| {
+                *sum += v;
+                Some(*sum as f64)
+            }))
+            .collect(),
         all_records: period_total.iter().sum::<u64>() as f64,
         runs_per_circle: (0..t)
             .map(|first| setup.max_duration.min(t - first) as u64)
@@ -288,10 +295,23 @@ struct Scanner<'a, M> {
     setup: &'a CylinderSetup<'a>,
     model: &'a M,
     circles: &'a [Circles],
+    /// The order the centres are visited in.
+    visit: Vec<u32>,
     period_total: &'a [u64],
+    /// Records of periods 0…k−1, for k = 0…periods (exact: whole numbers below 2^53).
+    period_prefix: Vec<f64>,
     all_records: f64,
     /// Cylinders per circle.
     runs_per_circle: u64,
+}
+
+/// Room for [`Scanner::expected_runs`]'s screening of one circle: the circle's records of
+/// periods 0…k−1 (as f64, exact) and, per run length and first period, whether the run passes
+/// the bound.
+#[derive(Default)]
+struct Screen {
+    prefix: Vec<f64>,
+    passes: Vec<bool>,
 }
 
 impl<M: WindowModel> Scanner<'_, M> {
@@ -302,10 +322,18 @@ impl<M: WindowModel> Scanner<'_, M> {
         let width = M::WIDTH;
         let mut acc = vec![0u32; t * width];
         let mut records = vec![0u32; t];
+        let mut screen = Screen::default();
         let mut max = 0.0f64;
-        let mut best = Vec::with_capacity(if observed { self.circles.len() } else { 0 });
+        let mut best = if observed {
+            vec![None; self.circles.len()]
+        } else {
+            Vec::new()
+        };
         let mut windows = 0u64;
-        for circles in self.circles {
+        // Centres along a Hilbert curve: the next centre's circles mostly hold the places whose
+        // counts were just read, still in cache. The maxima do not depend on the order.
+        for &centre in &self.visit {
+            let circles = &self.circles[centre as usize];
             acc.iter_mut().for_each(|a| *a = 0);
             records.iter_mut().for_each(|a| *a = 0);
             let mut circle_records = 0.0;
@@ -318,11 +346,15 @@ impl<M: WindowModel> Scanner<'_, M> {
                 {
                     *a += c;
                 }
-                for (a, &c) in records
-                    .iter_mut()
-                    .zip(&self.setup.records[l * t..(l + 1) * t])
-                {
-                    *a += c;
+                // The permutation model reads the records per period only for the observed
+                // data's best cylinders.
+                if observed || self.setup.sizing == Sizing::Records {
+                    for (a, &c) in records
+                        .iter_mut()
+                        .zip(&self.setup.records[l * t..(l + 1) * t])
+                    {
+                        *a += c;
+                    }
                 }
                 circle_records += self.setup.weight[l];
                 if !circles.closes[step] {
@@ -338,7 +370,7 @@ impl<M: WindowModel> Scanner<'_, M> {
                     Sizing::Records => self.runs(&circle, observed, floor, &mut max, &mut windows),
                     Sizing::Expected => {
                         windows += self.runs_per_circle;
-                        self.expected_runs(&circle, observed, floor, &mut max)
+                        self.expected_runs(&circle, observed, floor, &mut max, &mut screen)
                     }
                 };
                 if let Some(mut found) = found {
@@ -355,7 +387,7 @@ impl<M: WindowModel> Scanner<'_, M> {
                 }
             }
             if observed {
-                best.push(centre_best);
+                best[centre as usize] = centre_best;
             }
         }
         (max, best, windows)
@@ -372,10 +404,15 @@ impl<M: WindowModel> Scanner<'_, M> {
         observed: bool,
         centre_floor: f64,
         max: &mut f64,
+        screen: &mut Screen,
     ) -> Option<CylinderBest> {
         let t = self.setup.periods;
         let total = self.all_records;
         let total2 = total * total;
+        let floor_at_start = if observed { centre_floor } else { *max };
+        if !self.screen(circle, floor_at_start, screen) {
+            return None;
+        }
         let mut best: Option<CylinderBest> = None;
         let mut floor = if observed { centre_floor } else { *max };
         for first in 0..t {
@@ -384,6 +421,9 @@ impl<M: WindowModel> Scanner<'_, M> {
                 c += circle.acc[last];
                 n += circle.records[last];
                 in_periods += self.period_total[last];
+                if !screen.passes[(last - first) * t + first] {
+                    continue;
+                }
                 let p = circle.circle_records * in_periods as f64;
                 let excess = f64::from(c) * total - p;
                 if excess <= 0.0
@@ -418,6 +458,47 @@ impl<M: WindowModel> Scanner<'_, M> {
             }
         }
         best
+    }
+
+    /// Marks in `screen.passes` the runs of periods (by length − 1, then first period) of one
+    /// circle that pass [`Scanner::expected_runs`]'s bound at `floor`, and says whether any does.
+    /// The test is the same arithmetic on the same numbers as `expected_runs` (counts and
+    /// period totals are whole numbers below 2^53, so differences of their running sums are
+    /// exact), done for all first periods of one length at once; as the floor only rises,
+    /// every run `expected_runs` would score is marked.
+    fn screen(&self, circle: &Circle<'_>, floor: f64, screen: &mut Screen) -> bool {
+        let t = self.setup.periods;
+        let total = self.all_records;
+        let total2 = total * total;
+        screen.prefix.clear();
+        screen.prefix.push(0.0);
+        let mut sum = 0u32;
+        for &c in &circle.acc[..t] {
+            sum += c;
+            screen.prefix.push(f64::from(sum));
+        }
+        let lengths = self.setup.max_duration.min(t);
+        screen.passes.clear();
+        screen.passes.resize(lengths * t, false);
+        let mut any = false;
+        let (cum, periods) = (&screen.prefix, &self.period_prefix);
+        let bound = Bound {
+            circle_records: circle.circle_records,
+            total,
+            total2,
+            floor,
+        };
+        for d in 0..lengths {
+            let starts = t - d;
+            let row = &mut screen.passes[d * t..d * t + starts];
+            any |= screen_row(
+                (&cum[..starts], &cum[d + 1..d + 1 + starts]),
+                (&periods[..starts], &periods[d + 1..d + 1 + starts]),
+                bound,
+                row,
+            );
+        }
+        any
     }
 
     /// Scores every run of periods of one circle for the case/control models (the size is the
@@ -484,6 +565,75 @@ fn permutation_bound(c: f64, mu: f64, total: f64) -> f64 {
     }
     let bound = (c - mu) * (c / mu - (total - c) / (total - mu));
     bound * (1.0 + 1e-9) + 1e-12
+}
+
+/// The constants of [`Scanner::expected_runs`]'s bound for one circle.
+#[derive(Clone, Copy)]
+struct Bound {
+    circle_records: f64,
+    total: f64,
+    total2: f64,
+    floor: f64,
+}
+
+/// One run length's screening: `out[f]` is whether the run from period f passes the bound,
+/// given the running sums of the circle's records and of every period's records at the run's
+/// start (`lo`) and one past its end (`hi`). Branch-free, so that it runs on vectors; the
+/// arithmetic is [`Scanner::expected_runs`]'s, operation for operation.
+#[inline(always)]
+fn screen_row_body(
+    (counts_lo, counts_hi): (&[f64], &[f64]),
+    (periods_lo, periods_hi): (&[f64], &[f64]),
+    b: Bound,
+    out: &mut [bool],
+) -> bool {
+    let mut any = false;
+    for ((((pass, &c0), &c1), &p0), &p1) in out
+        .iter_mut()
+        .zip(counts_lo)
+        .zip(counts_hi)
+        .zip(periods_lo)
+        .zip(periods_hi)
+    {
+        let c = c1 - c0;
+        let p = b.circle_records * (p1 - p0);
+        let excess = c * b.total - p;
+        let passes = (excess > 0.0)
+            & (excess * excess * b.total * (1.0 + 1e-9) > b.floor * p * (b.total2 - p));
+        *pass = passes;
+        any |= passes;
+    }
+    any
+}
+
+/// [`screen_row_body`] compiled for AVX2.
+///
+/// # Safety
+/// Only on a processor with AVX2.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn screen_row_avx2(
+    counts: (&[f64], &[f64]),
+    periods: (&[f64], &[f64]),
+    b: Bound,
+    out: &mut [bool],
+) -> bool {
+    screen_row_body(counts, periods, b, out)
+}
+
+/// [`screen_row_body`] on the widest vectors the processor has (the same results on any).
+fn screen_row(
+    counts: (&[f64], &[f64]),
+    periods: (&[f64], &[f64]),
+    b: Bound,
+    out: &mut [bool],
+) -> bool {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 is present.
+        return unsafe { screen_row_avx2(counts, periods, b, out) };
+    }
+    screen_row_body(counts, periods, b, out)
 }
 
 /// The per-period counts of one circle.

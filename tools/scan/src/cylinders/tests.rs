@@ -245,3 +245,56 @@ fn pruned_replicate_maxima_equal_every_cylinder_scored() {
         assert_eq!(observed_max, max, "replicate {}", r + 1);
     }
 }
+
+#[test]
+fn screened_runs_are_those_the_scalar_bound_passes() {
+    // The vector screen against the bound of `expected_runs` run by run (first period, then
+    // length, running sums as integers), on random circles: the same runs, bit for bit.
+    use rand::{Rng, SeedableRng};
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+    for _ in 0..200 {
+        let t = rng.random_range(1..40usize);
+        let lengths = rng.random_range(1..=t);
+        let period_total: Vec<u64> = (0..t).map(|_| rng.random_range(0..5000)).collect();
+        let total: u64 = period_total.iter().sum::<u64>().max(1);
+        let acc: Vec<u32> = (0..t).map(|_| rng.random_range(0..60)).collect();
+        let circle_records = f64::from(rng.random_range(1..3000u32));
+        let floor = rng.random_range(0.0..30.0);
+        let (total, total2) = (total as f64, total as f64 * total as f64);
+        let prefix = |v: Vec<f64>| -> Vec<f64> {
+            std::iter::once(0.0)
+                .chain(v.iter().scan(0.0, |s, &x| {
+                    *s += x;
+                    Some(*s)
+                }))
+                .collect()
+        };
+        let cum = prefix(acc.iter().map(|&c| f64::from(c)).collect());
+        let periods = prefix(period_total.iter().map(|&p| p as f64).collect());
+        let bound = Bound {
+            circle_records,
+            total,
+            total2,
+            floor,
+        };
+        for d in 0..lengths {
+            let starts = t - d;
+            let mut row = vec![false; starts];
+            screen_row(
+                (&cum[..starts], &cum[d + 1..d + 1 + starts]),
+                (&periods[..starts], &periods[d + 1..d + 1 + starts]),
+                bound,
+                &mut row,
+            );
+            for (first, &marked) in row.iter().enumerate() {
+                let c: u32 = acc[first..=first + d].iter().sum();
+                let in_periods: u64 = period_total[first..=first + d].iter().sum();
+                let p = circle_records * in_periods as f64;
+                let excess = f64::from(c) * total - p;
+                let scalar = !(excess <= 0.0
+                    || excess * excess * total * (1.0 + 1e-9) <= floor * p * (total2 - p));
+                assert_eq!(marked, scalar, "t {t}, first {first}, length {}", d + 1);
+            }
+        }
+    }
+}
