@@ -478,27 +478,22 @@ impl<M: WindowModel> Scanner<'_, M> {
             screen.prefix.push(f64::from(sum));
         }
         let lengths = self.setup.max_duration.min(t);
-        screen.passes.clear();
-        screen.passes.resize(lengths * t, false);
-        let mut any = false;
-        let (cum, periods) = (&screen.prefix, &self.period_prefix);
+        if screen.passes.len() < lengths * t {
+            screen.passes.resize(lengths * t, false);
+        }
         let bound = Bound {
             circle_records: circle.circle_records,
             total,
             total2,
             floor,
         };
-        for d in 0..lengths {
-            let starts = t - d;
-            let row = &mut screen.passes[d * t..d * t + starts];
-            any |= screen_row(
-                (&cum[..starts], &cum[d + 1..d + 1 + starts]),
-                (&periods[..starts], &periods[d + 1..d + 1 + starts]),
-                bound,
-                row,
-            );
-        }
-        any
+        screen_rows(
+            &screen.prefix,
+            &self.period_prefix,
+            lengths,
+            bound,
+            &mut screen.passes,
+        )
     }
 
     /// Scores every run of periods of one circle for the case/control models (the size is the
@@ -606,34 +601,96 @@ fn screen_row_body(
     any
 }
 
-/// [`screen_row_body`] compiled for AVX2.
+/// Whether any run passes [`screen_row_body`]'s test, without marking which (most circles have
+/// none, and this is the cheaper pass).
+#[inline(always)]
+fn any_row_passes(
+    (counts_lo, counts_hi): (&[f64], &[f64]),
+    (periods_lo, periods_hi): (&[f64], &[f64]),
+    b: Bound,
+) -> bool {
+    let mut any = false;
+    for (((&c0, &c1), &p0), &p1) in counts_lo
+        .iter()
+        .zip(counts_hi)
+        .zip(periods_lo)
+        .zip(periods_hi)
+    {
+        let c = c1 - c0;
+        let p = b.circle_records * (p1 - p0);
+        let excess = c * b.total - p;
+        any |= (excess > 0.0)
+            & (excess * excess * b.total * (1.0 + 1e-9) > b.floor * p * (b.total2 - p));
+    }
+    any
+}
+
+/// Every run length's screening (`passes[d·t + f]` for runs of d + 1 periods from period f,
+/// t = `counts.len()` − 1) in one call, so that the loops compile together: first whether any
+/// run passes, then, only if one does, which.
+#[inline(always)]
+fn screen_rows_body(
+    counts: &[f64],
+    periods: &[f64],
+    lengths: usize,
+    b: Bound,
+    passes: &mut [bool],
+) -> bool {
+    let t = counts.len() - 1;
+    let mut any = false;
+    for d in 0..lengths {
+        let starts = t - d;
+        any |= any_row_passes(
+            (&counts[..starts], &counts[d + 1..d + 1 + starts]),
+            (&periods[..starts], &periods[d + 1..d + 1 + starts]),
+            b,
+        );
+    }
+    if !any {
+        return false;
+    }
+    for d in 0..lengths {
+        let starts = t - d;
+        any |= screen_row_body(
+            (&counts[..starts], &counts[d + 1..d + 1 + starts]),
+            (&periods[..starts], &periods[d + 1..d + 1 + starts]),
+            b,
+            &mut passes[d * t..d * t + starts],
+        );
+    }
+    any
+}
+
+/// [`screen_rows_body`] compiled for AVX2.
 ///
 /// # Safety
 /// Only on a processor with AVX2.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-unsafe fn screen_row_avx2(
-    counts: (&[f64], &[f64]),
-    periods: (&[f64], &[f64]),
+unsafe fn screen_rows_avx2(
+    counts: &[f64],
+    periods: &[f64],
+    lengths: usize,
     b: Bound,
-    out: &mut [bool],
+    passes: &mut [bool],
 ) -> bool {
-    screen_row_body(counts, periods, b, out)
+    screen_rows_body(counts, periods, lengths, b, passes)
 }
 
-/// [`screen_row_body`] on the widest vectors the processor has (the same results on any).
-fn screen_row(
-    counts: (&[f64], &[f64]),
-    periods: (&[f64], &[f64]),
+/// [`screen_rows_body`] on the widest vectors the processor has (the same results on any).
+fn screen_rows(
+    counts: &[f64],
+    periods: &[f64],
+    lengths: usize,
     b: Bound,
-    out: &mut [bool],
+    passes: &mut [bool],
 ) -> bool {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: AVX2 is present.
-        return unsafe { screen_row_avx2(counts, periods, b, out) };
+        return unsafe { screen_rows_avx2(counts, periods, lengths, b, passes) };
     }
-    screen_row_body(counts, periods, b, out)
+    screen_rows_body(counts, periods, lengths, b, passes)
 }
 
 /// The per-period counts of one circle.

@@ -277,15 +277,11 @@ fn screened_runs_are_those_the_scalar_bound_passes() {
             total2,
             floor,
         };
+        let mut passes = vec![false; lengths * t];
+        screen_rows(&cum, &periods, lengths, bound, &mut passes);
         for d in 0..lengths {
             let starts = t - d;
-            let mut row = vec![false; starts];
-            screen_row(
-                (&cum[..starts], &cum[d + 1..d + 1 + starts]),
-                (&periods[..starts], &periods[d + 1..d + 1 + starts]),
-                bound,
-                &mut row,
-            );
+            let row = &passes[d * t..d * t + starts];
             for (first, &marked) in row.iter().enumerate() {
                 let c: u32 = acc[first..=first + d].iter().sum();
                 let in_periods: u64 = period_total[first..=first + d].iter().sum();
