@@ -571,56 +571,35 @@ struct Bound {
     floor: f64,
 }
 
-/// One run length's screening: `out[f]` is whether the run from period f passes the bound,
-/// given the running sums of the circle's records and of every period's records at the run's
-/// start (`lo`) and one past its end (`hi`). Branch-free, so that it runs on vectors; the
-/// arithmetic is [`Scanner::expected_runs`]'s, operation for operation.
+/// One run length's screening: whether any run passes the bound and, with `MARK`, `out[f]`
+/// whether the run from period f does, given the running sums of the circle's records and of
+/// every period's records at the run's start (`lo`) and one past its end (`hi`). Branch-free, so
+/// that it runs on vectors; the arithmetic is [`Scanner::expected_runs`]'s, operation for
+/// operation.
 #[inline(always)]
-fn screen_row_body(
+fn screen_row_body<const MARK: bool>(
     (counts_lo, counts_hi): (&[f64], &[f64]),
     (periods_lo, periods_hi): (&[f64], &[f64]),
     b: Bound,
     out: &mut [bool],
 ) -> bool {
     let mut any = false;
-    for ((((pass, &c0), &c1), &p0), &p1) in out
-        .iter_mut()
-        .zip(counts_lo)
+    for (f, (((&c0, &c1), &p0), &p1)) in counts_lo
+        .iter()
         .zip(counts_hi)
         .zip(periods_lo)
         .zip(periods_hi)
+        .enumerate()
     {
         let c = c1 - c0;
         let p = b.circle_records * (p1 - p0);
         let excess = c * b.total - p;
         let passes = (excess > 0.0)
             & (excess * excess * b.total * (1.0 + 1e-9) > b.floor * p * (b.total2 - p));
-        *pass = passes;
+        if MARK {
+            out[f] = passes;
+        }
         any |= passes;
-    }
-    any
-}
-
-/// Whether any run passes [`screen_row_body`]'s test, without marking which (most circles have
-/// none, and this is the cheaper pass).
-#[inline(always)]
-fn any_row_passes(
-    (counts_lo, counts_hi): (&[f64], &[f64]),
-    (periods_lo, periods_hi): (&[f64], &[f64]),
-    b: Bound,
-) -> bool {
-    let mut any = false;
-    for (((&c0, &c1), &p0), &p1) in counts_lo
-        .iter()
-        .zip(counts_hi)
-        .zip(periods_lo)
-        .zip(periods_hi)
-    {
-        let c = c1 - c0;
-        let p = b.circle_records * (p1 - p0);
-        let excess = c * b.total - p;
-        any |= (excess > 0.0)
-            & (excess * excess * b.total * (1.0 + 1e-9) > b.floor * p * (b.total2 - p));
     }
     any
 }
@@ -640,10 +619,11 @@ fn screen_rows_body(
     let mut any = false;
     for d in 0..lengths {
         let starts = t - d;
-        any |= any_row_passes(
+        any |= screen_row_body::<false>(
             (&counts[..starts], &counts[d + 1..d + 1 + starts]),
             (&periods[..starts], &periods[d + 1..d + 1 + starts]),
             b,
+            &mut [],
         );
     }
     if !any {
@@ -651,7 +631,7 @@ fn screen_rows_body(
     }
     for d in 0..lengths {
         let starts = t - d;
-        any |= screen_row_body(
+        any |= screen_row_body::<true>(
             (&counts[..starts], &counts[d + 1..d + 1 + starts]),
             (&periods[..starts], &periods[d + 1..d + 1 + starts]),
             b,
