@@ -14,6 +14,7 @@ points=${1:-target/bench-density/s.gpkg}
 layer=${2:-veldmark_records}
 areas=$work/areas_70000.gpkg
 cargo build -q --release -p stance-moran --example read_timing
+mkdir -p "$(dirname "$points")" "$work"
 [ -f "$points" ] || target/release/stance-synth --output "$points" --points 1000000 --seed 7 -q >/dev/null
 [ -f "$areas" ] || "$py" tests/bench/areal_peer.py make "$areas" 250 280 7
 median() { sort -g | awk '{v[NR] = $1} END {print v[int((NR + 1) / 2)]}'; }
