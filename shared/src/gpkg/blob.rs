@@ -182,6 +182,113 @@ fn wkb_bounds(wkb: &[u8], e: &mut Envelope, depth: usize) -> Result<usize, Strin
     }
 }
 
+/// What a polygon blob holds.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PolygonBlob {
+    /// A polygon (as a one-part multipolygon) or a multipolygon, x and y of each vertex as
+    /// stored (Z and M dropped).
+    Shape(geo_types::MultiPolygon<f64>),
+    /// No vertex at all (header flag, or no rings).
+    Empty,
+    /// Another geometry type (the WKB type code, without Z/M modifiers).
+    Other(u32),
+    /// Not a GeoPackage geometry blob, or truncated WKB.
+    Invalid,
+}
+
+/// Decodes a polygon or multipolygon from a GeoPackage geometry blob (header as in
+/// [`decode_point`], then ISO or extended WKB, either byte order, with or without Z/M).
+pub fn decode_polygons(blob: &[u8]) -> PolygonBlob {
+    let Some((start, flags)) = header(blob) else {
+        return PolygonBlob::Invalid;
+    };
+    if flags & 0b1_0000 != 0 {
+        return PolygonBlob::Empty;
+    }
+    let wkb = &blob[start..];
+    let Some((little, dims, base, at)) = wkb_type(wkb) else {
+        return PolygonBlob::Invalid;
+    };
+    let parts = match base {
+        3 => wkb_polygon(wkb, at, little, dims).map(|(p, _)| vec![p]),
+        6 => (|| {
+            let count = read_u32(wkb.get(at..)?, little)? as usize;
+            let mut at = at + 4;
+            // Each part is 9 bytes at least: do not reserve for a count the bytes cannot hold.
+            let mut parts = Vec::with_capacity(count.min(wkb.len() / 9));
+            for _ in 0..count {
+                let part = wkb.get(at..)?;
+                let (little, dims, base, start) = wkb_type(part)?;
+                if base != 3 {
+                    return None;
+                }
+                let (polygon, end) = wkb_polygon(part, start, little, dims)?;
+                parts.push(polygon);
+                at += end;
+            }
+            Some(parts)
+        })(),
+        other => return PolygonBlob::Other(other),
+    };
+    match parts {
+        None => PolygonBlob::Invalid,
+        Some(parts) if parts.iter().all(|p| p.exterior().0.is_empty()) => PolygonBlob::Empty,
+        Some(parts) => PolygonBlob::Shape(geo_types::MultiPolygon::new(parts)),
+    }
+}
+
+/// Byte order, coordinates per vertex, base type code and the offset after the type (and the
+/// SRID of extended WKB) of the WKB geometry at the start of `wkb`.
+fn wkb_type(wkb: &[u8]) -> Option<(bool, usize, u32, usize)> {
+    let little = match *wkb.first()? {
+        0 => false,
+        1 => true,
+        _ => return None,
+    };
+    let code = read_u32(wkb.get(1..)?, little)?;
+    let mut dims = 2 + usize::from(code & 0x8000_0000 != 0) + usize::from(code & 0x4000_0000 != 0);
+    let at = 5 + if code & 0x2000_0000 != 0 { 4 } else { 0 };
+    let iso = code & 0x0fff_ffff;
+    dims += match iso / 1000 {
+        0 => 0,
+        1 | 2 => 1,
+        3 => 2,
+        _ => return None,
+    };
+    Some((little, dims, iso % 1000, at))
+}
+
+/// The polygon whose ring count is at `at` of `wkb`, and the offset after it.
+fn wkb_polygon(
+    wkb: &[u8],
+    mut at: usize,
+    little: bool,
+    dims: usize,
+) -> Option<(geo_types::Polygon<f64>, usize)> {
+    let rings = read_u32(wkb.get(at..)?, little)? as usize;
+    at += 4;
+    let mut all = Vec::with_capacity(rings.min(wkb.len() / 4));
+    for _ in 0..rings {
+        let n = read_u32(wkb.get(at..)?, little)? as usize;
+        at += 4;
+        let bytes = wkb.get(at..at.checked_add(n.checked_mul(dims * 8)?)?)?;
+        let ring: Vec<geo_types::Coord<f64>> = bytes
+            .chunks_exact(dims * 8)
+            .map(|c| geo_types::Coord {
+                x: read_f64(c, little).unwrap_or(f64::NAN),
+                y: read_f64(&c[8..], little).unwrap_or(f64::NAN),
+            })
+            .collect();
+        at += bytes.len();
+        all.push(geo_types::LineString::new(ring));
+    }
+    let mut rings = all.into_iter();
+    let exterior = rings
+        .next()
+        .unwrap_or_else(|| geo_types::LineString::new(Vec::new()));
+    Some((geo_types::Polygon::new(exterior, rings.collect()), at))
+}
+
 fn push_header(out: &mut Vec<u8>, srs_id: i32, envelope: Option<Envelope>, empty: bool) {
     // Version 0; flags: little-endian header, envelope kind 1 (xy) or 0, empty bit.
     let flags = 1 | if envelope.is_some() { 0b10 } else { 0 } | if empty { 0b1_0000 } else { 0 };
@@ -408,5 +515,113 @@ mod tests {
             .expect("GDAL writes WKB");
         assert_eq!(&b[8 + 32..], &gdal[..]);
         assert_eq!(&b[..4], &[b'G', b'P', 0, 0b11]);
+    }
+
+    /// A GeoPackage blob (no envelope) around hand-made WKB.
+    fn gp(wkb: &[u8]) -> Vec<u8> {
+        let mut out = vec![b'G', b'P', 0, 1, 0, 0, 0, 0];
+        out.extend_from_slice(wkb);
+        out
+    }
+
+    /// WKB of a polygon (OGC 06-103r4 §8.2): byte order, type, rings, points per ring.
+    fn polygon_wkb(little: bool, code: u32, rings: &[&[[f64; 4]]], dims: usize) -> Vec<u8> {
+        let u = |v: u32| {
+            if little {
+                v.to_le_bytes()
+            } else {
+                v.to_be_bytes()
+            }
+        };
+        let f = |v: f64| {
+            if little {
+                v.to_le_bytes()
+            } else {
+                v.to_be_bytes()
+            }
+        };
+        let mut out = vec![u8::from(little)];
+        out.extend_from_slice(&u(code));
+        out.extend_from_slice(&u(rings.len() as u32));
+        for ring in rings {
+            out.extend_from_slice(&u(ring.len() as u32));
+            for p in *ring {
+                for v in &p[..dims] {
+                    out.extend_from_slice(&f(*v));
+                }
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn polygons_decode_in_every_byte_order_and_dimension() {
+        let ring: &[[f64; 4]] = &[
+            [0.0, 0.0, 5.0, 9.0],
+            [4.0, 0.0, 5.0, 9.0],
+            [4.0, 3.0, 5.0, 9.0],
+            [0.0, 0.0, 5.0, 9.0],
+        ];
+        let hole: &[[f64; 4]] = &[
+            [1.0, 1.0, 0.0, 0.0],
+            [2.0, 1.0, 0.0, 0.0],
+            [2.0, 2.0, 0.0, 0.0],
+            [1.0, 1.0, 0.0, 0.0],
+        ];
+        let expected = geo_types::MultiPolygon::new(vec![geo_types::Polygon::new(
+            ring.iter().map(|p| (p[0], p[1])).collect::<Vec<_>>().into(),
+            vec![hole.iter().map(|p| (p[0], p[1])).collect::<Vec<_>>().into()],
+        )]);
+        // ISO codes 3, 1003 (Z), 2003 (M), 3003 (ZM); extended 0x80000003 (Z).
+        for (code, dims) in [(3, 2), (1003, 3), (2003, 3), (3003, 4), (0x8000_0003, 3)] {
+            for little in [true, false] {
+                let wkb = polygon_wkb(little, code, &[ring, hole], dims);
+                assert_eq!(
+                    decode_polygons(&gp(&wkb)),
+                    PolygonBlob::Shape(expected.clone()),
+                    "code {code}, little {little}"
+                );
+                // The same polygon twice in a multipolygon (type 6 + 1000s of the parts).
+                let mut multi = vec![u8::from(little)];
+                let outer = code + 3; // 6, 1006, 2006, 3006, 0x80000006
+                multi.extend_from_slice(&if little {
+                    outer.to_le_bytes()
+                } else {
+                    outer.to_be_bytes()
+                });
+                multi.extend_from_slice(&if little {
+                    2u32.to_le_bytes()
+                } else {
+                    2u32.to_be_bytes()
+                });
+                multi.extend_from_slice(&wkb);
+                multi.extend_from_slice(&polygon_wkb(!little, code, &[ring, hole], dims));
+                let two = geo_types::MultiPolygon::new(vec![
+                    expected.0[0].clone(),
+                    expected.0[0].clone(),
+                ]);
+                assert_eq!(decode_polygons(&gp(&multi)), PolygonBlob::Shape(two));
+                // Cut anywhere: unreadable, never a panic.
+                for cut in 0..multi.len() {
+                    assert_eq!(
+                        decode_polygons(&gp(&multi[..cut])),
+                        PolygonBlob::Invalid,
+                        "cut {cut}"
+                    );
+                }
+            }
+        }
+        assert_eq!(
+            decode_polygons(&gp(&polygon_wkb(true, 3, &[], 2))),
+            PolygonBlob::Empty
+        );
+        let mut point = vec![1u8];
+        point.extend_from_slice(&1u32.to_le_bytes());
+        point.extend_from_slice(&[0u8; 16]);
+        assert_eq!(decode_polygons(&gp(&point)), PolygonBlob::Other(1));
+        assert_eq!(decode_polygons(b"not a blob"), PolygonBlob::Invalid);
+        let mut empty_flag = gp(&polygon_wkb(true, 3, &[ring], 2));
+        empty_flag[3] |= 0b1_0000;
+        assert_eq!(decode_polygons(&empty_flag), PolygonBlob::Empty);
     }
 }

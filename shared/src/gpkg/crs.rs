@@ -139,7 +139,7 @@ pub fn transform(from: &SpatialRef, to: &SpatialRef, xs: &mut [f64], ys: &mut [f
     }
     // PROJ transforms are not shareable across threads: each chunk builds its own, and chunks
     // run in parallel (on 2 cores this halves the projection of 1,000,000 points).
-    const CHUNK: usize = 1 << 16;
+    let chunk: usize = xs.len().div_ceil(rayon::current_num_threads()).max(1 << 12);
     let make = || {
         CoordTransform::new(from, to).map_err(|e| Error::Crs {
             definition: label(to),
@@ -156,8 +156,8 @@ pub fn transform(from: &SpatialRef, to: &SpatialRef, xs: &mut [f64], ys: &mut [f
         message: e.to_string(),
     })?;
     use rayon::prelude::*;
-    xs.par_chunks_mut(CHUNK)
-        .zip(ys.par_chunks_mut(CHUNK))
+    xs.par_chunks_mut(chunk)
+        .zip(ys.par_chunks_mut(chunk))
         .try_for_each(|(x, y)| {
             let from = parse(&from_wkt)?;
             let to = parse(&to_wkt)?;

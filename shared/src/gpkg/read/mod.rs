@@ -1,12 +1,13 @@
 //! Reading point and polygon layers from a GeoPackage into the working CRS.
 
-use std::collections::HashMap;
 use std::path::Path;
 
 use gdal::spatial_ref::SpatialRef;
 use rusqlite::types::ValueRef;
 
+mod btree;
 mod polygons;
+mod rows;
 
 pub use polygons::{
     project_polygons, read_polygons, read_polygons_or_none, PolygonCrs, PolygonLayer,
@@ -15,6 +16,7 @@ pub use polygons::{
 use super::blob::{decode_point, PointBlob};
 use super::{crs, quote_identifier as q};
 use crate::error::{Error, Result};
+use rows::{ColumnBuilder, Fields, LayerQuery};
 
 /// How a requested field is to be read.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -276,43 +278,25 @@ pub fn read_points(
         )));
     }
     let source_srs = layer_srs(path, &connection, &layer)?;
-    let query = PointQuery::new(path, &connection, &layer, fields)?;
-    let ranges = query
-        .fid_ranges(&connection)
-        .map_err(|e| bad(e.to_string()))?;
+    let names: Vec<&str> = fields.iter().map(|(name, _)| *name).collect();
+    let query = LayerQuery::new(path, &connection, &layer, &names)?;
     let bad_field = |i: usize, fid: i64, message: String| Error::BadField {
         path: path.to_owned(),
         layer: layer.clone(),
         field: query.selected[i].clone(),
         message: format!("feature {fid}: {message}"),
     };
-    // Large layers are read in fid ranges on parallel connections (SQLite decodes rows on one
-    // core per connection); the parts are joined in fid order, so the result is the same.
-    let mut pieces: Vec<Result<PointRows>> = if ranges.len() == 1 {
-        vec![read_point_rows(
-            &connection,
-            &query.sql,
-            ranges[0],
-            fields,
-            &bad,
-            &bad_field,
-        )]
-    } else {
-        use rayon::prelude::*;
-        ranges
-            .par_iter()
-            .map(|range| {
-                let own = super::open_sqlite_read(path)?;
-                read_point_rows(&own, &query.sql, *range, fields, &bad, &bad_field)
-            })
-            .collect()
-    };
-    let mut whole = match pieces.is_empty() {
-        true => PointRows::new(fields),
-        false => pieces.remove(0)?,
-    };
-    for piece in pieces {
-        whole.append(piece?);
+    let parts = rows::read_rows(
+        path,
+        &connection,
+        &query,
+        &bad,
+        |rows| PointRows::with_capacity(fields, rows),
+        |out, fid, geometry, values| out.push(fid, geometry, values, &bad, &bad_field),
+    )?;
+    let mut whole = PointRows::with_capacity(fields, parts.iter().map(|p| p.fids.len()).sum());
+    for part in parts {
+        whole.append(part);
     }
     let PointRows {
         fids,
@@ -351,94 +335,6 @@ pub fn read_points(
     })
 }
 
-/// The SELECT of a point layer's fid, geometry and requested fields over a fid range.
-struct PointQuery {
-    /// The statement, with `?1` and `?2` the first and last fid.
-    sql: String,
-    /// The requested fields as named in the table.
-    selected: Vec<String>,
-    /// The fid column.
-    primary_key: String,
-    /// The layer.
-    layer: String,
-}
-
-impl PointQuery {
-    fn new(
-        path: &Path,
-        connection: &rusqlite::Connection,
-        layer: &str,
-        fields: &[(&str, FieldWant)],
-    ) -> Result<Self> {
-        let geometry_column: String = connection
-            .query_row(
-                "SELECT column_name FROM gpkg_geometry_columns WHERE table_name = ?1",
-                [layer],
-                |r| r.get(0),
-            )
-            .map_err(|e| Error::BadLayer {
-                path: path.to_owned(),
-                layer: layer.to_owned(),
-                message: e.to_string(),
-            })?;
-        let columns = table_columns(path, connection, layer)?;
-        let primary_key = columns
-            .iter()
-            .find(|(_, pk)| *pk)
-            .map(|(c, _)| c.clone())
-            .unwrap_or_else(|| "rowid".into());
-        let mut selected = Vec::with_capacity(fields.len());
-        for (field, _) in fields {
-            selected.push(
-                find_field(path, layer, &columns, field, &[geometry_column.as_str()])?.to_owned(),
-            );
-        }
-        let mut sql = format!("SELECT {}, {}", q(&primary_key), q(&geometry_column));
-        for s in &selected {
-            sql.push_str(", ");
-            sql.push_str(&q(s));
-        }
-        sql.push_str(&format!(
-            " FROM {} WHERE {pk} >= ?1 AND {pk} <= ?2",
-            q(layer),
-            pk = q(&primary_key)
-        ));
-        Ok(PointQuery {
-            sql,
-            selected,
-            primary_key,
-            layer: layer.to_owned(),
-        })
-    }
-
-    /// The fid ranges to read: one, or up to four of equal span for layers over 200,000 fids.
-    fn fid_ranges(&self, connection: &rusqlite::Connection) -> rusqlite::Result<Vec<(i64, i64)>> {
-        let (low, high): (Option<i64>, Option<i64>) = connection.query_row(
-            &format!(
-                "SELECT min({pk}), max({pk}) FROM {}",
-                q(&self.layer),
-                pk = q(&self.primary_key)
-            ),
-            [],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )?;
-        let (low, high) = (low.unwrap_or(0), high.unwrap_or(-1));
-        let span = (high as i128 - low as i128 + 1).max(0);
-        let parts: i128 = if span > 200_000 {
-            rayon::current_num_threads().clamp(1, 4) as i128
-        } else {
-            1
-        };
-        Ok((0..parts)
-            .map(|k| {
-                let a = low as i128 + span * k / parts;
-                let b = low as i128 + span * (k + 1) / parts - 1;
-                (a as i64, b as i64)
-            })
-            .collect())
-    }
-}
-
 /// Rows of a point layer as read, before projection.
 struct PointRows {
     fids: Vec<i64>,
@@ -448,46 +344,27 @@ struct PointRows {
 }
 
 impl PointRows {
-    fn new(fields: &[(&str, FieldWant)]) -> Self {
+    fn with_capacity(fields: &[(&str, FieldWant)], rows: usize) -> Self {
         PointRows {
-            fids: Vec::new(),
-            x: Vec::new(),
-            y: Vec::new(),
+            fids: Vec::with_capacity(rows),
+            x: Vec::with_capacity(rows),
+            y: Vec::with_capacity(rows),
             builders: fields
                 .iter()
-                .map(|(_, want)| ColumnBuilder::new(*want))
+                .map(|(_, want)| ColumnBuilder::new(*want, rows))
                 .collect(),
         }
     }
 
-    /// Appends the rows of `later` (which follow these in fid order).
-    fn append(&mut self, later: PointRows) {
-        self.fids.extend(later.fids);
-        self.x.extend(later.x);
-        self.y.extend(later.y);
-        for (mine, theirs) in self.builders.iter_mut().zip(later.builders) {
-            mine.append(theirs);
-        }
-    }
-}
-
-/// Reads and checks the rows with fid in `range` of the prepared point query `sql`.
-fn read_point_rows(
-    connection: &rusqlite::Connection,
-    sql: &str,
-    range: (i64, i64),
-    fields: &[(&str, FieldWant)],
-    bad: &dyn Fn(String) -> Error,
-    bad_field: &dyn Fn(usize, i64, String) -> Error,
-) -> Result<PointRows> {
-    let mut statement = connection.prepare(sql).map_err(|e| bad(e.to_string()))?;
-    let mut rows = statement
-        .query([range.0, range.1])
-        .map_err(|e| bad(e.to_string()))?;
-    let mut out = PointRows::new(fields);
-    while let Some(row) = rows.next().map_err(|e| bad(e.to_string()))? {
-        let fid: i64 = row.get(0).map_err(|e| bad(e.to_string()))?;
-        let geometry = row.get_ref(1).map_err(|e| bad(e.to_string()))?;
+    /// Checks and appends one row: its fid, geometry blob and the requested fields' values.
+    fn push(
+        &mut self,
+        fid: i64,
+        geometry: ValueRef<'_>,
+        values: &Fields<'_, '_>,
+        bad: &dyn Fn(String) -> Error,
+        bad_field: &dyn Fn(usize, i64, String) -> Error,
+    ) -> Result<()> {
         let point = match geometry {
             ValueRef::Null => {
                 return Err(bad(format!(
@@ -499,8 +376,8 @@ fn read_point_rows(
         };
         match point {
             PointBlob::Point(px, py) if px.is_finite() && py.is_finite() => {
-                out.x.push(px);
-                out.y.push(py);
+                self.x.push(px);
+                self.y.push(py);
             }
             PointBlob::Point(..) => {
                 return Err(bad(format!(
@@ -523,133 +400,22 @@ fn read_point_rows(
                 )))
             }
         }
-        out.fids.push(fid);
-        for (i, builder) in out.builders.iter_mut().enumerate() {
-            let value = row.get_ref(i + 2).map_err(|e| bad(e.to_string()))?;
+        self.fids.push(fid);
+        for (i, builder) in self.builders.iter_mut().enumerate() {
             builder
-                .push(value)
+                .push(values.value(i))
                 .map_err(|message| bad_field(i, fid, message))?;
-        }
-    }
-    Ok(out)
-}
-
-/// Distinct values up to which a text is looked up by comparing it with each value in turn
-/// (cheaper than hashing it; stance labels have a handful of values).
-const FEW_VALUES: usize = 8;
-
-/// The code of `text` if the column has seen it.
-fn known_code(column: &TextColumn, index: &HashMap<String, u32>, text: &str) -> Option<u32> {
-    if column.values.len() <= FEW_VALUES {
-        column
-            .values
-            .iter()
-            .position(|v| v == text)
-            .map(|p| p as u32)
-    } else {
-        index.get(text).copied()
-    }
-}
-
-enum ColumnBuilder {
-    Text(TextColumn, HashMap<String, u32>),
-    Real(Vec<Option<f64>>),
-    DateTime(Vec<Option<i64>>),
-}
-
-impl ColumnBuilder {
-    fn new(want: FieldWant) -> Self {
-        match want {
-            FieldWant::Text => ColumnBuilder::Text(TextColumn::default(), HashMap::new()),
-            FieldWant::Real => ColumnBuilder::Real(Vec::new()),
-            FieldWant::DateTime => ColumnBuilder::DateTime(Vec::new()),
-        }
-    }
-
-    fn push(&mut self, value: ValueRef<'_>) -> std::result::Result<(), String> {
-        match self {
-            ColumnBuilder::Text(column, index) => {
-                // Look up by borrowed text first: most rows repeat a few labels, so the hot
-                // path allocates nothing.
-                let text: Option<std::borrow::Cow<'_, str>> = match value {
-                    ValueRef::Null => None,
-                    ValueRef::Integer(i) => Some(i.to_string().into()),
-                    ValueRef::Real(r) => Some(r.to_string().into()),
-                    ValueRef::Text(t) => Some(String::from_utf8_lossy(t)),
-                    ValueRef::Blob(_) => return Err("holds a binary value; expected text".into()),
-                };
-                let code = match text {
-                    None => TextColumn::NULL,
-                    Some(text) => match known_code(column, index, text.as_ref()) {
-                        Some(code) => code,
-                        None => {
-                            let code = column.values.len() as u32;
-                            column.values.push(text.clone().into_owned());
-                            index.insert(text.into_owned(), code);
-                            code
-                        }
-                    },
-                };
-                column.codes.push(code);
-            }
-            ColumnBuilder::Real(values) => values.push(match value {
-                ValueRef::Null => None,
-                ValueRef::Integer(i) => Some(i as f64),
-                ValueRef::Real(r) => Some(r),
-                ValueRef::Text(t) => {
-                    let text = String::from_utf8_lossy(t);
-                    match text.trim().parse::<f64>() {
-                        Ok(v) => Some(v),
-                        Err(_) => return Err(format!("value '{text}' is not a number")),
-                    }
-                }
-                ValueRef::Blob(_) => return Err("holds a binary value; expected a number".into()),
-            }),
-            ColumnBuilder::DateTime(values) => values.push(match value {
-                ValueRef::Text(t) => crate::time::parse_utc_seconds(&String::from_utf8_lossy(t)),
-                _ => None,
-            }),
         }
         Ok(())
     }
 
-    /// Appends a builder of the same kind filled from later rows; text codes are renumbered
-    /// so that values stay in order of first appearance.
-    fn append(&mut self, later: ColumnBuilder) {
-        match (self, later) {
-            (ColumnBuilder::Text(column, index), ColumnBuilder::Text(theirs, _)) => {
-                let map: Vec<u32> = theirs
-                    .values
-                    .into_iter()
-                    .map(|value| match index.get(&value) {
-                        Some(code) => *code,
-                        None => {
-                            let code = column.values.len() as u32;
-                            column.values.push(value.clone());
-                            index.insert(value, code);
-                            code
-                        }
-                    })
-                    .collect();
-                column.codes.extend(theirs.codes.into_iter().map(|c| {
-                    if c == TextColumn::NULL {
-                        c
-                    } else {
-                        map[c as usize]
-                    }
-                }));
-            }
-            (ColumnBuilder::Real(mine), ColumnBuilder::Real(theirs)) => mine.extend(theirs),
-            (ColumnBuilder::DateTime(mine), ColumnBuilder::DateTime(theirs)) => mine.extend(theirs),
-            _ => unreachable!("builders of one field share a kind"),
-        }
-    }
-
-    fn finish(self) -> Column {
-        match self {
-            ColumnBuilder::Text(c, _) => Column::Text(c),
-            ColumnBuilder::Real(v) => Column::Real(v),
-            ColumnBuilder::DateTime(v) => Column::DateTime(v),
+    /// Appends the rows of `later` (which follow these in fid order).
+    fn append(&mut self, later: PointRows) {
+        self.fids.extend(later.fids);
+        self.x.extend(later.x);
+        self.y.extend(later.y);
+        for (mine, theirs) in self.builders.iter_mut().zip(later.builders) {
+            mine.append(theirs);
         }
     }
 }
@@ -673,3 +439,6 @@ pub fn invalid_polygons(layer: &PolygonLayer) -> Vec<(i64, String)> {
         })
         .collect()
 }
+
+#[cfg(test)]
+mod tests;

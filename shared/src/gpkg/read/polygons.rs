@@ -1,15 +1,14 @@
 //! Polygon layers into the working CRS: the one path by which every tool reads areas.
 
-use std::collections::HashMap;
 use std::path::Path;
 
 use gdal::spatial_ref::SpatialRef;
-use gdal::vector::LayerAccess;
+use rusqlite::types::ValueRef;
 
-use super::{
-    crs, find_field, layer_srs, resolve_layer, table_columns, Column, FieldWant, TextColumn,
-};
+use super::rows::{self, ColumnBuilder, LayerQuery};
+use super::{crs, layer_srs, resolve_layer, Column, FieldWant};
 use crate::error::{Error, Result};
+use crate::gpkg::blob::{decode_polygons, PolygonBlob};
 
 /// Polygons of a layer with requested fields, in the working CRS.
 #[derive(Debug)]
@@ -86,11 +85,8 @@ fn read_polygon_layer(
     target: PolygonCrs<'_>,
     empty: Empty,
 ) -> Result<PolygonLayer> {
-    let (layer, source_srs, polygons, fids, texts) = read_polygon_rows(path, layer, fields, empty)?;
-    let mut columns = Vec::with_capacity(fields.len());
-    for ((field, want), values) in fields.iter().zip(texts) {
-        columns.push(text_to_column(path, &layer, field, *want, &fids, values)?);
-    }
+    let (layer, source_srs, polygons, fids, columns) =
+        read_polygon_rows(path, layer, fields, empty)?;
     let mut out = PolygonLayer {
         layer,
         fids,
@@ -177,64 +173,16 @@ pub fn project_polygons(
     Ok(())
 }
 
-/// A field read as text turned into the column kind asked for.
-fn text_to_column(
-    path: &Path,
-    layer: &str,
-    field: &str,
-    want: FieldWant,
-    fids: &[i64],
-    values: Vec<Option<String>>,
-) -> Result<Column> {
-    Ok(match want {
-        FieldWant::Text => {
-            let mut column = TextColumn::default();
-            let mut index: HashMap<String, u32> = HashMap::new();
-            for value in values {
-                let code = match value {
-                    None => TextColumn::NULL,
-                    Some(v) => *index.entry(v.clone()).or_insert_with(|| {
-                        column.values.push(v);
-                        (column.values.len() - 1) as u32
-                    }),
-                };
-                column.codes.push(code);
-            }
-            Column::Text(column)
-        }
-        FieldWant::Real => {
-            let mut numbers = Vec::with_capacity(values.len());
-            for (value, fid) in values.iter().zip(fids) {
-                numbers.push(match value.as_deref().map(str::trim) {
-                    None => None,
-                    Some(text) => Some(text.parse::<f64>().map_err(|_| Error::BadField {
-                        path: path.to_owned(),
-                        layer: layer.to_owned(),
-                        field: field.to_owned(),
-                        message: format!("feature {fid} has '{text}'; expected a number"),
-                    })?),
-                });
-            }
-            Column::Real(numbers)
-        }
-        FieldWant::DateTime => Column::DateTime(
-            values
-                .iter()
-                .map(|v| v.as_deref().and_then(crate::time::parse_utc_seconds))
-                .collect(),
-        ),
-    })
-}
-
 type PolygonRows = (
     String,
     SpatialRef,
     Vec<geo_types::MultiPolygon<f64>>,
     Vec<i64>,
-    Vec<Vec<Option<String>>>,
+    Vec<Column>,
 );
 
-/// Reads a polygon layer through GDAL into geo-types, in the layer's own CRS, fields as text.
+/// Reads a polygon layer into geo-types, in the layer's own CRS: the geometry blobs decoded
+/// directly (see [`decode_polygons`]), rows read as [`rows::read_rows`] reads them.
 fn read_polygon_rows(
     path: &Path,
     layer: Option<&str>,
@@ -263,63 +211,88 @@ fn read_polygon_rows(
         )));
     }
     let srs = layer_srs(path, &connection, &layer)?;
-    let columns = table_columns(path, &connection, &layer)?;
-    let mut names = Vec::new();
-    for (field, _) in fields {
-        names.push(find_field(path, &layer, &columns, field, &[])?.to_owned());
-    }
-    drop(connection);
-    let dataset = crate::gpkg::open_geopackage(path)?;
-    let mut gdal_layer = dataset
-        .layer_by_name(&layer)
-        .map_err(|e| bad(e.to_string()))?;
-    let indices: Vec<usize> = names
-        .iter()
-        .map(|n| {
-            gdal_layer
-                .defn()
-                .field_index(n)
-                .map_err(|e| bad(e.to_string()))
-        })
-        .collect::<Result<_>>()?;
-    let mut fids = Vec::new();
-    let mut polygons = Vec::new();
-    let mut texts = vec![Vec::new(); names.len()];
-    for feature in gdal_layer.features() {
-        let fid = feature.fid().map(|f| f as i64).unwrap_or(-1);
-        let geometry = feature
-            .geometry()
-            .ok_or_else(|| bad(format!("feature {fid} has no geometry (NULL)")))?;
-        if geometry.is_empty() {
-            return Err(bad(format!("feature {fid} has an empty geometry")));
-        }
-        let converted: geo_types::Geometry<f64> = geometry
-            .try_into()
-            .map_err(|e: gdal::errors::GdalError| bad(format!("feature {fid}: {e}")))?;
-        let multi = match converted {
-            geo_types::Geometry::Polygon(p) => geo_types::MultiPolygon::new(vec![p]),
-            geo_types::Geometry::MultiPolygon(m) => m,
-            other => {
-                return Err(bad(format!(
-                    "feature {fid} is a {other:?}; expected polygons"
-                )
-                .chars()
-                .take(200)
-                .collect()))
+    let names: Vec<&str> = fields.iter().map(|(name, _)| *name).collect();
+    let query = LayerQuery::new(path, &connection, &layer, &names)?;
+    let bad_field = |i: usize, fid: i64, message: String| Error::BadField {
+        path: path.to_owned(),
+        layer: layer.clone(),
+        field: query.selected[i].clone(),
+        message: format!("feature {fid}: {message}"),
+    };
+    let parts = rows::read_rows(
+        path,
+        &connection,
+        &query,
+        &bad,
+        |rows| Areas::with_capacity(fields, rows),
+        |out, fid, geometry, values| {
+            let shape = match geometry {
+                ValueRef::Null => return Err(bad(format!("feature {fid} has no geometry (NULL)"))),
+                ValueRef::Blob(blob) => decode_polygons(blob),
+                _ => PolygonBlob::Invalid,
+            };
+            match shape {
+                PolygonBlob::Shape(shape) => out.polygons.push(shape),
+                PolygonBlob::Empty => {
+                    return Err(bad(format!("feature {fid} has an empty geometry")))
+                }
+                PolygonBlob::Other(code) => {
+                    return Err(bad(format!(
+                        "feature {fid} is not a polygon (WKB type {code}); expected polygons"
+                    )))
+                }
+                PolygonBlob::Invalid => {
+                    return Err(bad(format!(
+                        "feature {fid} has an unreadable geometry blob"
+                    )))
+                }
             }
-        };
-        fids.push(fid);
-        polygons.push(multi);
-        for (slot, index) in texts.iter_mut().zip(&indices) {
-            slot.push(
-                feature
-                    .field_as_string(*index)
-                    .map_err(|e| bad(e.to_string()))?,
-            );
+            out.fids.push(fid);
+            for (i, builder) in out.builders.iter_mut().enumerate() {
+                builder
+                    .push(values.value(i))
+                    .map_err(|message| bad_field(i, fid, message))?;
+            }
+            Ok(())
+        },
+    )?;
+    let total = parts.iter().map(|p| p.fids.len()).sum();
+    let mut all = Areas::with_capacity(fields, total);
+    for part in parts {
+        all.fids.extend(part.fids);
+        all.polygons.extend(part.polygons);
+        for (mine, theirs) in all.builders.iter_mut().zip(part.builders) {
+            mine.append(theirs);
         }
     }
+    let Areas {
+        fids,
+        polygons,
+        builders,
+    } = all;
     if fids.is_empty() && empty == Empty::Refuse {
         return Err(bad("has no features".into()));
     }
-    Ok((layer, srs, polygons, fids, texts))
+    let columns = builders.into_iter().map(ColumnBuilder::finish).collect();
+    Ok((layer, srs, polygons, fids, columns))
+}
+
+/// Rows of a polygon layer as read, before projection.
+struct Areas {
+    fids: Vec<i64>,
+    polygons: Vec<geo_types::MultiPolygon<f64>>,
+    builders: Vec<ColumnBuilder>,
+}
+
+impl Areas {
+    fn with_capacity(fields: &[(&str, FieldWant)], rows: usize) -> Self {
+        Areas {
+            fids: Vec::with_capacity(rows),
+            polygons: Vec::with_capacity(rows),
+            builders: fields
+                .iter()
+                .map(|(_, want)| ColumnBuilder::new(*want, rows))
+                .collect(),
+        }
+    }
 }
