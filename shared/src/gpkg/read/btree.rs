@@ -110,9 +110,7 @@ impl Source {
 fn real_affinity(declared: &str) -> bool {
     let t = declared.to_ascii_uppercase();
     let has = |w: &str| t.contains(w);
-    !has("INT")
-        && !(has("CHAR") || has("CLOB") || has("TEXT"))
-        && !(has("BLOB") || t.is_empty())
+    !(has("INT") || has("CHAR") || has("CLOB") || has("TEXT") || has("BLOB") || t.is_empty())
         && (has("REAL") || has("FLOA") || has("DOUB"))
 }
 

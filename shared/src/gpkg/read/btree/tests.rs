@@ -26,25 +26,25 @@ fn own(v: ValueRef<'_>) -> V {
 
 /// Rows as SQLite returns them.
 fn by_sqlite(path: &Path, table: &str, columns: &[&str]) -> Vec<(i64, Vec<V>)> {
-    let c = rusqlite::Connection::open(path).unwrap();
+    let c = rusqlite::Connection::open(path).expect("test fixture");
     let list: Vec<String> = columns.iter().map(|c| q(c)).collect();
     let sql = format!(
         "SELECT rowid, {} FROM {} ORDER BY rowid",
         list.join(", "),
         q(table)
     );
-    let mut s = c.prepare(&sql).unwrap();
+    let mut s = c.prepare(&sql).expect("test fixture");
     let rows = s
         .query_map([], |r| {
             Ok((
                 r.get::<_, i64>(0)?,
                 (0..columns.len())
-                    .map(|i| own(r.get_ref(i + 1).unwrap()))
+                    .map(|i| own(r.get_ref(i + 1).expect("test fixture")))
                     .collect(),
             ))
         })
-        .unwrap();
-    rows.map(|r| r.unwrap()).collect()
+        .expect("test fixture");
+    rows.map(|r| r.expect("test fixture")).collect()
 }
 
 /// Rows as the direct scan returns them, in `parts` parts joined in order.
@@ -55,7 +55,7 @@ fn by_scan(
     parts: usize,
 ) -> Result<Vec<(i64, Vec<V>)>, Unusable> {
     let c = rusqlite::Connection::open_with_flags(path, rusqlite::OpenFlags::SQLITE_OPEN_READ_ONLY)
-        .unwrap();
+        .expect("test fixture");
     let lock = ReadLock::take(&c)?;
     let scan = TableScan::open(path, &lock, table, columns)?;
     let n = columns.len();
@@ -67,20 +67,23 @@ fn by_scan(
             Ok(())
         },
     )?;
-    Ok(parts.into_iter().flat_map(|p| p.unwrap()).collect())
+    Ok(parts
+        .into_iter()
+        .flat_map(|p| p.expect("test fixture"))
+        .collect())
 }
 
 /// A table with every serial type, long texts and blobs (overflow pages), NULLs, deleted rows
 /// and rows written before a column was added.
 fn make(path: &Path, page_size: usize, rows: i64) {
-    let c = rusqlite::Connection::open(path).unwrap();
+    let c = rusqlite::Connection::open(path).expect("test fixture");
     c.execute_batch(&format!("PRAGMA page_size = {page_size};"))
-        .unwrap();
+        .expect("test fixture");
     c.execute_batch(
         "CREATE TABLE t (fid INTEGER PRIMARY KEY AUTOINCREMENT NOT NULL, geom BLOB, n INTEGER, r REAL, s TEXT);",
     )
-    .unwrap();
-    let tx = c.unchecked_transaction().unwrap();
+    .expect("test fixture");
+    let tx = c.unchecked_transaction().expect("test fixture");
     let numbers = [
         0i64,
         1,
@@ -124,18 +127,18 @@ fn make(path: &Path, page_size: usize, rows: i64) {
             "INSERT INTO t (geom, n, r, s) VALUES (?1, ?2, ?3, ?4)",
             rusqlite::params![blob, if i % 11 == 5 { None } else { Some(n) }, real, text],
         )
-        .unwrap();
+        .expect("test fixture");
     }
-    tx.commit().unwrap();
+    tx.commit().expect("test fixture");
     c.execute_batch("DELETE FROM t WHERE fid % 13 = 0; ALTER TABLE t ADD COLUMN late TEXT;")
-        .unwrap();
+        .expect("test fixture");
     c.execute_batch("INSERT INTO t (geom, n, late) VALUES (x'0102', 5, 'added');")
-        .unwrap();
+        .expect("test fixture");
 }
 
 #[test]
 fn the_direct_scan_returns_what_sqlite_returns() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = tempfile::tempdir().expect("test fixture");
     for (page_size, rows) in [(512, 2_000), (4096, 20_000), (65536, 3_000)] {
         let path = dir.path().join(format!("t{page_size}.sqlite"));
         make(&path, page_size, rows);
@@ -143,7 +146,7 @@ fn the_direct_scan_returns_what_sqlite_returns() {
         let expected = by_sqlite(&path, "t", &columns);
         assert!(expected.len() > rows as usize * 9 / 10);
         for parts in [1, 2, 3, 7] {
-            let got = by_scan(&path, "t", &columns, parts).unwrap();
+            let got = by_scan(&path, "t", &columns, parts).expect("test fixture");
             assert_eq!(
                 got.len(),
                 expected.len(),
@@ -154,7 +157,7 @@ fn the_direct_scan_returns_what_sqlite_returns() {
         // A subset in another order: the values follow the order asked.
         let subset = ["s", "fid", "r"];
         assert_eq!(
-            by_scan(&path, "t", &subset, 2).unwrap(),
+            by_scan(&path, "t", &subset, 2).expect("test fixture"),
             by_sqlite(&path, "t", &subset)
         );
     }
@@ -162,15 +165,15 @@ fn the_direct_scan_returns_what_sqlite_returns() {
 
 #[test]
 fn a_table_without_an_integer_key_is_scanned_by_its_rowid() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = tempfile::tempdir().expect("test fixture");
     let path = dir.path().join("r.sqlite");
-    let c = rusqlite::Connection::open(&path).unwrap();
+    let c = rusqlite::Connection::open(&path).expect("test fixture");
     c.execute_batch(
         "CREATE TABLE t (a TEXT, b REAL); INSERT INTO t VALUES ('p', 1.5), (NULL, 2), ('q', NULL);",
     )
-    .unwrap();
+    .expect("test fixture");
     drop(c);
-    let got = by_scan(&path, "t", &["rowid", "a", "b"], 1).unwrap();
+    let got = by_scan(&path, "t", &["rowid", "a", "b"], 1).expect("test fixture");
     let expected = by_sqlite(&path, "t", &["rowid", "a", "b"]);
     assert_eq!(got, expected);
     assert_eq!(got[1].1, vec![V::I(2), V::Null, V::R(2f64.to_bits())]);
@@ -178,40 +181,40 @@ fn a_table_without_an_integer_key_is_scanned_by_its_rowid() {
 
 #[test]
 fn files_the_scan_cannot_see_as_sqlite_does_are_refused() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = tempfile::tempdir().expect("test fixture");
     let wal = dir.path().join("wal.sqlite");
-    let c = rusqlite::Connection::open(&wal).unwrap();
+    let c = rusqlite::Connection::open(&wal).expect("test fixture");
     c.execute_batch("PRAGMA journal_mode = WAL; CREATE TABLE t (fid INTEGER PRIMARY KEY, a TEXT); INSERT INTO t (a) VALUES ('x');")
-        .unwrap();
+        .expect("test fixture");
     assert!(by_scan(&wal, "t", &["a"], 1)
-        .unwrap_err()
+        .expect_err("refused")
         .0
         .contains("journal"));
     drop(c);
 
     let other = dir.path().join("other.sqlite");
-    let c = rusqlite::Connection::open(&other).unwrap();
+    let c = rusqlite::Connection::open(&other).expect("test fixture");
     c.execute_batch(
         "CREATE TABLE k (id TEXT PRIMARY KEY, a TEXT) WITHOUT ROWID; INSERT INTO k VALUES ('a', 'b');
          CREATE TABLE d (fid INTEGER PRIMARY KEY, a TEXT DEFAULT 'none'); INSERT INTO d (a) VALUES ('x');
          CREATE VIEW v AS SELECT * FROM d;",
     )
-    .unwrap();
+    .expect("test fixture");
     drop(c);
     assert!(by_scan(&other, "k", &["a"], 1)
-        .unwrap_err()
+        .expect_err("refused")
         .0
         .contains("rowid"));
     assert!(by_scan(&other, "d", &["a"], 1)
-        .unwrap_err()
+        .expect_err("refused")
         .0
         .contains("default"));
     assert!(by_scan(&other, "v", &["a"], 1)
-        .unwrap_err()
+        .expect_err("refused")
         .0
         .contains("view"));
     assert!(by_scan(&other, "d", &["missing"], 1)
-        .unwrap_err()
+        .expect_err("refused")
         .0
         .contains("no column"));
 }
@@ -220,10 +223,10 @@ fn files_the_scan_cannot_see_as_sqlite_does_are_refused() {
 fn damaged_pages_stop_the_scan_without_a_panic() {
     // Every byte of every leaf page overwritten in turn with a few values: the scan either
     // returns rows or says it cannot read the file; it never panics or loops.
-    let dir = tempfile::tempdir().unwrap();
+    let dir = tempfile::tempdir().expect("test fixture");
     let path = dir.path().join("d.sqlite");
     make(&path, 512, 300);
-    let pristine = std::fs::read(&path).unwrap();
+    let pristine = std::fs::read(&path).expect("test fixture");
     let columns = ["fid", "geom", "n", "r", "s", "late"];
     let mut refused = 0;
     let damaged = dir.path().join("damaged.sqlite");
@@ -235,7 +238,7 @@ fn damaged_pages_stop_the_scan_without_a_panic() {
         let at = 512 + (rng as usize % (pristine.len() - 512));
         let mut bytes = pristine.clone();
         bytes[at] = (rng >> 32) as u8;
-        std::fs::write(&damaged, &bytes).unwrap();
+        std::fs::write(&damaged, &bytes).expect("test fixture");
         if let Ok(c) = rusqlite::Connection::open_with_flags(
             &damaged,
             rusqlite::OpenFlags::SQLITE_OPEN_READ_ONLY,
@@ -247,7 +250,9 @@ fn damaged_pages_stop_the_scan_without_a_panic() {
                             2,
                             |_| Vec::new(),
                             |rows: &mut Vec<i64>, rowid, record| -> Result<(), ()> {
-                                let _ = (0..columns.len()).map(|i| record.value(i)).count();
+                                for i in 0..columns.len() {
+                                    std::hint::black_box(record.value(i));
+                                }
                                 rows.push(rowid);
                                 Ok(())
                             },
