@@ -232,7 +232,8 @@ impl TableScan {
         };
         let mut leaves = Vec::new();
         let mut page = vec![0u8; page_size];
-        scan.collect_leaves(root as u32, 0, &mut page, &mut leaves)?;
+        let mut visited = 0;
+        scan.collect_leaves(root as u32, 0, &mut page, &mut leaves, &mut visited)?;
         scan.leaves = leaves;
         Ok(scan)
     }
@@ -251,16 +252,19 @@ impl TableScan {
             .map_err(|e| Unusable(e.to_string()))
     }
 
-    /// Appends the leaf pages under `number` in key order.
+    /// Appends the leaf pages under `number` in key order; `visited` counts the pages read, so
+    /// a damaged tree whose pages point back up cannot make the walk endless.
     fn collect_leaves(
         &self,
         number: u32,
         depth: usize,
         page: &mut [u8],
         leaves: &mut Vec<u32>,
+        visited: &mut u64,
     ) -> Result<(), Unusable> {
-        if depth > 40 || leaves.len() as u64 > self.pages {
-            return unusable("the b-tree is deeper than the file allows");
+        *visited += 1;
+        if depth > 40 || *visited > self.pages {
+            return unusable("the b-tree has more pages than the file");
         }
         self.read_page(number, page)?;
         let start = if number == 1 { 100 } else { 0 };
@@ -278,7 +282,7 @@ impl TableScan {
                 }
                 children.push(be32(page, start + 8)?);
                 for child in children {
-                    self.collect_leaves(child, depth + 1, page, leaves)?;
+                    self.collect_leaves(child, depth + 1, page, leaves, visited)?;
                 }
                 Ok(())
             }

@@ -268,3 +268,34 @@ fn damaged_pages_stop_the_scan_without_a_panic() {
     }
     assert!(refused > 0, "some damage must be noticed");
 }
+
+#[test]
+fn an_interior_page_pointing_at_itself_is_refused() {
+    // Every child pointer of the root (an interior page of a table of a few thousand rows) is
+    // made to point at the root itself: without a count of pages visited, the walk would
+    // never end.
+    let dir = tempfile::tempdir().expect("test fixture");
+    let path = dir.path().join("loop.sqlite");
+    make(&path, 512, 2_000);
+    let c = rusqlite::Connection::open(&path).expect("test fixture");
+    let root: u32 = c
+        .query_row(
+            "SELECT rootpage FROM sqlite_master WHERE name = 't'",
+            [],
+            |r| r.get(0),
+        )
+        .expect("test fixture");
+    drop(c);
+    let mut bytes = std::fs::read(&path).expect("test fixture");
+    let page = &mut bytes[(root as usize - 1) * 512..root as usize * 512];
+    assert_eq!(page[0], 0x05, "the root is an interior table page");
+    let cells = u16::from_be_bytes([page[3], page[4]]) as usize;
+    for c in 0..cells {
+        let at = u16::from_be_bytes([page[12 + 2 * c], page[13 + 2 * c]]) as usize;
+        page[at..at + 4].copy_from_slice(&root.to_be_bytes());
+    }
+    page[8..12].copy_from_slice(&root.to_be_bytes());
+    std::fs::write(&path, &bytes).expect("test fixture");
+    let refused = by_scan(&path, "t", &["fid"], 1).expect_err("refused");
+    assert!(refused.0.contains("more pages"), "{refused:?}");
+}
