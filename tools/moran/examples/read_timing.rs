@@ -7,6 +7,14 @@ use std::path::Path;
 
 use stance_core::gpkg::read::{read_points, read_polygons, FieldWant, PolygonCrs};
 
+/// The process's peak resident memory so far (VmHWM).
+fn peak() -> String {
+    std::fs::read_to_string("/proc/self/status")
+        .ok()
+        .and_then(|s| s.lines().find(|l| l.starts_with("VmHWM")).map(|l| l[6..].trim().to_owned()))
+        .unwrap_or_default()
+}
+
 fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
     let threads: usize = std::env::var("THREADS")
@@ -28,9 +36,10 @@ fn main() {
             )
             .expect("read points");
             println!(
-                "round {round}: read_points {} points: {:.3} s",
+                "round {round}: read_points {} points: {:.3} s (peak so far {})",
                 layer.x.len(),
-                start.elapsed().as_secs_f64()
+                start.elapsed().as_secs_f64(),
+                peak()
             );
         }
         if let Some(areas) = args.get(3) {
