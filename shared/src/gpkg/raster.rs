@@ -62,9 +62,10 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
         options.push("APPEND_SUBDATASET=YES".to_owned());
     }
     let options = RasterCreationOptions::from_iter(options);
-    let mut dataset = driver
-        .create_with_band_type_with_options::<f32, _>(path, grid.cols, grid.rows, 1, &options)
-        .map_err(Error::gdal(ctx()))?;
+    let mut dataset = crate::gpkg::stage::unsynced(|| {
+        driver.create_with_band_type_with_options::<f32, _>(path, grid.cols, grid.rows, 1, &options)
+    })
+    .map_err(Error::gdal(ctx()))?;
     dataset
         .set_geo_transform(&grid.geo_transform())
         .map_err(Error::gdal(ctx()))?;
@@ -84,6 +85,10 @@ pub(crate) fn write(path: &Path, exists: bool, name: &str, surface: &Surface<'_>
     }
     dataset.close().map_err(Error::gdal(ctx()))?;
     let connection = rusqlite::Connection::open(path).map_err(Error::sqlite(ctx()))?;
+    // The staging file (see `stage::unsynced`).
+    connection
+        .execute_batch("PRAGMA synchronous = OFF; PRAGMA journal_mode = MEMORY;")
+        .map_err(Error::sqlite(ctx()))?;
     write_tiles(&connection, name, surface).map_err(Error::sqlite(ctx()))
 }
 

@@ -11,7 +11,11 @@ use stance_core::gpkg::read::{read_points, read_polygons, FieldWant, PolygonCrs}
 fn peak() -> String {
     std::fs::read_to_string("/proc/self/status")
         .ok()
-        .and_then(|s| s.lines().find(|l| l.starts_with("VmHWM")).map(|l| l[6..].trim().to_owned()))
+        .and_then(|s| {
+            s.lines()
+                .find(|l| l.starts_with("VmHWM"))
+                .map(|l| l[6..].trim().to_owned())
+        })
         .unwrap_or_default()
 }
 
