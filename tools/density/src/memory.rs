@@ -2,7 +2,8 @@
 //! from what the code holds at its peak: the records and their index lists, the grid-sized
 //! buffers of the class sums and comparisons, the FFT spectra, and the per-thread buffers of
 //! the relabellings. Checked against the measured peak (GNU time's maximum resident set size)
-//! in BENCHMARKS.md and in `tests/tests/memory.rs` (within 1.0–1.5 ×).
+//! in BENCHMARKS.md and in `tests/tests/memory.rs` (within 1.0–1.5 ×). Not counted: the
+//! type probabilities' own sums and relabellings (`--type-probabilities`).
 
 use stance_core::grid::Grid;
 use stance_core::host::shard::Tiling;
@@ -79,7 +80,7 @@ fn spectrum_bytes(config: &Config, rows: usize, cols: usize, cell_m: f64, h_max_
     (pad_rows * (pad_cols / 2 + 1) * 16) as f64
 }
 
-/// The estimated peak in bytes, and what it is for (for the message of a refusal).
+/// The estimated peak in bytes (times [`HEADROOM`]).
 pub fn estimate(config: &Config, shape: &Shape<'_>) -> f64 {
     let grid = shape.grid;
     let n = shape.records as f64;

@@ -15,7 +15,7 @@ pub const BASE_BYTES: f64 = 55.0 * 1024.0 * 1024.0;
 pub const INDEX_BYTES: f64 = 40.0 + 24.0 + 12.0;
 
 /// Multiplier over the bytes counted (the allocator's arenas, run-to-run variation).
-pub const HEADROOM: f64 = 1.1;
+pub const HEADROOM: f64 = 1.15;
 
 /// Bytes of a hash table (hashbrown, as std's `HashSet`/`HashMap`) holding `entries` of
 /// `slot` bytes: a power-of-two number of buckets at least 8/7 of the entries, each with its
