@@ -545,16 +545,7 @@ impl Run {
         // `stance plan-batch` reads it.
         self.memory_estimate
             .fetch_max(estimate_bytes, Ordering::Relaxed);
-        if estimate_bytes > limit {
-            return Err(Error::argument(
-                "--max-memory-mb",
-                format!(
-                    "{what} needs about {} MiB, over the limit of {} MiB; {advice} (or raise --max-memory-mb)",
-                    estimate_bytes >> 20,
-                    limit >> 20
-                ),
-            ));
-        }
+        check_memory(estimate_bytes, limit, what, advice)?;
         self.debug(format!(
             "memory estimate {} MiB of {} MiB allowed ({what})",
             estimate_bytes >> 20,
@@ -615,4 +606,24 @@ impl Run {
     pub fn writing(&mut self) -> (&mut Staging, &Progress, &Interrupt) {
         (&mut self.staging, &self.progress, &self.interrupted)
     }
+}
+
+/// The refusal of [`Run::guard_memory`] without recording the estimate, for a tool that must
+/// check while the run is borrowed (it records the estimate with `guard_memory` afterwards):
+/// `limit_bytes` from [`Run::memory_limit_bytes`].
+///
+/// # Errors
+/// [`Error::BadArgument`] naming `--max-memory-mb`, the estimate and the advice.
+pub fn check_memory(estimate_bytes: u64, limit_bytes: u64, what: &str, advice: &str) -> Result<()> {
+    if estimate_bytes > limit_bytes {
+        return Err(Error::argument(
+            "--max-memory-mb",
+            format!(
+                "{what} needs about {} MiB, over the limit of {} MiB; {advice} (or raise --max-memory-mb)",
+                estimate_bytes >> 20,
+                limit_bytes >> 20
+            ),
+        ));
+    }
+    Ok(())
 }

@@ -18,6 +18,7 @@ pub mod input;
 pub mod kernel;
 pub mod layout;
 pub mod mask;
+pub mod memory;
 pub mod output;
 pub mod params;
 pub mod plan;
@@ -114,7 +115,7 @@ impl Tool for Density {
         };
         run.progress.phase("bandwidth");
         run.progress.set(0.0);
-        let plan = plan::plan(&config, run, &records.points(), mask.as_deref())?;
+        let plan = plan::plan(&config, run, &records, mask.as_deref())?;
         run.progress.set(0.1);
         let (slices, missing) = slice::group(config.slice, records.times.as_deref(), records.len());
         if missing > 0 {

@@ -7,13 +7,14 @@ use stance_core::error::{Error, Result};
 use stance_core::grid::Grid;
 use stance_core::host::shard::Tiling;
 use stance_core::host::Run;
-use stance_core::stance::Stance;
 
 use crate::bandwidth::{self, CvScore};
 use crate::binning::{self, Points};
 use crate::estimate::{self, Bandwidths, Estimator, Method};
+use crate::input::Records;
 use crate::layout::{self, Extent};
 use crate::mask;
+use crate::memory::{self, Shape};
 use crate::params::{BandwidthRule, Config, MethodChoice};
 
 /// How the bandwidth was chosen.
@@ -56,16 +57,32 @@ pub struct Plan {
 pub fn plan(
     config: &Config,
     run: &Run,
-    points: &Points<'_>,
+    records: &Records,
     mask_polygons: Option<&[MultiPolygon<f64>]>,
 ) -> Result<Plan> {
+    let points = &records.points();
     let pooled: Vec<usize> = (0..points.x.len()).collect();
     let extent = layout::data_extent(points, &pooled, mask_polygons);
     let cell_m = config.cell_m.unwrap_or_else(|| extent.default_cell_m());
     let frame = Frame { extent, cell_m };
     let bandwidth = select_bandwidth(config, run, points, &frame)?;
     let h = bandwidth.h;
-    let grid = surface_grid(config, run, &frame, h, mask_polygons.is_some())?;
+    let masked = mask_polygons.is_some();
+    let grid = surface_grid(config, run, &frame, h, masked)?;
+    // The memory of a fixed-bandwidth run (or of an adaptive run's pilot), before any grid is
+    // allocated; an adaptive run is checked again once its levels are known.
+    let shape = Shape {
+        grid: &grid,
+        records: records.len(),
+        weighted: records.weights.is_some(),
+        timed: records.times.is_some(),
+        levels: 1,
+        h_m: h,
+        h_max_m: h,
+        method: choose(config, &grid, h, 1, points.x.len()),
+        masked,
+    };
+    guard(config, run, &shape)?;
     run.log(format!(
         "bandwidth {h:.1} m ({}), grid {}×{} cells of {cell_m} m",
         bandwidth.how, grid.cols, grid.rows
@@ -102,6 +119,16 @@ pub fn plan(
     let h_max = bandwidths.levels_m.iter().cloned().fold(0.0, f64::max);
     let levels = bandwidths.levels_m.len();
     let method = choose(config, &grid, h_max, levels, points.x.len());
+    if levels > 1 {
+        // The adaptive levels' spectra are padded for the largest bandwidth.
+        let shape = Shape {
+            levels,
+            h_max_m: h_max,
+            method,
+            ..shape
+        };
+        guard(config, run, &shape)?;
+    }
     // A tiled run never transforms the whole grid: its tiles sum on their own bands.
     let whole_method = match config.tiling {
         Tiling::Whole => method,
@@ -231,7 +258,7 @@ fn cross_validate(
 }
 
 /// The grid of the surfaces for bandwidth `h`: the extent plus the kernel's reach (none when
-/// masked), within `--max-cells` and the memory allowed.
+/// masked), within `--max-cells` (the memory is checked by the caller, [`memory::estimate`]).
 fn surface_grid(config: &Config, run: &Run, frame: &Frame, h: f64, masked: bool) -> Result<Grid> {
     let cell_m = frame.cell_m;
     let margin = config.kernel.support_m(h);
@@ -247,41 +274,6 @@ fn surface_grid(config: &Config, run: &Run, frame: &Frame, h: f64, masked: bool)
             ),
         ));
     }
-    // Memory: the output and per-class surfaces (f64 while computed, f32 when written), and
-    // the zero-padded FFT buffers (complex f64) per bandwidth level and per worker thread.
-    // A tile holds its band and the kernel's reach around it (and the grid's mask flags); a
-    // merge holds the whole grid but transforms nothing.
-    let (held, padded, flags, what) = match config.tiling {
-        Tiling::Whole => (
-            grid.len() as f64,
-            padded,
-            0.0,
-            format!("a {}×{} grid", grid.cols, grid.rows),
-        ),
-        Tiling::Tile { index, count } => {
-            let band = crate::tiles::window(&grid, config.kernel, h, index, count);
-            let rows = band.len() as f64;
-            (
-                rows * grid.cols as f64,
-                (rows + margin / cell_m) * (grid.cols as f64 + margin / cell_m),
-                if masked { grid.len() as f64 } else { 0.0 },
-                format!("a tile of {}×{} cells", grid.cols, band.len()),
-            )
-        }
-        Tiling::Merge(_) => (
-            grid.len() as f64,
-            0.0,
-            0.0,
-            format!("a {}×{} grid", grid.cols, grid.rows),
-        ),
-    };
-    let surfaces = (Stance::ALL.len() + 8) as f64 * held * 12.0 + flags;
-    let fft = padded * 16.0 * (2.0 + 2.0 * rayon::current_num_threads() as f64);
-    let advice = match config.tiling {
-        Tiling::Whole => "use a larger --cell-m or a --mask-layer",
-        _ => "use a larger --cell-m, a --mask-layer or more tiles",
-    };
-    run.guard_memory((surfaces + fft) as u64, &what, advice)?;
     if margin < 2.0 * cell_m {
         run.log(format!(
             "warning: the kernel reaches {margin:.0} m, under two cells of {cell_m} m; \
@@ -289,6 +281,16 @@ fn surface_grid(config: &Config, run: &Run, frame: &Frame, h: f64, masked: bool)
         ));
     }
     Ok(grid)
+}
+
+/// Refuses a run whose estimated peak (see [`memory::estimate`]) is over `--max-memory-mb`.
+fn guard(config: &Config, run: &Run, shape: &Shape<'_>) -> Result<()> {
+    let advice = match config.tiling {
+        Tiling::Whole => "use a larger --cell-m or a --mask-layer",
+        _ => "use a larger --cell-m, a --mask-layer or more tiles",
+    };
+    let bytes = memory::estimate(config, shape);
+    run.guard_memory(bytes as u64, &memory::what(config, shape), advice)
 }
 
 /// The method of `--method`, the cheaper one for `auto`.

@@ -240,6 +240,12 @@ pub fn text_form(text: &str) -> String {
 }
 
 impl Checker {
+    /// What the checker keeps per row so far: distinct duplicate keys and distinct authors
+    /// counted (for the memory estimate).
+    pub fn keys_held(&self) -> (usize, usize) {
+        (self.seen.len(), self.per_author.len())
+    }
+
     /// A checker with no records seen.
     pub fn new(rules: Rules) -> Self {
         Checker {

@@ -2,6 +2,7 @@
 
 pub mod checks;
 pub mod dialect;
+mod memory;
 mod output;
 pub mod params;
 mod source;
@@ -11,7 +12,7 @@ mod whole;
 use serde_json::Value;
 use stance_core::error::Result;
 use stance_core::gpkg::stage::{GeometryKind, Shape};
-use stance_core::host::{InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
+use stance_core::host::{check_memory, InputUse, OutputDecl, Run, Tool, GEOPACKAGE_MEDIA_TYPE};
 
 use checks::Checker;
 use output::Rejected;
@@ -25,6 +26,12 @@ pub struct Import;
 
 /// Rows between progress reports and interrupt checks.
 const REPORT_EVERY: u64 = 65_536;
+
+/// What to do when an import would need more memory than allowed.
+const MEMORY_ADVICE: &str = "split the input into parts and import them one by one";
+
+/// Where the memory an import will need is projected from the share of the input read.
+const PROJECT_AFTER: u64 = REPORT_EVERY;
 
 impl Tool for Import {
     type Params = ImportParams;
@@ -74,7 +81,10 @@ impl Tool for Import {
             run.note_input_layer(&layer);
         }
         let mut checker = Checker::new(config.rules(reader.srs().is_geographic()));
-        let (rows_read, rejects) = stream_records(run, &config, &mut reader, &mut checker)?;
+        let (rows_read, rejects, estimate) =
+            stream_records(run, &config, &mut reader, &mut checker)?;
+        // Checked while streaming; recorded for the summary (`memory_estimate_mb`).
+        run.guard_memory(estimate as u64, "the import", MEMORY_ADVICE)?;
         let warnings = whole::warnings(&checker);
         whole::check(
             &input,
@@ -110,14 +120,29 @@ impl Tool for Import {
     }
 }
 
-/// Reads, checks and writes every row in one pass; returns the rows read and the dropped rows
-/// (kept only when a rejects table was asked for).
+/// What the checker and the writer hold after the rows read so far.
+fn held(checker: &Checker) -> memory::Held {
+    let (duplicate_keys, authors) = checker.keys_held();
+    memory::Held {
+        records: checker.kept.values().sum::<u64>() as f64,
+        duplicate_keys: duplicate_keys as f64,
+        authors: authors as f64,
+    }
+}
+
+/// Reads, checks and writes every row in one pass; returns the rows read, the dropped rows
+/// (kept only when a rejects table was asked for) and the memory estimate (bytes). The
+/// estimate is checked against `--max-memory-mb` twice: projected from the first
+/// [`PROJECT_AFTER`] rows and the share of the input they are, and before the spatial index
+/// is packed (the peak) from what is held.
 fn stream_records(
     run: &mut Run,
     config: &ImportConfig,
     reader: &mut Reader,
     checker: &mut Checker,
-) -> Result<(u64, Vec<Rejected>)> {
+) -> Result<(u64, Vec<Rejected>, f64)> {
+    let limit = run.memory_limit_bytes();
+    let mut estimate = 0.0f64;
     let fields = output::record_fields(config);
     let srs = reader.srs().clone();
     let total = reader.rows_total();
@@ -144,6 +169,18 @@ fn stream_records(
             }),
             Err(_) => {}
         }
+        if rows_read == PROJECT_AFTER {
+            let share = reader.fraction_read();
+            if share > 0.0 {
+                let projected = held(checker).scaled(1.0 / share.min(1.0));
+                estimate = projected.estimate();
+                let what = format!(
+                    "importing about {:.0} records (projected from the first {PROJECT_AFTER} rows)",
+                    projected.records
+                );
+                check_memory(estimate as u64, limit, &what, MEMORY_ADVICE)?;
+            }
+        }
         if rows_read.is_multiple_of(REPORT_EVERY) {
             let fraction = 0.95 * reader.fraction_read();
             match total {
@@ -153,6 +190,10 @@ fn stream_records(
             interrupt.check()?;
         }
     }
+    let now = held(checker);
+    estimate = estimate.max(now.estimate());
+    let what = format!("indexing {} records", now.records);
+    check_memory(now.estimate() as u64, limit, &what, MEMORY_ADVICE)?;
     writer.finish()?;
-    Ok((rows_read, rejects))
+    Ok((rows_read, rejects, estimate))
 }

@@ -11,6 +11,7 @@
 
 pub mod eb;
 pub mod input;
+pub mod memory;
 pub mod output;
 pub mod params;
 pub mod zonal;
@@ -77,6 +78,13 @@ impl Tool for Rates {
         let config = params.check(run.common.layer.is_some())?;
         run.progress.phase("reading");
         let (areas, table, id_field, points) = read(params, &config, run)?;
+        // Checked once the records and the areas are read, before the assignment (the peak).
+        let records = points.as_ref().map_or(0, |p| p.layer.fids.len());
+        run.guard_memory(
+            memory::estimate(&areas, points.as_ref()) as u64,
+            &format!("{records} records in {} areas", areas.layer.fids.len()),
+            "count the records in parts (e.g. a layer per period) and add the counts",
+        )?;
         run.progress.set(0.2);
         run.progress.phase("counting");
         let counts = input::count(&config, &areas, points.as_ref(), run)?;
