@@ -22,9 +22,12 @@ pub const BASE_BYTES: f64 = 40.0 * 1024.0 * 1024.0;
 /// record — fid 8, x 8, y 8, text code 4 and the class 1 = 29 — and no grid, so the peak
 /// comes later): x and y (f64, 16), the class (1), the slice's member indices (usize, 8), the
 /// same indices split by class (usize, 8), and the abandoned halves of those class lists,
-/// which grow by doubling and whose smaller copies the allocator keeps (up to 8). Re-measure
-/// after a change to the reader.
-pub const RECORD_BYTES: f64 = 16.0 + 1.0 + 8.0 + 8.0 + 8.0;
+/// which grow by doubling and whose smaller copies the allocator keeps (up to 8), and what the
+/// page reader leaves behind of the parts it reads in parallel and joins into one column each
+/// (8; measured after the reader changed, 2026-12-03: peaks of 159, 332 and 483 MiB at 0.92,
+/// 4.6 and 9.1 million records against 156, 287 and 434 before). Re-measure after a change to
+/// the reader.
+pub const RECORD_BYTES: f64 = 16.0 + 1.0 + 8.0 + 8.0 + 8.0 + 8.0;
 
 /// Extra bytes per record with `--weight-field` (f64).
 pub const WEIGHT_BYTES: f64 = 8.0;

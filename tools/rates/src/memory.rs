@@ -16,8 +16,11 @@ pub const BASE_BYTES: f64 = 54.0 * 1024.0 * 1024.0;
 /// Bytes per point record held while points are assigned to areas (the peak): the layer as
 /// read — fid (i64, 8), x and y (f64, 16), the stance's text code (u32, 4) — the class (1),
 /// and the assignment (area index `Option<u32>` and a boundary flag, 12; collected in place
-/// into the areas of the points). Re-measure after a change to the reader.
-pub const RECORD_BYTES: f64 = 8.0 + 16.0 + 4.0 + 1.0 + 12.0;
+/// into the areas of the points), and what the page reader leaves behind of the parts it reads
+/// in parallel and joins into one column each (8; measured after the reader changed,
+/// 2026-12-03: peaks of 88, 272 and 433 MiB at 0.92, 4.6 and 9.1 million records against 90,
+/// 234 and 412 before). Re-measure after a change to the reader.
+pub const RECORD_BYTES: f64 = 8.0 + 16.0 + 4.0 + 1.0 + 12.0 + 8.0;
 
 /// Bytes per vertex of the areas: the polygons as read (two f64, 16) and up to three copies
 /// of them (the projection into the working CRS, the contiguity's or the surface's copy, the
