@@ -401,12 +401,7 @@ impl PointRows {
             }
         }
         self.fids.push(fid);
-        for (i, builder) in self.builders.iter_mut().enumerate() {
-            builder
-                .push(values.value(i))
-                .map_err(|message| bad_field(i, fid, message))?;
-        }
-        Ok(())
+        rows::push_fields(&mut self.builders, values, fid, bad_field)
     }
 
     /// Appends the rows of `later` (which follow these in fid order).

@@ -248,12 +248,7 @@ fn read_polygon_rows(
                 }
             }
             out.fids.push(fid);
-            for (i, builder) in out.builders.iter_mut().enumerate() {
-                builder
-                    .push(values.value(i))
-                    .map_err(|message| bad_field(i, fid, message))?;
-            }
-            Ok(())
+            rows::push_fields(&mut out.builders, values, fid, &bad_field)
         },
     )?;
     let total = parts.iter().map(|p| p.fids.len()).sum();

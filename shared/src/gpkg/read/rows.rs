@@ -30,6 +30,22 @@ impl Fields<'_, '_> {
     }
 }
 
+/// Appends one row's requested fields to their columns; a value of the wrong kind is an error
+/// naming the feature (through `bad_field`, given the field's index).
+pub(super) fn push_fields(
+    builders: &mut [ColumnBuilder],
+    values: &Fields<'_, '_>,
+    fid: i64,
+    bad_field: &dyn Fn(usize, i64, String) -> Error,
+) -> Result<()> {
+    for (i, builder) in builders.iter_mut().enumerate() {
+        builder
+            .push(values.value(i))
+            .map_err(|message| bad_field(i, fid, message))?;
+    }
+    Ok(())
+}
+
 /// Reads every row of `query`'s layer in fid order, in parts filled in parallel: each part
 /// starts from `init(rows)` (`rows` its likely number of rows) and takes its rows with
 /// `row(part, fid, geometry, fields)`. The parts come back in fid order; the first error in fid
