@@ -114,8 +114,10 @@ fn real_affinity(declared: &str) -> bool {
         && (has("REAL") || has("FLOA") || has("DOUB"))
 }
 
-/// A table ready to be scanned directly.
-pub(crate) struct TableScan {
+/// A table ready to be scanned directly, for as long as the file's read lock is held.
+pub(crate) struct TableScan<'l> {
+    /// Borrows the read lock (its lifetime only: the connection is not shared across threads).
+    _lock: std::marker::PhantomData<&'l ()>,
     file: File,
     page_size: usize,
     usable: usize,
@@ -128,12 +130,13 @@ pub(crate) struct TableScan {
 /// Pages read at once when leaf pages follow each other in the file.
 const RUN_BYTES: usize = 1 << 20;
 
-impl TableScan {
+impl<'l> TableScan<'l> {
     /// Prepares a direct scan of `table` for the columns `wanted` (names as in the table, or
-    /// `rowid`), or says why it cannot be done. `_lock` proves the file is read-locked.
+    /// `rowid`), or says why it cannot be done. `lock` holds the file read-locked (its
+    /// connection reads the schema) for as long as the scan lives.
     pub(crate) fn open(
         path: &Path,
-        lock: &ReadLock<'_>,
+        lock: &'l ReadLock<'l>,
         table: &str,
         wanted: &[&str],
     ) -> Result<Self, Unusable> {
@@ -223,6 +226,7 @@ impl TableScan {
             }
         }
         let mut scan = TableScan {
+            _lock: std::marker::PhantomData,
             file,
             page_size,
             usable,
@@ -384,7 +388,7 @@ impl TableScan {
 
 /// Scratch of one scanning thread.
 struct Cursor<'t> {
-    table: &'t TableScan,
+    table: &'t TableScan<'t>,
     /// The payload of a cell that spills into overflow pages, assembled.
     spilled: Vec<u8>,
     overflow_page: Vec<u8>,
@@ -392,7 +396,7 @@ struct Cursor<'t> {
 }
 
 impl<'t> Cursor<'t> {
-    fn new(table: &'t TableScan) -> Self {
+    fn new(table: &'t TableScan<'t>) -> Self {
         Cursor {
             table,
             spilled: Vec::new(),
