@@ -203,8 +203,12 @@ impl<'l> TableScan<'l> {
             return unusable("hidden or generated columns");
         }
         let keys: Vec<usize> = (0..columns.len()).filter(|&i| columns[i].3 > 0).collect();
+        // A column declared `INTEGER PRIMARY KEY DESC` is not an alias for the rowid (SQLite's
+        // documented quirk): its values are in the record and only SQLite reads it as a key.
+        let words: Vec<&str> = sql.split_whitespace().collect();
+        let descending = words.join(" ").contains("PRIMARY KEY DESC");
         let alias = match keys.as_slice() {
-            [one] if columns[*one].1.eq_ignore_ascii_case("INTEGER") => Some(*one),
+            [one] if columns[*one].1.eq_ignore_ascii_case("INTEGER") && !descending => Some(*one),
             _ => None,
         };
         let mut sources = Vec::with_capacity(wanted.len());

@@ -180,6 +180,36 @@ fn a_table_without_an_integer_key_is_scanned_by_its_rowid() {
 }
 
 #[test]
+fn an_integer_key_declared_descending_is_not_taken_for_the_rowid() {
+    // SQLite's documented quirk (https://www.sqlite.org/lang_createtable.html#rowid): a column
+    // declared `INTEGER PRIMARY KEY DESC` is not an alias for the rowid; its values live in the
+    // record. The scan must not answer the rowid for it.
+    let dir = tempfile::tempdir().expect("test fixture");
+    let path = dir.path().join("desc.sqlite");
+    let c = rusqlite::Connection::open(&path).expect("test fixture");
+    c.execute_batch(
+        "CREATE TABLE t (id  INTEGER  PRIMARY\n KEY   DESC, a TEXT);
+         INSERT INTO t VALUES (5, 'x'), (9, 'y');",
+    )
+    .expect("test fixture");
+    drop(c);
+    let by_sqlite_rows = by_sqlite(&path, "t", &["id", "a"]);
+    assert_eq!(by_sqlite_rows[0].1, vec![V::I(5), V::T(b"x".to_vec())]);
+    // Wanted, the key is refused (SQLite reads the layer instead).
+    let refused = by_scan(&path, "t", &["id", "a"], 1).expect_err("refused");
+    assert!(
+        refused.0.contains("is a key that is not the rowid"),
+        "{}",
+        refused.0
+    );
+    // Without the key among the wanted columns the rows are read by rowid as SQLite reads them.
+    assert_eq!(
+        by_scan(&path, "t", &["a"], 1).expect("test fixture"),
+        by_sqlite(&path, "t", &["a"])
+    );
+}
+
+#[test]
 fn files_the_scan_cannot_see_as_sqlite_does_are_refused() {
     let dir = tempfile::tempdir().expect("test fixture");
     let wal = dir.path().join("wal.sqlite");
