@@ -73,6 +73,14 @@ fn by_scan(
         .collect())
 }
 
+/// A SQLite file `name` in `dir` made by the statements `sql`.
+fn file_from_sql(dir: &tempfile::TempDir, name: &str, sql: &str) -> std::path::PathBuf {
+    let path = dir.path().join(name);
+    let c = rusqlite::Connection::open(&path).expect("test fixture");
+    c.execute_batch(sql).expect("test fixture");
+    path
+}
+
 /// A table with every serial type, long texts and blobs (overflow pages), NULLs, deleted rows
 /// and rows written before a column was added.
 fn make(path: &Path, page_size: usize, rows: i64) {
@@ -166,13 +174,11 @@ fn the_direct_scan_returns_what_sqlite_returns() {
 #[test]
 fn a_table_without_an_integer_key_is_scanned_by_its_rowid() {
     let dir = tempfile::tempdir().expect("test fixture");
-    let path = dir.path().join("r.sqlite");
-    let c = rusqlite::Connection::open(&path).expect("test fixture");
-    c.execute_batch(
+    let path = file_from_sql(
+        &dir,
+        "r.sqlite",
         "CREATE TABLE t (a TEXT, b REAL); INSERT INTO t VALUES ('p', 1.5), (NULL, 2), ('q', NULL);",
-    )
-    .expect("test fixture");
-    drop(c);
+    );
     let got = by_scan(&path, "t", &["rowid", "a", "b"], 1).expect("test fixture");
     let expected = by_sqlite(&path, "t", &["rowid", "a", "b"]);
     assert_eq!(got, expected);
@@ -185,14 +191,12 @@ fn an_integer_key_declared_descending_is_not_taken_for_the_rowid() {
     // declared `INTEGER PRIMARY KEY DESC` is not an alias for the rowid; its values live in the
     // record. The scan must not answer the rowid for it.
     let dir = tempfile::tempdir().expect("test fixture");
-    let path = dir.path().join("desc.sqlite");
-    let c = rusqlite::Connection::open(&path).expect("test fixture");
-    c.execute_batch(
+    let path = file_from_sql(
+        &dir,
+        "desc.sqlite",
         "CREATE TABLE t (id  INTEGER  PRIMARY\n KEY   DESC, a TEXT);
          INSERT INTO t VALUES (5, 'x'), (9, 'y');",
-    )
-    .expect("test fixture");
-    drop(c);
+    );
     let by_sqlite_rows = by_sqlite(&path, "t", &["id", "a"]);
     assert_eq!(by_sqlite_rows[0].1, vec![V::I(5), V::T(b"x".to_vec())]);
     // Wanted, the key is refused (SQLite reads the layer instead).
@@ -222,15 +226,13 @@ fn files_the_scan_cannot_see_as_sqlite_does_are_refused() {
         .contains("journal"));
     drop(c);
 
-    let other = dir.path().join("other.sqlite");
-    let c = rusqlite::Connection::open(&other).expect("test fixture");
-    c.execute_batch(
+    let other = file_from_sql(
+        &dir,
+        "other.sqlite",
         "CREATE TABLE k (id TEXT PRIMARY KEY, a TEXT) WITHOUT ROWID; INSERT INTO k VALUES ('a', 'b');
          CREATE TABLE d (fid INTEGER PRIMARY KEY, a TEXT DEFAULT 'none'); INSERT INTO d (a) VALUES ('x');
          CREATE VIEW v AS SELECT * FROM d;",
-    )
-    .expect("test fixture");
-    drop(c);
+    );
     assert!(by_scan(&other, "k", &["a"], 1)
         .expect_err("refused")
         .0
